@@ -1,0 +1,137 @@
+"""Cascade engine speed, measured side by side in one run.
+
+    python benchmarks/cascade.py            # full run (~1 min)
+    python benchmarks/cascade.py --quick    # fewer repeats
+
+Compares, for end-coupled filters at 1001 frequency points:
+  * refine's fused cascade (elements -> S),
+  * the same elements as stacked (nf, 2, 2) matrices chained with np.matmul,
+  * the same chain assembled from scikit-rf networks (one Network per element, ``**``);
+and reports batched evaluation of 1000 designs and the cost of the analytic gradient.
+Prints median wall times and ratios. Nothing here is asserted: the figures go in the README.
+"""
+
+from __future__ import annotations
+
+import argparse
+import statistics
+import sys
+import time
+import warnings
+from collections.abc import Callable
+
+import numpy as np
+from scipy.constants import c as C0
+
+from refine import cascade, synthesis
+
+
+def median_time(fn: Callable[[], object], repeats: int, inner: int = 1) -> float:
+    fn()  # warm-up
+    times = []
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        for _ in range(inner):
+            fn()
+        times.append((time.perf_counter() - t0) / inner)
+    return statistics.median(times)
+
+
+def matmul_chain(elements, f, z_ref):
+    m = cascade.element_matrices(elements[0], f)
+    for e in elements[1:]:
+        m = m @ cascade.element_matrices(e, f)
+    return cascade.abcd_to_s(
+        cascade.Abcd(m[..., 0, 0], m[..., 0, 1], m[..., 1, 0], m[..., 1, 1]), z_ref, reciprocal=True
+    )
+
+
+def skrf_ideal_chain(d, f):
+    from skrf import Frequency
+    from skrf.media import DefinedGammaZ0
+
+    freq = Frequency.from_f(f, unit="Hz")
+    tem = DefinedGammaZ0(frequency=freq, z0=d.z_ref, gamma=1j * 2 * np.pi * freq.f / C0)
+    ntw = tem.capacitor(d.capacitance[0])
+    for th, cap in zip(d.theta, d.capacitance[1:], strict=True):
+        ntw = ntw ** tem.line(th * C0 / (2 * np.pi * d.f0), unit="m") ** tem.capacitor(cap)
+    return ntw.s
+
+
+def ideal_section(repeats: int) -> list[str]:
+    f = np.linspace(0.5e9, 5e9, 1001)
+    rows = [
+        "ideal elements, 1001 points: median time per evaluation",
+        f"{'case':<10}{'refine':>12}{'matmul':>12}{'scikit-rf':>12}{'vs matmul':>11}{'vs skrf':>10}",
+    ]
+    for n in (5, 9):
+        d = synthesis.design("chebyshev", n, 2e9, 0.1, 50.0, 0.1)
+
+        def ours(d=d):
+            return cascade.s_parameters(
+                synthesis.ideal_elements(d.capacitance, d.theta, d.f0, 50.0, f), f, 50.0
+            )
+
+        def mm(d=d):
+            return matmul_chain(
+                synthesis.ideal_elements(d.capacitance, d.theta, d.f0, 50.0, f), f, 50.0
+            )
+
+        np.testing.assert_allclose(ours(), mm(), atol=1e-9)
+        t_ours = median_time(ours, repeats, 20)
+        t_mm = median_time(mm, repeats, 20)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            t_skrf = median_time(lambda d=d: skrf_ideal_chain(d, f), max(3, repeats // 3))
+        rows.append(
+            f"{'N=' + str(n):<10}{t_ours * 1e6:>10.0f}us{t_mm * 1e6:>10.0f}us"
+            f"{t_skrf * 1e3:>10.1f}ms{t_mm / t_ours:>10.1f}x{t_skrf / t_ours:>9.0f}x"
+        )
+    return rows
+
+
+def batch_and_gradient_section(repeats: int) -> list[str]:
+    f = np.linspace(0.5e9, 5e9, 1001)
+    d = synthesis.design("chebyshev", 5, 2e9, 0.1, 50.0, 0.1)
+    rng = np.random.default_rng(0)
+    caps = np.array(d.capacitance) * rng.uniform(0.9, 1.1, (1000, 6))
+    th = np.array(d.theta) * rng.uniform(0.98, 1.02, (1000, 5))
+    t_batch = median_time(
+        lambda: cascade.s11_s21(synthesis.ideal_elements(caps, th, d.f0, 50.0, f), f, 50.0),
+        max(3, repeats // 5),
+    )
+
+    def build():  # fresh elements every call: elements cache their cosh/sinh
+        return synthesis.ideal_elements(d.capacitance, d.theta, d.f0, 50.0, f)
+
+    t_one = median_time(lambda: cascade.s11_s21(build(), f, 50.0), repeats, 20)
+    wrt = {"length", "capacitance"}  # what the refiner moves
+    t_grad = median_time(lambda: cascade.s11_s21_gradient(build(), f, 50.0, wrt), repeats, 20)
+    t_all = median_time(lambda: cascade.s11_s21_gradient(build(), f, 50.0), repeats, 20)
+    n_par = sum(len(e.derivatives(2 * np.pi * f, wrt)) for e in build())
+    n_all = sum(len(e.derivatives(2 * np.pi * f)) for e in build())
+    return [
+        "",
+        "batched: 1000 perturbed N=5 designs x 1001 points in one call",
+        f"  batch {t_batch * 1e3:.1f} ms = {t_batch / 1000 * 1e6:.1f} us per design; one design alone "
+        f"{t_one * 1e6:.0f} us; per-design cost of the batch = 1/{t_one / (t_batch / 1000):.1f} of a single call",
+        "",
+        f"gradient of S11, S21 (N=5, 1001 points); evaluation alone {t_one * 1e6:.0f} us",
+        f"  w.r.t. the {n_par} lengths and capacitances: {t_grad * 1e6:.0f} us, ratio {t_grad / t_one:.2f}x",
+        f"  w.r.t. all {n_all} parameters (incl. per-frequency gamma, z_c): {t_all * 1e6:.0f} us, "
+        f"ratio {t_all / t_one:.2f}x",
+    ]
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--quick", action="store_true", help="fewer repeats")
+    args = ap.parse_args(argv)
+    repeats = 5 if args.quick else 15
+    rows = ideal_section(repeats) + batch_and_gradient_section(repeats)
+    print("\n".join(rows))
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

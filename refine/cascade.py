@@ -1,0 +1,455 @@
+"""Batched ABCD cascade of two-port elements, S-parameters and their analytic gradient.
+
+Shapes
+------
+Frequency is the last data axis; design (batch) axes lead. Every element parameter must
+broadcast against ``(..., nf)``: a per-design scalar carries a trailing axis of length 1
+(shape ``(nd, 1)``), a per-frequency quantity such as a line's ``gamma`` has shape
+``(..., nf)``. Results are ``(..., nf)`` for single parameters and ``(..., nf, 2, 2)`` for
+full S-matrices.
+
+Structure
+---------
+Each element is one of three kinds, and the chain product exploits it::
+
+    series  [[1, z], [0, 1]]   (series capacitor)            2 complex multiply-adds per product
+    shunt   [[1, 0], [y, 1]]   (shunt capacitor, open stub)  2 complex multiply-adds per product
+    general [[A, B], [C, D]]   (line, π-network)             8 multiplies, 4 adds
+
+The four ABCD entries are carried as separate arrays (fused elementwise arithmetic) instead of
+stacks of 2×2 matrices, which numpy multiplies slowly.
+
+Gradient
+--------
+With a real reference impedance z_ref, S21 = 2/Δ and S11 = N/Δ where
+Δ = [1, z_ref]·M·[1, 1/z_ref]ᵀ and N = [1, -z_ref]·M·[1, 1/z_ref]ᵀ (Pozar, *Microwave
+Engineering*, 4th ed., Table 4.2). For M = E_1 ⋯ E_k and a parameter p of E_i,
+∂Δ/∂p = (l·E_1⋯E_{i-1}) (∂E_i/∂p) (E_{i+1}⋯E_k·r): a bilinear form of one prefix row vector
+and one suffix column vector. One forward and one backward pass of 2-vectors therefore give
+the derivative with respect to every parameter, at a cost independent of their number.
+"""
+
+from __future__ import annotations
+
+import enum
+from collections.abc import Collection, Sequence
+from dataclasses import dataclass
+from functools import cached_property
+from typing import NamedTuple, Protocol, runtime_checkable
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from . import _validate as v
+
+Array = NDArray[np.complex128]
+
+
+class Abcd(NamedTuple):
+    """The four entries of an ABCD matrix, each broadcastable to ``(..., nf)``."""
+
+    a: ArrayLike
+    b: ArrayLike
+    c: ArrayLike
+    d: ArrayLike
+
+
+class Kind(enum.Enum):
+    """Structure of an element's ABCD matrix."""
+
+    SERIES = "series"  # [[1, z], [0, 1]]: the element provides z
+    SHUNT = "shunt"  # [[1, 0], [y, 1]]: the element provides y
+    GENERAL = "general"  # full matrix: the element provides Abcd
+
+
+@runtime_checkable
+class Element(Protocol):
+    """A two-port circuit element.
+
+    ``value(omega)`` returns z (series), y (shunt) or an :class:`Abcd` (general);
+    ``derivatives(omega, wrt)`` returns, per parameter name (all, or those named in ``wrt``),
+    the derivative of that value.
+    """
+
+    kind: Kind
+
+    def value(self, omega: NDArray[np.float64]) -> ArrayLike | Abcd: ...
+
+    def derivatives(
+        self, omega: NDArray[np.float64], wrt: Collection[str] | None = None
+    ) -> dict[str, ArrayLike | Abcd]: ...
+
+
+# --------------------------------------------------------------------------------------------
+# Elements
+# --------------------------------------------------------------------------------------------
+
+
+def _cosh_sinh(x: ArrayLike) -> tuple[NDArray, Array]:
+    """cosh and sinh of a complex array from real exp/cos/sin (several times faster than
+    complex exp); for a lossless argument (Re x = 0) cosh is returned as a real array."""
+    x = np.asarray(x)
+    a, b = x.real, x.imag
+    cb, sb = np.cos(b), np.sin(b)
+    if not a.any():
+        return cb, 1j * sb
+    ea = np.exp(a)
+    eai = 1.0 / ea
+    cha, sha = 0.5 * (ea + eai), 0.5 * (ea - eai)
+    ch = np.empty(x.shape, complex)
+    sh = np.empty(x.shape, complex)
+    ch.real, ch.imag = cha * cb, sha * sb
+    sh.real, sh.imag = sha * cb, cha * sb
+    return ch, sh
+
+
+@dataclass(frozen=True, eq=False)
+class SeriesCapacitor:
+    """Ideal series capacitor, ``capacitance`` in farads (> 0), z = 1/(jωC)."""
+
+    capacitance: ArrayLike
+    kind: Kind = Kind.SERIES
+
+    def value(self, omega: NDArray[np.float64]) -> Array:
+        return -1j / (omega * np.asarray(self.capacitance))
+
+    def derivatives(
+        self, omega: NDArray[np.float64], wrt: Collection[str] | None = None
+    ) -> dict[str, Array]:
+        if wrt is not None and "capacitance" not in wrt:
+            return {}
+        c = np.asarray(self.capacitance)
+        return {"capacitance": 1j / (omega * (c * c))}
+
+
+@dataclass(frozen=True, eq=False)
+class ShuntCapacitor:
+    """Ideal shunt capacitor to ground, ``capacitance`` in farads (≥ 0), y = jωC."""
+
+    capacitance: ArrayLike
+    kind: Kind = Kind.SHUNT
+
+    def value(self, omega: NDArray[np.float64]) -> Array:
+        return 1j * omega * np.asarray(self.capacitance)
+
+    def derivatives(
+        self, omega: NDArray[np.float64], wrt: Collection[str] | None = None
+    ) -> dict[str, Array]:
+        if wrt is not None and "capacitance" not in wrt:
+            return {}
+        return {"capacitance": 1j * omega * np.ones_like(np.asarray(self.capacitance, float))}
+
+
+@dataclass(frozen=True, eq=False)
+class Line:
+    """Uniform transmission line: propagation constant ``gamma`` (1/m, complex, α + jβ),
+    characteristic impedance ``z_c`` (ohm, complex) and ``length`` (m).
+
+    ABCD = [[cosh γl, z_c sinh γl], [sinh γl / z_c, cosh γl]] (Pozar 4th ed., Table 4.1).
+    Derivatives are given for ``length``, ``gamma`` and ``z_c`` (the last two per frequency).
+    """
+
+    gamma: ArrayLike
+    z_c: ArrayLike
+    length: ArrayLike
+    kind: Kind = Kind.GENERAL
+
+    @cached_property
+    def _ch_sh(self) -> tuple[NDArray, Array]:
+        return _cosh_sinh(np.asarray(self.gamma) * np.asarray(self.length))
+
+    def value(self, omega: NDArray[np.float64]) -> Abcd:
+        ch, sh = self._ch_sh
+        zc = np.asarray(self.z_c)
+        return Abcd(ch, zc * sh, sh / zc, ch)
+
+    def derivatives(
+        self, omega: NDArray[np.float64], wrt: Collection[str] | None = None
+    ) -> dict[str, Abcd]:
+        ch, sh = self._ch_sh
+        zc = np.asarray(self.z_c)
+        out: dict[str, Abcd] = {}
+        if wrt is None or "length" in wrt:
+            g = np.asarray(self.gamma)
+            gsh = g * sh
+            out["length"] = Abcd(gsh, g * zc * ch, g * ch / zc, gsh)
+        if wrt is None or "gamma" in wrt:
+            ln = np.asarray(self.length)
+            lsh = ln * sh
+            out["gamma"] = Abcd(lsh, ln * zc * ch, ln * ch / zc, lsh)
+        if wrt is None or "z_c" in wrt:
+            zero = np.zeros_like(sh)
+            out["z_c"] = Abcd(zero, sh, -sh / (zc * zc), zero)
+        return out
+
+
+@dataclass(frozen=True, eq=False)
+class PiNetwork:
+    """Capacitive π-network: shunt ``c_shunt_in``, series ``c_series``, shunt ``c_shunt_out``
+    (farads). The usual equivalent circuit of a series gap in a strip line.
+
+    With y1 = jωC_in, y2 = jωC_out, z = 1/(jωC_series):
+    ABCD = [[1 + z y2, z], [y1 + y2 + y1 y2 z, 1 + z y1]].
+    """
+
+    c_series: ArrayLike
+    c_shunt_in: ArrayLike
+    c_shunt_out: ArrayLike
+    kind: Kind = Kind.GENERAL
+
+    def _parts(self, omega: NDArray[np.float64]) -> tuple[Array, Array, Array]:
+        jw = 1j * omega
+        return (
+            -1j / (omega * np.asarray(self.c_series)),
+            jw * self.c_shunt_in,
+            jw * self.c_shunt_out,
+        )
+
+    def value(self, omega: NDArray[np.float64]) -> Abcd:
+        z, y1, y2 = self._parts(omega)
+        return Abcd(1.0 + z * y2, z, y1 + y2 + y1 * y2 * z, 1.0 + z * y1)
+
+    def derivatives(
+        self, omega: NDArray[np.float64], wrt: Collection[str] | None = None
+    ) -> dict[str, Abcd]:
+        z, y1, y2 = self._parts(omega)
+        jw = 1j * omega * np.ones_like(z)
+        zero = np.zeros_like(z)
+        out: dict[str, Abcd] = {}
+        if wrt is None or "c_series" in wrt:
+            dz = -z / np.asarray(self.c_series)
+            out["c_series"] = Abcd(y2 * dz, dz, y1 * y2 * dz, y1 * dz)
+        if wrt is None or "c_shunt_in" in wrt:
+            out["c_shunt_in"] = Abcd(zero, zero, jw * (1.0 + y2 * z), jw * z)
+        if wrt is None or "c_shunt_out" in wrt:
+            out["c_shunt_out"] = Abcd(jw * z, zero, jw * (1.0 + y1 * z), zero)
+        return out
+
+
+@dataclass(frozen=True, eq=False)
+class ShuntOpenStub:
+    """Open-circuited stub in shunt: y = tanh(γl)/z_c (Pozar 4th ed., eq. 2.77 with Z_L = ∞).
+
+    Parameters as for :class:`Line`. Derivatives for ``length``, ``gamma`` and ``z_c``.
+    """
+
+    gamma: ArrayLike
+    z_c: ArrayLike
+    length: ArrayLike
+    kind: Kind = Kind.SHUNT
+
+    @cached_property
+    def _tanh(self) -> Array:
+        ch, sh = _cosh_sinh(np.asarray(self.gamma) * np.asarray(self.length))
+        return sh / ch
+
+    def value(self, omega: NDArray[np.float64]) -> Array:
+        return self._tanh / np.asarray(self.z_c)
+
+    def derivatives(
+        self, omega: NDArray[np.float64], wrt: Collection[str] | None = None
+    ) -> dict[str, Array]:
+        g = np.asarray(self.gamma)
+        ln = np.asarray(self.length)
+        zc = np.asarray(self.z_c)
+        th = self._tanh
+        sech2_zc = (1.0 - th * th) / zc
+        out = {"length": g * sech2_zc, "gamma": ln * sech2_zc, "z_c": -th / (zc * zc)}
+        return out if wrt is None else {k: x for k, x in out.items() if k in wrt}
+
+
+# --------------------------------------------------------------------------------------------
+# Products
+# --------------------------------------------------------------------------------------------
+
+
+def _matrix_times(m: tuple, kind: Kind, e: object) -> tuple:
+    a, b, c, d = m
+    if kind is Kind.SERIES:
+        return a, a * e + b, c, c * e + d
+    if kind is Kind.SHUNT:
+        return a + b * e, b, c + d * e, d
+    ea, eb, ec, ed = e  # type: ignore[misc]
+    return a * ea + b * ec, a * eb + b * ed, c * ea + d * ec, c * eb + d * ed
+
+
+def _row_times(row: tuple, kind: Kind, e: object) -> tuple:
+    l1, l2 = row
+    if kind is Kind.SERIES:
+        return l1, l1 * e + l2
+    if kind is Kind.SHUNT:
+        return l1 + l2 * e, l2
+    ea, eb, ec, ed = e  # type: ignore[misc]
+    return l1 * ea + l2 * ec, l1 * eb + l2 * ed
+
+
+def _times_column(kind: Kind, e: object, col: tuple) -> tuple:
+    r1, r2 = col
+    if kind is Kind.SERIES:
+        return r1 + e * r2, r2
+    if kind is Kind.SHUNT:
+        return r1, e * r1 + r2
+    ea, eb, ec, ed = e  # type: ignore[misc]
+    return ea * r1 + eb * r2, ec * r1 + ed * r2
+
+
+def _bilinear(row: tuple, kind: Kind, de: object, col: tuple) -> Array:
+    l1, l2 = row
+    r1, r2 = col
+    if kind is Kind.SERIES:
+        return l1 * de * r2
+    if kind is Kind.SHUNT:
+        return l2 * de * r1
+    da, db, dc, dd = de  # type: ignore[misc]
+    return l1 * (da * r1 + db * r2) + l2 * (dc * r1 + dd * r2)
+
+
+def _omega(f: ArrayLike) -> NDArray[np.float64]:
+    return 2.0 * np.pi * v.frequencies("f", f)
+
+
+def _check_elements(elements: Sequence[Element]) -> None:
+    if len(elements) == 0:
+        raise ValueError("elements must hold at least one element, got an empty sequence")
+    for i, e in enumerate(elements):
+        if not isinstance(getattr(e, "kind", None), Kind):
+            raise ValueError(
+                f"elements[{i}] = {e!r} is not a cascade element (needs .kind, .value)"
+            )
+
+
+def chain_abcd(elements: Sequence[Element], f: ArrayLike) -> Abcd:
+    """ABCD matrix of the chain ``elements[0] · elements[1] · ...`` at frequencies ``f`` (Hz).
+
+    Returns an :class:`Abcd` whose entries are complex arrays of the broadcast shape
+    ``(..., nf)``.
+    """
+    _check_elements(elements)
+    omega = _omega(f)
+    m: tuple = (1.0, 0.0, 0.0, 1.0)
+    for e in elements:
+        m = _matrix_times(m, e.kind, e.value(omega))
+    shape = np.broadcast_shapes(*(np.shape(x) for x in m), omega.shape)
+    return Abcd(*(np.broadcast_to(np.asarray(x, dtype=complex), shape) for x in m))
+
+
+def abcd_to_s(abcd: Abcd, z_ref: float, *, reciprocal: bool = False) -> NDArray[np.complex128]:
+    """S-matrix ``(..., nf, 2, 2)`` of an ABCD matrix for a real reference impedance ``z_ref``.
+
+    Pozar, *Microwave Engineering*, 4th ed., Table 4.2. With ``reciprocal`` (AD - BC = 1 known
+    exactly) S12 is set to S21 instead of 2(AD - BC)/Δ, which loses all its digits to
+    cancellation deep in a stopband.
+    """
+    z = v.positive("z_ref", z_ref)
+    a, b, c, d = (np.asarray(x) for x in abcd)
+    bz, cz = b / z, c * z
+    den = a + bz + cz + d
+    s = np.empty((*np.broadcast_shapes(a.shape, b.shape, c.shape, d.shape), 2, 2), dtype=complex)
+    s[..., 0, 0] = (a + bz - cz - d) / den
+    s[..., 0, 1] = 2.0 / den if reciprocal else 2.0 * (a * d - b * c) / den
+    s[..., 1, 0] = 2.0 / den
+    s[..., 1, 1] = (-a + bz - cz + d) / den
+    return s
+
+
+def s_parameters(elements: Sequence[Element], f: ArrayLike, z_ref: float) -> NDArray[np.complex128]:
+    """S-matrix ``(..., nf, 2, 2)`` of a chain of elements at ``f`` (Hz) for ``z_ref`` (ohm).
+
+    Every element kind here is reciprocal (unit determinant), so S12 = S21 exactly.
+    """
+    return abcd_to_s(chain_abcd(elements, f), z_ref, reciprocal=True)
+
+
+class Transmission(NamedTuple):
+    """S11 and S21 of a chain, each ``(..., nf)``."""
+
+    s11: Array
+    s21: Array
+
+
+def s11_s21(elements: Sequence[Element], f: ArrayLike, z_ref: float) -> Transmission:
+    """S11 and S21 only, the cheapest evaluation (what a mask needs)."""
+    z = v.positive("z_ref", z_ref)
+    a, b, c, d = chain_abcd(elements, f)
+    bz, cz = b / z, c * z
+    den = a + bz + cz + d
+    return Transmission((a + bz - cz - d) / den, 2.0 / den)
+
+
+class Gradient(NamedTuple):
+    """S11, S21 ``(..., nf)`` and their derivatives: ``ds11[i][name]``, ``ds21[i][name]`` are
+    the derivatives with respect to parameter ``name`` of ``elements[i]``, each ``(..., nf)``."""
+
+    s11: Array
+    s21: Array
+    ds11: list[dict[str, Array]]
+    ds21: list[dict[str, Array]]
+
+
+def s11_s21_gradient(
+    elements: Sequence[Element], f: ArrayLike, z_ref: float, wrt: Collection[str] | None = None
+) -> Gradient:
+    """S11, S21 and their analytic derivatives with respect to every element parameter (or
+    only the parameters whose names are in ``wrt``, e.g. ``{"length", "capacitance"}``).
+
+    Prefix row vectors (l·E_1⋯E_{i-1}, for l = [1, z_ref] and [1, -z_ref]) and suffix column
+    vectors (E_{i+1}⋯E_k·r, r = [1, 1/z_ref]) are formed once; each parameter then costs one
+    2×2 bilinear form (see the module docstring).
+    """
+    _check_elements(elements)
+    z = v.positive("z_ref", z_ref)
+    omega = _omega(f)
+    vals = [e.value(omega) for e in elements]
+    k = len(elements)
+
+    rows_p: list[tuple] = []
+    rows_m: list[tuple] = []
+    lp: tuple = (1.0, z)
+    lm: tuple = (1.0, -z)
+    for e, val in zip(elements, vals, strict=True):
+        rows_p.append(lp)
+        rows_m.append(lm)
+        lp = _row_times(lp, e.kind, val)
+        lm = _row_times(lm, e.kind, val)
+    den = lp[0] + lp[1] / z
+    num = lm[0] + lm[1] / z
+
+    cols: list[tuple] = [()] * k
+    col: tuple = (1.0, 1.0 / z)
+    for i in range(k - 1, -1, -1):
+        cols[i] = col
+        col = _times_column(elements[i].kind, vals[i], col)
+
+    shape = np.broadcast_shapes(np.shape(den), np.shape(num), omega.shape)
+    den = np.broadcast_to(np.asarray(den, dtype=complex), shape)
+    s21 = 2.0 / den
+    s11 = np.broadcast_to(np.asarray(num, dtype=complex), shape) / den
+    ds11: list[dict[str, Array]] = []
+    ds21: list[dict[str, Array]] = []
+    for i, e in enumerate(elements):
+        d11: dict[str, Array] = {}
+        d21: dict[str, Array] = {}
+        for name, de in e.derivatives(omega, wrt).items():
+            dden = _bilinear(rows_p[i], e.kind, de, cols[i])
+            dnum = _bilinear(rows_m[i], e.kind, de, cols[i])
+            d21[name] = np.broadcast_to(-s21 * dden / den, shape)
+            d11[name] = np.broadcast_to((dnum - s11 * dden) / den, shape)
+        ds11.append(d11)
+        ds21.append(d21)
+    return Gradient(s11, s21, ds11, ds21)
+
+
+def element_matrices(element: Element, f: ArrayLike) -> NDArray[np.complex128]:
+    """ABCD of one element stacked as ``(..., nf, 2, 2)`` (for export, debugging, baselines)."""
+    omega = _omega(f)
+    val = element.value(omega)
+    if element.kind is Kind.SERIES:
+        m = Abcd(1.0, val, 0.0, 1.0)
+    elif element.kind is Kind.SHUNT:
+        m = Abcd(1.0, 0.0, val, 1.0)
+    else:
+        m = val  # type: ignore[assignment]
+    shape = np.broadcast_shapes(*(np.shape(x) for x in m), omega.shape)
+    out = np.empty((*shape, 2, 2), dtype=complex)
+    out[..., 0, 0], out[..., 0, 1], out[..., 1, 0], out[..., 1, 1] = m
+    return out

@@ -1,0 +1,188 @@
+"""The ``refine`` command.
+
+Verbs
+-----
+``refine synth PROBLEM``   closed-form design only (g, J/Y0, B/Y0, C, θ) and its ideal response.
+``refine design PROBLEM``  the main job (see ``refine design --help``).
+
+Exit codes: 0 mask met; 1 completed but the mask is not met; 2 bad input (message, no traceback).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+from collections.abc import Sequence
+
+import numpy as np
+
+from . import __version__, synthesis
+from .mask import Mask, MaskResult
+from .problem import Problem, ProblemError, load_problem
+
+
+class UsageError(Exception):
+    """Bad command-line input: printed as one line, exit code 2."""
+
+
+def _table(headers: Sequence[str], rows: Sequence[Sequence[object]]) -> str:
+    cells = [[str(h) for h in headers]] + [[str(c) for c in r] for r in rows]
+    widths = [max(len(r[i]) for r in cells) for i in range(len(headers))]
+    lines = ["  ".join(c.rjust(w) for c, w in zip(r, widths, strict=True)) for r in cells]
+    lines.insert(1, "  ".join("-" * w for w in widths))
+    return "\n".join(lines)
+
+
+def electrical_design(
+    problem: Problem,
+) -> tuple[synthesis.ElectricalDesign, synthesis.OrderChoice | None]:
+    """Closed-form design for a problem, choosing the order from the stopbands when not given."""
+    choice = None
+    order = problem.order
+    if order is None:
+        choice = synthesis.select_order(
+            problem.family,
+            problem.f0,
+            problem.fbw,
+            problem.z_ref,
+            problem.mask.stopbands,
+            problem.ripple_db,
+        )
+        order = choice.order
+    d = synthesis.design(
+        problem.family, order, problem.f0, problem.fbw, problem.z_ref, problem.ripple_db
+    )
+    return d, choice
+
+
+def design_table(d: synthesis.ElectricalDesign) -> str:
+    rows = []
+    for k in range(d.order + 1):
+        theta = f"{math.degrees(d.theta[k]):.3f}" if k < d.order else ""
+        rows.append(
+            [
+                f"{k},{k + 1}",
+                f"{d.g[k + 1]:.4f}",
+                f"{d.j_norm[k]:.5f}",
+                f"{d.b_norm[k]:.5f}",
+                f"{d.capacitance[k] * 1e12:.4f}",
+                theta,
+            ]
+        )
+    return _table(["gap", "g_(k+1)", "J/Y0", "B/Y0", "C (pF)", "theta_(k+1) (deg)"], rows)
+
+
+def margins_table(res: MaskResult) -> str:
+    rows = [[name, f"{m:+.2f}", f"{res.where[name] / 1e9:.4f}"] for name, m in res.worst.items()]
+    return _table(["mask region", "worst margin (dB)", "at (GHz)"], rows)
+
+
+def ideal_check(problem: Problem, d: synthesis.ElectricalDesign, mask: Mask) -> MaskResult:
+    f = mask.sample(201, 201)
+    s = synthesis.ideal_response(d, f)
+    return mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
+
+
+def _cmd_synth(args: argparse.Namespace) -> int:
+    problem = load_problem(args.problem)
+    d, choice = electrical_design(problem)
+    res = ideal_check(problem, d, problem.mask)
+    if args.json:
+        out = {
+            "problem": problem.name,
+            "family": d.family,
+            "order": d.order,
+            "ripple_db": d.ripple_db,
+            "f0_hz": d.f0,
+            "fbw": d.fbw,
+            "z_ref_ohm": d.z_ref,
+            "g": list(d.g),
+            "j_norm": list(d.j_norm),
+            "b_norm": list(d.b_norm),
+            "capacitance_f": list(d.capacitance),
+            "theta_rad": list(d.theta),
+            "ideal_margins_db": res.worst,
+            "ideal_mask_met": res.passed,
+            "order_notes": list(choice.notes) if choice else [],
+        }
+        print(json.dumps(out, indent=2))
+        return 0
+    print(
+        f"{problem.name}: {d.family} N={d.order}"
+        + (f", {d.ripple_db:g} dB ripple" if d.ripple_db else "")
+        + f", f0 = {d.f0 / 1e9:.6g} GHz, FBW = {d.fbw * 100:.4g} %, z_ref = {d.z_ref:g} ohm"
+    )
+    if choice:
+        print(
+            f"order chosen from the stopbands: N = {choice.order} (half-wave mapping alone: "
+            f"{choice.mapping_order})"
+        )
+        for note in choice.notes:
+            print(f"  note: {note}")
+    print()
+    print(design_table(d))
+    print()
+    print("closed-form design on ideal elements against the mask:")
+    print(margins_table(res))
+    print(f"mask {'met' if res.passed else 'NOT met'} by the closed-form seed on ideal elements")
+    return 0
+
+
+def _cmd_design(args: argparse.Namespace) -> int:
+    problem = load_problem(args.problem)
+    d, choice = electrical_design(problem)
+    res = ideal_check(problem, d, problem.mask)
+    print(f"{problem.name}: closed-form seed, N={d.order}")
+    if choice:
+        for note in choice.notes:
+            print(f"  note: {note}")
+    print(design_table(d))
+    print()
+    print(margins_table(res))
+    met = res.passed
+    print(f"status: mask {'met' if met else 'not met'}")
+    return 0 if met else 1
+
+
+def build_parser() -> argparse.ArgumentParser:
+    ap = argparse.ArgumentParser(
+        prog="refine",
+        description="Design end-coupled (series-gap) half-wave line bandpass filters that meet a "
+        "ripple/rejection mask under a shop's fab rules.",
+    )
+    ap.add_argument("--version", action="version", version=f"refine {__version__}")
+    sub = ap.add_subparsers(dest="verb", required=True, metavar="VERB")
+    p = sub.add_parser(
+        "synth",
+        help="closed-form inverter design only",
+        description="Closed-form admittance-inverter design of the problem: g, J/Y0, "
+        "B/Y0, C and theta, and how its ideal-element response meets the mask.",
+    )
+    p.add_argument("problem", help="problem file (TOML)")
+    p.add_argument("--json", action="store_true", help="machine-readable output")
+    p.set_defaults(run=_cmd_synth)
+    p = sub.add_parser(
+        "design",
+        help="the main job: seed, check, report",
+        description="Run the design path on a problem file and print the summary.",
+    )
+    p.add_argument("problem", help="problem file (TOML)")
+    p.set_defaults(run=_cmd_design)
+    return ap
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    ap = build_parser()
+    args = ap.parse_args(argv)
+    try:
+        return int(args.run(args))
+    except (ProblemError, UsageError, ValueError) as e:
+        print(f"refine: error: {e}", file=sys.stderr)
+        return 2
+
+
+if __name__ == "__main__":
+    np.seterr(all="ignore")
+    sys.exit(main())

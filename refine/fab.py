@@ -1,0 +1,37 @@
+"""Fabrication rules of a shop: the hard limits a returned layout must obey."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from . import _validate as v
+
+
+@dataclass(frozen=True)
+class FabRules:
+    """Shop rules, all lengths in metres.
+
+    min_gap : smallest etchable gap (> 0).
+    min_width : narrowest etchable strip, or None for no rule.
+    grid : dimension grid the shop draws on, or None.
+    gap_tolerance, width_tolerance : 1-sigma etch tolerances, or None (used for yield).
+    max_total_length : longest allowed filter (end to end), or None.
+    """
+
+    min_gap: float
+    min_width: float | None = None
+    grid: float | None = None
+    gap_tolerance: float | None = None
+    width_tolerance: float | None = None
+    max_total_length: float | None = None
+
+    def __post_init__(self) -> None:
+        v.positive("fab.min_gap", self.min_gap)
+        for name in ("min_width", "grid", "max_total_length"):
+            val = getattr(self, name)
+            if val is not None:
+                v.positive(f"fab.{name}", val)
+        for name in ("gap_tolerance", "width_tolerance"):
+            val = getattr(self, name)
+            if val is not None:
+                v.real_in_range(f"fab.{name}", val, 0.0, None)

@@ -1,0 +1,394 @@
+"""Problem files: TOML in, validated frozen dataclasses out.
+
+Units are strings parsed once, here, with pint ("10.5 GHz", "0.635 mm", "25 um", "4.1e7 S/m");
+everything past this module is SI. Every rejection raises :class:`ProblemError` naming the file,
+the key, the value and what is allowed.
+
+Schema (keys marked * are required)::
+
+    name = "free text"                       *
+    [response]                               *
+    family = "chebyshev" | "butterworth"     *
+    ripple_db = 0.1                          (chebyshev only; required for it)
+    order = 5                                (1..15; optional when [[mask.stopband]] is given)
+    center = "10.5 GHz"                      *
+    bandwidth = "300 MHz" | fractional_bandwidth = 0.0286     * (exactly one)
+    z_ref = "50 ohm"                         *
+    [medium]                                 *
+    kind = "microstrip" | "stripline" | "ideal"               *
+    eps_r, height                            * for microstrip and stripline
+    metal_thickness, loss_tangent, conductivity, roughness    optional
+    [fab]                                    * for microstrip and stripline
+    min_gap *, min_width, grid, gap_tolerance, width_tolerance, max_total_length
+    [coupling]  external = "gap" | "tap"     (default "gap")
+    [models]    gap = "garg-bahl" | "kirschning-jansen-koster"   (default "garg-bahl")
+    [mask]                                   *
+    passband_return_loss_db, passband_ripple_db, midband_insertion_loss_db   (at least one)
+    [[mask.stopband]]  start, stop, rejection_db
+"""
+
+from __future__ import annotations
+
+import math
+import re
+import tomllib
+from dataclasses import dataclass
+from functools import lru_cache
+from pathlib import Path
+from typing import Any
+
+from . import prototype
+from .fab import FabRules
+from .mask import Mask, Stopband
+from .media.substrate import Substrate
+
+MEDIUM_KINDS = ("microstrip", "stripline", "ideal")
+EXTERNAL_KINDS = ("gap", "tap")
+GAP_MODELS = ("garg-bahl", "kirschning-jansen-koster")
+
+
+class ProblemError(ValueError):
+    """A problem file that cannot be used; the message names file, key, value and range."""
+
+
+@dataclass(frozen=True)
+class Problem:
+    """A design problem: spec, medium, fab rules, coupling kind and mask (SI units)."""
+
+    name: str
+    family: str
+    ripple_db: float | None
+    order: int | None
+    f0: float
+    fbw: float
+    z_ref: float
+    medium: str
+    substrate: Substrate | None
+    fab: FabRules | None
+    external: str
+    gap_model: str
+    mask: Mask
+    source: str = "<memory>"
+
+    @property
+    def band_edges(self) -> tuple[float, float]:
+        """Specified passband edges f0 (1 ∓ FBW/2) in Hz."""
+        return self.f0 * (1.0 - self.fbw / 2.0), self.f0 * (1.0 + self.fbw / 2.0)
+
+
+@lru_cache(maxsize=1)
+def _ureg():  # pint's registry is slow to build; build it once, on first use
+    import pint
+
+    return pint.UnitRegistry()
+
+
+_SI = {"frequency": "Hz", "length": "m", "impedance": "ohm", "conductivity": "S/m"}
+
+
+class _Reader:
+    def __init__(self, source: str):
+        self.source = source
+
+    def fail(self, key: str, value: object, why: str) -> ProblemError:
+        return ProblemError(f"{self.source}: {key} = {value!r}: {why}")
+
+    def table(self, data: dict, key: str, allowed: set[str], required: bool = True) -> dict:
+        if key not in data:
+            if required:
+                raise ProblemError(f"{self.source}: missing required table [{key}]")
+            return {}
+        t = data[key]
+        if not isinstance(t, dict):
+            raise self.fail(key, t, "must be a table")
+        for k in t:
+            if k not in allowed:
+                raise self.fail(
+                    f"{key}.{k}",
+                    t[k],
+                    f"unknown key; allowed keys are {', '.join(sorted(allowed))}",
+                )
+        return t
+
+    def number(
+        self,
+        t: dict,
+        prefix: str,
+        key: str,
+        lo: float | None,
+        hi: float | None,
+        *,
+        lo_open: bool = False,
+        hi_open: bool = False,
+        required: bool = False,
+        default: float | None = None,
+    ) -> float | None:
+        full = f"{prefix}.{key}"
+        if key not in t:
+            if required:
+                raise ProblemError(f"{self.source}: missing required key {full}")
+            return default
+        x = t[key]
+        if isinstance(x, bool) or not isinstance(x, (int, float)):
+            raise self.fail(full, x, "must be a number")
+        return self._range(full, x, float(x), lo, hi, lo_open, hi_open, "")
+
+    def _range(
+        self, full: str, raw: object, x: float, lo, hi, lo_open, hi_open, unit: str
+    ) -> float:
+        if not math.isfinite(x):
+            raise self.fail(full, raw, "must be finite")
+        bad = (lo is not None and (x <= lo if lo_open else x < lo)) or (
+            hi is not None and (x >= hi if hi_open else x > hi)
+        )
+        if bad:
+            left = "(" if lo_open or lo is None else "["
+            right = ")" if hi_open or hi is None else "]"
+            lo_s = "-inf" if lo is None else f"{lo:g}"
+            hi_s = "inf" if hi is None else f"{hi:g}"
+            u = f" {unit}" if unit else ""
+            raise self.fail(full, raw, f"outside the allowed range {left}{lo_s}, {hi_s}{right}{u}")
+        return x
+
+    def quantity(
+        self,
+        t: dict,
+        prefix: str,
+        key: str,
+        kind: str,
+        lo: float | None,
+        hi: float | None,
+        *,
+        lo_open: bool = False,
+        hi_open: bool = False,
+        required: bool = False,
+    ) -> float | None:
+        """A string with units, converted to SI; range limits are in SI units."""
+        full = f"{prefix}.{key}"
+        if key not in t:
+            if required:
+                raise ProblemError(f"{self.source}: missing required key {full}")
+            return None
+        raw = t[key]
+        if not isinstance(raw, str):
+            raise self.fail(
+                full, raw, f'must be a string with a unit of {kind}, e.g. "1 {_SI[kind]}"'
+            )
+        import pint
+
+        ureg = _ureg()
+        # The trade's "mil" is a thousandth of an inch; pint reads "mil" as a plain ratio.
+        text = re.sub(r"\bmils?\b", "thou", raw)
+        try:
+            q = ureg.Quantity(text)
+        except (pint.errors.PintError, ValueError, TypeError, AttributeError, SyntaxError):
+            raise self.fail(
+                full, raw, f"cannot be read as a quantity with a unit of {kind}"
+            ) from None
+        if (
+            isinstance(q, (int, float))
+            or q.dimensionality != ureg.Quantity(1, _SI[kind]).dimensionality
+        ):
+            raise self.fail(full, raw, f"must have a unit of {kind} (like {_SI[kind]})")
+        x = float(q.to(_SI[kind]).magnitude)
+        return self._range(full, raw, x, lo, hi, lo_open, hi_open, _SI[kind])
+
+    def choice(
+        self, t: dict, prefix: str, key: str, allowed: tuple[str, ...], default: str | None = None
+    ) -> str:
+        full = f"{prefix}.{key}"
+        if key not in t:
+            if default is None:
+                raise ProblemError(f"{self.source}: missing required key {full}")
+            return default
+        x = t[key]
+        if x not in allowed:
+            raise self.fail(full, x, f"must be one of {', '.join(repr(a) for a in allowed)}")
+        return str(x)
+
+
+def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
+    """Validate a problem given as a dict (the parsed TOML) and return a :class:`Problem`."""
+    r = _Reader(source)
+    top = {"name", "response", "medium", "fab", "coupling", "models", "mask"}
+    for k in data:
+        if k not in top:
+            raise r.fail(k, data[k], f"unknown key; allowed keys are {', '.join(sorted(top))}")
+    name = data.get("name")
+    if not isinstance(name, str) or not name.strip():
+        raise r.fail("name", name, "must be a non-empty string")
+
+    resp = r.table(
+        data,
+        "response",
+        {"family", "ripple_db", "order", "center", "bandwidth", "fractional_bandwidth", "z_ref"},
+    )
+    family = r.choice(resp, "response", "family", prototype.FAMILIES)
+    if family == "chebyshev":
+        ripple = r.number(resp, "response", "ripple_db", 0.0, 10.0, lo_open=True, required=True)
+    else:
+        if "ripple_db" in resp:
+            raise r.fail(
+                "response.ripple_db",
+                resp["ripple_db"],
+                "only applies to family 'chebyshev' (butterworth is 3.0103 dB)",
+            )
+        ripple = None
+    order = None
+    if "order" in resp:
+        o = resp["order"]
+        if isinstance(o, bool) or not isinstance(o, int) or not 1 <= o <= prototype.MAX_ORDER:
+            raise r.fail("response.order", o, f"must be an integer in 1..{prototype.MAX_ORDER}")
+        order = int(o)
+    f0 = r.quantity(resp, "response", "center", "frequency", 0.0, None, lo_open=True, required=True)
+    has_bw, has_fbw = "bandwidth" in resp, "fractional_bandwidth" in resp
+    if has_bw == has_fbw:
+        raise ProblemError(
+            f"{source}: [response] needs exactly one of bandwidth or fractional_bandwidth"
+        )
+    if has_bw:
+        bw = r.quantity(resp, "response", "bandwidth", "frequency", 0.0, None, lo_open=True)
+        if bw >= f0:
+            raise r.fail(
+                "response.bandwidth",
+                resp["bandwidth"],
+                f"must be below the centre frequency {f0:g} Hz (allowed range (0, {f0:g}) Hz)",
+            )
+        fbw = bw / f0
+    else:
+        fbw = r.number(
+            resp, "response", "fractional_bandwidth", 0.0, 1.0, lo_open=True, hi_open=True
+        )
+    z_ref = r.quantity(resp, "response", "z_ref", "impedance", 1.0, 1000.0, required=True)
+
+    med = r.table(
+        data,
+        "medium",
+        {"kind", "eps_r", "height", "metal_thickness", "loss_tangent", "conductivity", "roughness"},
+    )
+    kind = r.choice(med, "medium", "kind", MEDIUM_KINDS)
+    substrate = None
+    fab = None
+    if kind == "ideal":
+        extra = set(med) - {"kind"}
+        if extra:
+            k = sorted(extra)[0]
+            raise r.fail(f"medium.{k}", med[k], "does not apply to medium kind 'ideal'")
+        if "fab" in data:
+            raise r.fail("fab", data["fab"], "does not apply to medium kind 'ideal'")
+    else:
+        eps_r = r.number(med, "medium", "eps_r", 1.0, 100.0, required=True)
+        h = r.quantity(med, "medium", "height", "length", 0.0, 0.1, lo_open=True, required=True)
+        t = r.quantity(med, "medium", "metal_thickness", "length", 0.0, h / 4.0) or 0.0
+        tand = r.number(med, "medium", "loss_tangent", 0.0, 0.1, hi_open=True, default=0.0)
+        sigma = r.quantity(med, "medium", "conductivity", "conductivity", 0.0, None, lo_open=True)
+        rough = r.quantity(med, "medium", "roughness", "length", 0.0, h) or 0.0
+        substrate = Substrate(eps_r, h, t, tand, sigma, rough)
+        fab_t = r.table(
+            data,
+            "fab",
+            {
+                "min_gap",
+                "min_width",
+                "grid",
+                "gap_tolerance",
+                "width_tolerance",
+                "max_total_length",
+            },
+        )
+        lengths = {}
+        for key, lo, lo_open in (
+            ("min_gap", 0.0, True),
+            ("min_width", 0.0, True),
+            ("grid", 0.0, True),
+            ("gap_tolerance", 0.0, False),
+            ("width_tolerance", 0.0, False),
+            ("max_total_length", 0.0, True),
+        ):
+            lengths[key] = r.quantity(
+                fab_t, "fab", key, "length", lo, 1.0, lo_open=lo_open, required=key == "min_gap"
+            )
+        fab = FabRules(**lengths)
+
+    coup = r.table(data, "coupling", {"external"}, required=False)
+    external = r.choice(coup, "coupling", "external", EXTERNAL_KINDS, default="gap")
+    if kind == "ideal" and external == "tap":
+        raise r.fail(
+            "coupling.external", "tap", "tapped coupling needs a strip medium, not 'ideal'"
+        )
+    models = r.table(data, "models", {"gap"}, required=False)
+    gap_model = r.choice(models, "models", "gap", GAP_MODELS, default="garg-bahl")
+
+    mask_t = r.table(
+        data,
+        "mask",
+        {"passband_return_loss_db", "passband_ripple_db", "midband_insertion_loss_db", "stopband"},
+    )
+    rl = r.number(mask_t, "mask", "passband_return_loss_db", 0.0, 60.0, lo_open=True)
+    rip = r.number(mask_t, "mask", "passband_ripple_db", 0.0, 10.0, lo_open=True)
+    il = r.number(mask_t, "mask", "midband_insertion_loss_db", 0.0, 60.0, lo_open=True)
+    if rl is None and rip is None and il is None:
+        raise ProblemError(
+            f"{source}: [mask] needs at least one of passband_return_loss_db, "
+            "passband_ripple_db or midband_insertion_loss_db"
+        )
+    lo_edge, hi_edge = f0 * (1 - fbw / 2), f0 * (1 + fbw / 2)
+    stopbands = []
+    raw_sbs = mask_t.get("stopband", [])
+    if not isinstance(raw_sbs, list):
+        raise r.fail("mask.stopband", raw_sbs, "must be an array of tables ([[mask.stopband]])")
+    for i, sb in enumerate(raw_sbs):
+        pre = f"mask.stopband[{i}]"
+        if not isinstance(sb, dict):
+            raise r.fail(pre, sb, "must be a table")
+        for k in sb:
+            if k not in {"start", "stop", "rejection_db"}:
+                raise r.fail(
+                    f"{pre}.{k}", sb[k], "unknown key; allowed keys are rejection_db, start, stop"
+                )
+        start = r.quantity(sb, pre, "start", "frequency", 0.0, None, required=True)
+        stop = r.quantity(sb, pre, "stop", "frequency", start, None, lo_open=True, required=True)
+        rej = r.number(sb, pre, "rejection_db", 0.0, 200.0, lo_open=True, required=True)
+        if start < hi_edge and stop > lo_edge:
+            raise r.fail(
+                f"{pre}",
+                f"{sb['start']} .. {sb['stop']}",
+                f"overlaps the passband {lo_edge / 1e9:.6g}-{hi_edge / 1e9:.6g} GHz",
+            )
+        stopbands.append(Stopband(start, stop, rej))
+    if order is None and not stopbands:
+        raise ProblemError(
+            f"{source}: response.order is missing and there is no [[mask.stopband]] "
+            "to choose it from; give one of them"
+        )
+    mask = Mask(lo_edge, hi_edge, rl, rip, il, tuple(stopbands))
+    return Problem(
+        name.strip(),
+        family,
+        ripple,
+        order,
+        f0,
+        fbw,
+        z_ref,
+        kind,
+        substrate,
+        fab,
+        external,
+        gap_model,
+        mask,
+        source,
+    )
+
+
+def load_problem(path: str | Path) -> Problem:
+    """Read and validate a TOML problem file (see the module docstring for the schema)."""
+    p = Path(path)
+    try:
+        text = p.read_text(encoding="utf-8")
+    except OSError as e:
+        raise ProblemError(f"{p}: cannot be read ({e.strerror})") from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as e:
+        raise ProblemError(f"{p}: is not valid TOML ({e})") from None
+    return parse_problem(data, str(p))

@@ -1,0 +1,37 @@
+"""The refine command: verbs run on bundled problems; bad input exits 2 with a message."""
+
+import json
+from pathlib import Path
+
+import pytest
+
+from refine.cli import main
+
+ROOT = Path(__file__).parent.parent
+
+
+def test_synth_json(capsys):
+    assert main(["synth", str(ROOT / "problems/ideal-s-band-n5.toml"), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["order"] == 5 and len(out["capacitance_f"]) == 6 and len(out["theta_rad"]) == 5
+
+
+def test_synth_table(capsys):
+    assert main(["synth", str(ROOT / "problems/ideal-s-band-n5.toml")]) == 0
+    out = capsys.readouterr().out
+    assert "J/Y0" in out and "passband return loss" in out
+
+
+def test_bad_problem_exits_2_without_traceback(tmp_path, capsys):
+    p = tmp_path / "p.toml"
+    p.write_text('name = "x"\n[response]\nfamily = "elliptic"\n')
+    assert main(["synth", str(p)]) == 2
+    err = capsys.readouterr().err
+    assert "response.family = 'elliptic'" in err and "Traceback" not in err
+
+
+def test_help_for_every_verb(capsys):
+    for verb in ("synth", "design"):
+        with pytest.raises(SystemExit) as exc:
+            main([verb, "--help"])
+        assert exc.value.code == 0
