@@ -82,31 +82,87 @@ _DELETE = object()
 @pytest.mark.parametrize(
     ("key", "value", "message"),
     [
-        ("response.center", "10.5 mm", "x.toml: response.center = '10.5 mm': must have a unit of frequency (like Hz)"),
-        ("response.center", "-1 GHz", "x.toml: response.center = '-1 GHz': outside the allowed range (0, inf) Hz"),
-        ("response.center", 10.5e9, "response.center = 10500000000.0: must be a string with a unit of frequency"),
-        ("response.bandwidth", "11 GHz", "response.bandwidth = '11 GHz': must be below the centre frequency"),
+        (
+            "response.center",
+            "10.5 mm",
+            "x.toml: response.center = '10.5 mm': must have a unit of frequency (like Hz)",
+        ),
+        (
+            "response.center",
+            "-1 GHz",
+            "x.toml: response.center = '-1 GHz': outside the allowed range (0, inf) Hz",
+        ),
+        (
+            "response.center",
+            10.5e9,
+            "response.center = 10500000000.0: must be a string with a unit of frequency",
+        ),
+        (
+            "response.bandwidth",
+            "11 GHz",
+            "response.bandwidth = '11 GHz': must be below the centre frequency",
+        ),
         ("response.order", 0, "response.order = 0: must be an integer in 1..15"),
         ("response.order", 16, "response.order = 16: must be an integer in 1..15"),
-        ("response.ripple_db", -0.1, "response.ripple_db = -0.1: outside the allowed range (0, 10]"),
+        (
+            "response.ripple_db",
+            -0.1,
+            "response.ripple_db = -0.1: outside the allowed range (0, 10]",
+        ),
         ("response.ripple_db", float("nan"), "response.ripple_db = nan: must be finite"),
-        ("response.family", "elliptic", "response.family = 'elliptic': must be one of 'chebyshev', 'butterworth'"),
+        (
+            "response.family",
+            "elliptic",
+            "response.family = 'elliptic': must be one of 'chebyshev', 'butterworth'",
+        ),
         ("response.colour", "red", "response.colour = 'red': unknown key"),
         ("response.z_ref", "50", "response.z_ref = '50': must have a unit of impedance"),
-        ("medium.kind", "coax", "medium.kind = 'coax': must be one of 'microstrip', 'stripline', 'ideal'"),
+        (
+            "medium.kind",
+            "coax",
+            "medium.kind = 'coax': must be one of 'microstrip', 'stripline', 'ideal'",
+        ),
         ("medium.eps_r", 0.5, "medium.eps_r = 0.5: outside the allowed range [1, 100]"),
         ("medium.height", "0 mm", "medium.height = '0 mm': outside the allowed range (0, 0.1] m"),
-        ("medium.loss_tangent", -1e-3, "medium.loss_tangent = -0.001: outside the allowed range [0, 0.1)"),
-        ("medium.metal_thickness", "0.2 mm", "medium.metal_thickness = '0.2 mm': outside the allowed range [0, 0.00015875] m"),
-        ("medium.conductivity", "5 ohm", "medium.conductivity = '5 ohm': must have a unit of conductivity"),
+        (
+            "medium.loss_tangent",
+            -1e-3,
+            "medium.loss_tangent = -0.001: outside the allowed range [0, 0.1)",
+        ),
+        (
+            "medium.metal_thickness",
+            "0.2 mm",
+            "medium.metal_thickness = '0.2 mm': outside the allowed range [0, 0.00015875] m",
+        ),
+        (
+            "medium.conductivity",
+            "5 ohm",
+            "medium.conductivity = '5 ohm': must have a unit of conductivity",
+        ),
         ("fab.min_gap", "-5 um", "fab.min_gap = '-5 um': outside the allowed range (0, 1] m"),
         ("fab.min_gap", _DELETE, "missing required key fab.min_gap"),
         ("coupling.external", "probe", "coupling.external = 'probe': must be one of 'gap', 'tap'"),
         ("models.gap", "mine", "models.gap = 'mine': must be one of"),
-        ("mask.passband_return_loss_db", 0, "mask.passband_return_loss_db = 0: outside the allowed range (0, 60]"),
-        ("mask.stopband", [{"start": "10 GHz", "stop": "10.6 GHz", "rejection_db": 30}], "overlaps the passband 10.35-10.65 GHz"),
-        ("mask.stopband", [{"start": "12 GHz", "stop": "11 GHz", "rejection_db": 30}], "mask.stopband[0].stop = '11 GHz': outside the allowed range (1.2e+10, inf) Hz"),
-        ("mask.stopband", [{"start": "12 GHz", "stop": "13 GHz"}], "missing required key mask.stopband[0].rejection_db"),
+        (
+            "mask.passband_return_loss_db",
+            0,
+            "mask.passband_return_loss_db = 0: outside the allowed range (0, 60]",
+        ),
+        (
+            "mask.stopband",
+            [{"start": "10 GHz", "stop": "10.6 GHz", "rejection_db": 30}],
+            "overlaps the passband 10.35-10.65 GHz",
+        ),
+        (
+            "mask.stopband",
+            [{"start": "12 GHz", "stop": "11 GHz", "rejection_db": 30}],
+            "mask.stopband[0].stop = '11 GHz': outside the allowed range (1.2e+10, inf) Hz",
+        ),
+        (
+            "mask.stopband",
+            [{"start": "12 GHz", "stop": "13 GHz"}],
+            "missing required key mask.stopband[0].rejection_db",
+        ),
         ("mask.stopband", "none", "mask.stopband = 'none': must be an array of tables"),
     ],
 )
@@ -125,12 +181,14 @@ def test_missing_tables_and_exclusive_keys():
         parse_problem(d, "x.toml")
     d = copy.deepcopy(BASE)
     d["response"]["fractional_bandwidth"] = 0.03
-    with pytest.raises(ProblemError, match="needs exactly one of bandwidth or fractional_bandwidth"):
+    with pytest.raises(
+        ProblemError, match="needs exactly one of bandwidth or fractional_bandwidth"
+    ):
         parse_problem(d, "x.toml")
     d = copy.deepcopy(BASE)
     del d["response"]["order"]
     d["mask"]["stopband"] = []
-    with pytest.raises(ProblemError, match="response.order is missing and there is no"):
+    with pytest.raises(ProblemError, match=r"response\.order is missing and there is no"):
         parse_problem(d, "x.toml")
 
 
