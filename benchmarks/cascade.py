@@ -6,7 +6,8 @@
 Compares, for end-coupled filters at 1001 frequency points:
   * refine's fused cascade (elements -> S),
   * the same elements as stacked (nf, 2, 2) matrices chained with np.matmul,
-  * the same chain assembled from scikit-rf networks (one Network per element, ``**``);
+  * the same chain assembled from scikit-rf networks (one Network per element, ``**``),
+    for ideal elements and for lossy, dispersive microstrip layouts (scikit-rf's MLine);
 and reports batched evaluation of 1000 designs and the cost of the analytic gradient.
 Prints median wall times and ratios. Nothing here is asserted: the figures go in the README.
 """
@@ -24,6 +25,11 @@ import numpy as np
 from scipy.constants import c as C0
 
 from refine import cascade, synthesis
+from refine.circuit import layout_response
+from refine.discontinuities import garg_bahl_gap
+from refine.media.microstrip import Microstrip
+from refine.media.substrate import Substrate
+from refine.realise import realise
 
 
 def median_time(fn: Callable[[], object], repeats: int, inner: int = 1) -> float:
@@ -90,6 +96,77 @@ def ideal_section(repeats: int) -> list[str]:
     return rows
 
 
+def _microstrip_layout(n: int):
+    """A realised N-resonator X-band layout on lossy thin-film alumina (our own scenario)."""
+    sub = Substrate(9.8, 0.635e-3, 4e-6, 1e-4, 4.1e7, 0.05e-6)
+    med = Microstrip(sub)
+    d = synthesis.design("chebyshev", n, 10e9, 0.03, 50.0, 0.1)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return sub, med, realise(d, med, None, "garg-bahl").layout
+
+
+def skrf_microstrip_chain(sub, lay, f):
+    from skrf import Frequency
+    from skrf.media import DefinedGammaZ0, MLine
+
+    freq = Frequency.from_f(f, unit="Hz")
+    ms = MLine(
+        frequency=freq,
+        z0_port=50,
+        w=lay.widths[0],
+        h=sub.height,
+        t=sub.metal_thickness,
+        ep_r=sub.eps_r,
+        rho=1 / sub.conductivity,
+        tand=sub.loss_tangent,
+        rough=sub.roughness,
+        diel="frequencyinvariant",
+    )
+    lumped = DefinedGammaZ0(frequency=freq, z0=50)
+    h, er, w = sub.height, sub.eps_r, lay.widths[0]
+    ntw = None
+    for k, gap in enumerate(lay.gaps):
+        c = garg_bahl_gap(w, gap, h, er)
+        pi = (
+            lumped.shunt_capacitor(float(c.c_shunt_in))
+            ** lumped.capacitor(float(c.c_series))
+            ** lumped.shunt_capacitor(float(c.c_shunt_out))
+        )
+        ntw = pi if ntw is None else ntw**pi
+        if k < lay.order:
+            ntw = ntw ** ms.line(lay.lengths[k], unit="m")
+    return ntw.s
+
+
+def microstrip_section(repeats: int) -> list[str]:
+    f = np.linspace(2e9, 22e9, 1001)
+    rows = [
+        "",
+        "microstrip layouts (HJ + KJ/JK dispersion, conductor and dielectric loss), 1001 points",
+        f"{'case':<10}{'refine':>12}{'scikit-rf':>12}{'vs skrf':>10}",
+    ]
+    for n in (5, 9):
+        sub, med, lay = _microstrip_layout(n)
+
+        def ours(med=med, lay=lay):
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                return layout_response(lay, med, "garg-bahl", f, 50.0)
+
+        def theirs(sub=sub, lay=lay):
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                return skrf_microstrip_chain(sub, lay, f)
+
+        t_ours = median_time(ours, repeats, 5)
+        t_skrf = median_time(theirs, max(3, repeats // 3))
+        rows.append(
+            f"{'N=' + str(n):<10}{t_ours * 1e3:>10.2f}ms{t_skrf * 1e3:>10.1f}ms{t_skrf / t_ours:>9.0f}x"
+        )
+    return rows
+
+
 def batch_and_gradient_section(repeats: int) -> list[str]:
     f = np.linspace(0.5e9, 5e9, 1001)
     d = synthesis.design("chebyshev", 5, 2e9, 0.1, 50.0, 0.1)
@@ -128,7 +205,9 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--quick", action="store_true", help="fewer repeats")
     args = ap.parse_args(argv)
     repeats = 5 if args.quick else 15
-    rows = ideal_section(repeats) + batch_and_gradient_section(repeats)
+    rows = (
+        ideal_section(repeats) + microstrip_section(repeats) + batch_and_gradient_section(repeats)
+    )
     print("\n".join(rows))
     return 0
 

@@ -18,9 +18,9 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from . import __version__, synthesis
-from .mask import Mask, MaskResult
-from .problem import Problem, ProblemError, load_problem
+from . import __version__, job, synthesis
+from .mask import MaskResult
+from .problem import ProblemError, load_problem
 
 
 class UsageError(Exception):
@@ -33,28 +33,6 @@ def _table(headers: Sequence[str], rows: Sequence[Sequence[object]]) -> str:
     lines = ["  ".join(c.rjust(w) for c, w in zip(r, widths, strict=True)) for r in cells]
     lines.insert(1, "  ".join("-" * w for w in widths))
     return "\n".join(lines)
-
-
-def electrical_design(
-    problem: Problem,
-) -> tuple[synthesis.ElectricalDesign, synthesis.OrderChoice | None]:
-    """Closed-form design for a problem, choosing the order from the stopbands when not given."""
-    choice = None
-    order = problem.order
-    if order is None:
-        choice = synthesis.select_order(
-            problem.family,
-            problem.f0,
-            problem.fbw,
-            problem.z_ref,
-            problem.mask.stopbands,
-            problem.ripple_db,
-        )
-        order = choice.order
-    d = synthesis.design(
-        problem.family, order, problem.f0, problem.fbw, problem.z_ref, problem.ripple_db
-    )
-    return d, choice
 
 
 def design_table(d: synthesis.ElectricalDesign) -> str:
@@ -79,16 +57,87 @@ def margins_table(res: MaskResult) -> str:
     return _table(["mask region", "worst margin (dB)", "at (GHz)"], rows)
 
 
-def ideal_check(problem: Problem, d: synthesis.ElectricalDesign, mask: Mask) -> MaskResult:
-    f = mask.sample(201, 201)
-    s = synthesis.ideal_response(d, f)
-    return mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
+def layout_table(seed: job.Seed) -> str:
+    real = seed.realisation
+    lay = real.layout
+    rows = []
+    for k, g in enumerate(real.gaps):
+        req = "none works" if g.gap_required is None else f"{g.gap_required * 1e6:.1f}"
+        short = f"{100 * g.coupling_shortfall:.0f} %" if g.limited else ""
+        rows.append(
+            [
+                f"gap {k}",
+                f"{g.gap * 1e6:.1f}",
+                req,
+                f"{g.j_target:.4f}",
+                f"{g.j_achieved:.4f}",
+                short,
+            ]
+        )
+        if k < lay.order:
+            rows.append(
+                [
+                    f"resonator {k + 1}",
+                    f"L {lay.lengths[k] * 1e3:.4f} mm",
+                    f"W {lay.widths[k] * 1e6:.1f}",
+                    "",
+                    "",
+                    "",
+                ]
+            )
+    return _table(
+        ["element", "used (um)", "required (um)", "J/Y0 designed", "J/Y0 achieved", "shortfall"],
+        rows,
+    )
+
+
+def _print_seed(sd: job.Seed) -> None:
+    p, d = sd.problem, sd.design
+    print(
+        f"{p.name}: {d.family} N={d.order}"
+        + (f", {d.ripple_db:g} dB ripple" if d.ripple_db else "")
+        + f", f0 = {d.f0 / 1e9:.6g} GHz, FBW = {d.fbw * 100:.4g} %, z_ref = {d.z_ref:g} ohm, "
+        f"medium {p.medium}"
+    )
+    if sd.order_choice:
+        print(
+            f"order chosen from the stopbands: N = {sd.order_choice.order} (half-wave mapping "
+            f"alone: {sd.order_choice.mapping_order})"
+        )
+        for note in sd.order_choice.notes:
+            print(f"  note: {note}")
+    print()
+    print(design_table(d))
+    if sd.realisation is not None:
+        lay = sd.realisation.layout
+        print()
+        print(
+            f"realised seed ({p.gap_model} gaps), feed width {lay.feed_width * 1e6:.1f} um, "
+            f"total length {lay.total_length * 1e3:.3f} mm:"
+        )
+        print(layout_table(sd))
+        for note in sd.realisation.notes:
+            print(f"  fab: {note}")
+    print()
+    where = "physical model with loss" if sd.realisation is not None else "ideal elements"
+    print(f"closed-form seed on the {where}, against the mask ({sd.f.size} points):")
+    print(margins_table(sd.check))
+    if sd.spread:
+        print()
+        print("gap-model spread (same layout, worst margin in dB per region):")
+        names = list(sd.check.worst)
+        rows = [[m, *(f"{r.worst[n]:+.2f}" for n in names)] for m, r in sd.spread.items()]
+        print(_table(["gap model", *names], rows))
+    for w in sd.warnings:
+        print(f"  model range: {w}")
 
 
 def _cmd_synth(args: argparse.Namespace) -> int:
     problem = load_problem(args.problem)
-    d, choice = electrical_design(problem)
-    res = ideal_check(problem, d, problem.mask)
+    d, choice = job.electrical_design(problem)
+    f = job.verification_grid(problem)
+    s = synthesis.ideal_response(d, f)
+    res = problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
     if args.json:
         out = {
             "problem": problem.name,
@@ -132,17 +181,10 @@ def _cmd_synth(args: argparse.Namespace) -> int:
 
 def _cmd_design(args: argparse.Namespace) -> int:
     problem = load_problem(args.problem)
-    d, choice = electrical_design(problem)
-    res = ideal_check(problem, d, problem.mask)
-    print(f"{problem.name}: closed-form seed, N={d.order}")
-    if choice:
-        for note in choice.notes:
-            print(f"  note: {note}")
-    print(design_table(d))
-    print()
-    print(margins_table(res))
-    met = res.passed
-    print(f"status: mask {'met' if met else 'not met'}")
+    sd = job.seed(problem)
+    _print_seed(sd)
+    met = sd.check.passed
+    print(f"status: mask {'met' if met else 'not met'} by the closed-form seed")
     return 0 if met else 1
 
 

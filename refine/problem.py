@@ -21,7 +21,8 @@ Schema (keys marked * are required)::
     [fab]                                    * for microstrip and stripline
     min_gap *, min_width, grid, gap_tolerance, width_tolerance, max_total_length
     [coupling]  external = "gap" | "tap"     (default "gap")
-    [models]    gap = "garg-bahl" | "kirschning-jansen-koster"   (default "garg-bahl")
+    [models]    gap = microstrip: "garg-bahl" (default) | "kirschning-jansen-koster";
+                      stripline: "altschuler-oliner" (default); not for "ideal"
     [mask]                                   *
     passband_return_loss_db, passband_ripple_db, midband_insertion_loss_db   (at least one)
     [[mask.stopband]]  start, stop, rejection_db
@@ -44,7 +45,11 @@ from .media.substrate import Substrate
 
 MEDIUM_KINDS = ("microstrip", "stripline", "ideal")
 EXTERNAL_KINDS = ("gap", "tap")
-GAP_MODELS = ("garg-bahl", "kirschning-jansen-koster")
+GAP_MODELS = {
+    "microstrip": ("garg-bahl", "kirschning-jansen-koster"),
+    "stripline": ("altschuler-oliner",),
+    "ideal": (),
+}
 
 
 class ProblemError(ValueError):
@@ -317,7 +322,12 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
             "coupling.external", "tap", "tapped coupling needs a strip medium, not 'ideal'"
         )
     models = r.table(data, "models", {"gap"}, required=False)
-    gap_model = r.choice(models, "models", "gap", GAP_MODELS, default="garg-bahl")
+    if kind == "ideal":
+        if "gap" in models:
+            raise r.fail("models.gap", models["gap"], "does not apply to medium kind 'ideal'")
+        gap_model = "ideal"
+    else:
+        gap_model = r.choice(models, "models", "gap", GAP_MODELS[kind], default=GAP_MODELS[kind][0])
 
     mask_t = r.table(
         data,

@@ -35,3 +35,24 @@ def test_help_for_every_verb(capsys):
         with pytest.raises(SystemExit) as exc:
             main([verb, "--help"])
         assert exc.value.code == 0
+
+
+def test_design_on_microstrip_prints_layout_shortfall_and_spread(capsys):
+    code = main(["design", str(ROOT / "problems/microstrip-c-band-n4.toml")])
+    out = capsys.readouterr().out
+    assert code == 1  # the closed form cannot meet this mask with a 100 um minimum gap
+    assert "realised seed (garg-bahl gaps)" in out
+    assert "gap 1: needs 7.6 um, the shop's minimum is 100.0 um" in out
+    assert "gap-model spread" in out and "kirschning-jansen-koster" in out
+    assert "model range: gap 0" in out
+
+
+def test_design_feasible_alumina_meets_mask(capsys):
+    assert main(["design", str(ROOT / "problems/microstrip-x-band-alumina-n3.toml")]) == 0
+    assert "status: mask met" in capsys.readouterr().out
+
+
+def test_design_stripline(capsys):
+    assert main(["design", str(ROOT / "problems/stripline-l-band.toml")]) == 1
+    out = capsys.readouterr().out
+    assert "order chosen from the stopbands: N = 4" in out and "altschuler-oliner" in out

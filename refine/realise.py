@@ -1,0 +1,218 @@
+"""Electrical design -> physical layout on a strip medium, honestly reporting what the shop cannot
+make.
+
+At the centre frequency f0, on the dispersive line:
+
+1. The feed width gives Z0(f0) = z_ref; the resonators use the same width (or the shop's
+   minimum width, if wider).
+2. Each gap width s is solved so that the gap's **full** two-port — series C with its shunt C
+   on each side, and for centre-referenced models the half-gap lines — is an inverter of the
+   designed J/Y0 (Y0 of the resonator line at f0). The two-port's series and shunt
+   susceptances are read from its Y-parameters (Bg = -Im Y21, Bp = Im(Y11 + Y21)) and
+   converted with :func:`refine.synthesis.pi_to_inverter`.
+3. Each resonator's electrical length is θ_j = π + (φ_j-1,j + φ_j,j+1)/2 with the negative
+   inverter phases φ of the actual gaps (this absorbs the shunt capacitances, i.e. the open-end
+   fringing), and its physical length is θ_j/β(f0).
+
+When a gap would have to be narrower than the shop's minimum gap, it is set to the minimum and
+the shortfall is recorded (required vs allowed gap, designed vs achievable J). Nothing is
+clipped silently.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import brentq
+
+from . import cascade, validity
+from .circuit import StripMedium, check_gap_model, gap_elements, medium_kind
+from .fab import FabRules
+from .layout import Layout
+from .synthesis import ElectricalDesign, pi_to_inverter, resonator_angles
+
+
+@dataclass(frozen=True)
+class GapRealisation:
+    """How one gap was realised.
+
+    j_target, j_achieved : J/Y0 designed and obtained at f0.
+    gap_required : the width that would give j_target (m), or None when no gap width the model
+        can describe (down to 1e-3 of the strip width) couples strongly enough.
+    gap : the width used (m): gap_required, or the shop's minimum when that is wider.
+    limited : True when the shop's minimum gap stopped the solve.
+    """
+
+    index: int
+    j_target: float
+    j_achieved: float
+    gap_required: float | None
+    gap: float
+    limited: bool
+
+    @property
+    def coupling_shortfall(self) -> float:
+        """Fraction of the designed J/Y0 that is missing (0 when realised exactly)."""
+        return max(0.0, 1.0 - self.j_achieved / self.j_target)
+
+
+@dataclass(frozen=True)
+class Realisation:
+    """A layout and the record of how it was obtained from the electrical design."""
+
+    layout: Layout
+    design: ElectricalDesign
+    gap_model: str
+    gaps: tuple[GapRealisation, ...]
+    range_notes: tuple[str, ...]
+    notes: tuple[str, ...]
+
+    @property
+    def feasible(self) -> bool:
+        return not any(g.limited or g.gap_required is None for g in self.gaps)
+
+
+def gap_inverter(
+    medium: StripMedium, model: str, w_in: float, w_out: float, s: float, f0: float, y0: float
+) -> tuple[float, float]:
+    """(J/Y0, φ) at f0 of the gap of width ``s`` between strips ``w_in`` and ``w_out``."""
+    f = np.array([f0])
+    m = cascade.chain_abcd(gap_elements(medium, model, w_in, w_out, s, f), f)
+    a, b, d = (
+        complex(m.a[..., 0].ravel()[0]),
+        complex(m.b[..., 0].ravel()[0]),
+        complex(m.d[..., 0].ravel()[0]),
+    )
+    y11, y22, y21 = d / b, a / b, -1.0 / b
+    bg = -y21.imag / y0
+    bp = 0.5 * ((y11 + y21).imag + (y22 + y21).imag) / y0
+    j, phi = pi_to_inverter(bg, bp)
+    return float(j), float(phi)
+
+
+def _solve_gap(
+    medium: StripMedium,
+    model: str,
+    w_in: float,
+    w_out: float,
+    f0: float,
+    y0: float,
+    j_target: float,
+) -> float | None:
+    """Gap width giving J/Y0 = j_target, or None if even a vanishing gap is too weak."""
+    w = min(w_in, w_out)
+    lo, hi = math.log(1e-3 * w), math.log(10.0 * medium.substrate.height)
+
+    def err(lns: float) -> float:
+        return math.log(
+            gap_inverter(medium, model, w_in, w_out, math.exp(lns), f0, y0)[0] / j_target
+        )
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        e_lo, e_hi = err(lo), err(hi)
+        if e_lo < 0:
+            return None
+        if e_hi > 0:
+            return math.exp(hi)
+        return math.exp(brentq(err, lo, hi, xtol=1e-10))
+
+
+def realise(
+    design: ElectricalDesign,
+    medium: StripMedium,
+    fab: FabRules | None = None,
+    gap_model: str = "garg-bahl",
+) -> Realisation:
+    """Physical layout of ``design`` on ``medium`` under ``fab`` rules (see module docstring)."""
+    check_gap_model(medium, gap_model)
+    f0 = design.f0
+    notes: list[str] = []
+    feed_w = medium.width_for_z0(design.z_ref, f0)
+    res_w = feed_w
+    if fab is not None and fab.min_width is not None and feed_w < fab.min_width:
+        notes.append(
+            f"the {design.z_ref:g} ohm width {feed_w * 1e6:.1f} um is below the shop's minimum "
+            f"width {fab.min_width * 1e6:.1f} um; the minimum is used"
+        )
+        feed_w = res_w = fab.min_width
+    y0 = 1.0 / float(medium.dispersive(res_w, np.array([f0]))[0][..., 0])
+    n = design.order
+    sides = [feed_w] + [res_w] * n + [feed_w]
+    min_gap = fab.min_gap if fab is not None else 0.0
+    gaps: list[GapRealisation] = []
+    phis: list[float] = []
+    for k, j_t in enumerate(design.j_norm):
+        w_in, w_out = sides[k], sides[k + 1]
+        required = _solve_gap(medium, gap_model, w_in, w_out, f0, y0, j_t)
+        limited = required is None or required < min_gap
+        s = max(required if required is not None else 0.0, min_gap)
+        if s <= 0:  # no fab rule and no realisable gap: use the smallest gap the solve tried
+            s = 1e-3 * min(w_in, w_out)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", validity.ModelRangeWarning)
+            j_a, phi = gap_inverter(medium, gap_model, w_in, w_out, s, f0, y0)
+        gaps.append(GapRealisation(k, j_t, j_a, required, s, limited))
+        phis.append(phi)
+    theta = resonator_angles(np.array(phis))
+    beta0 = medium.electrical_length(res_w, 1.0, f0)
+    lengths = tuple(float(t / beta0) for t in theta)
+    layout = Layout("gap", feed_w, (res_w,) * n, tuple(g.gap for g in gaps), lengths)
+    for g in gaps:
+        if g.gap_required is None:
+            notes.append(
+                f"gap {g.index}: J/Y0 = {g.j_target:.4f} needs a stronger coupling than any gap "
+                f"the {gap_model} model describes; at the minimum gap it gives {g.j_achieved:.4f}"
+            )
+        elif g.limited:
+            notes.append(
+                f"gap {g.index}: needs {g.gap_required * 1e6:.1f} um, the shop's minimum is "
+                f"{min_gap * 1e6:.1f} um; coupling J/Y0 {g.j_achieved:.4f} of {g.j_target:.4f} "
+                f"({100 * g.coupling_shortfall:.0f} % short)"
+            )
+    return Realisation(
+        layout,
+        design,
+        gap_model,
+        tuple(gaps),
+        tuple(range_report(layout, medium, gap_model, f0)),
+        tuple(notes),
+    )
+
+
+def range_report(layout: Layout, medium: StripMedium, gap_model: str, f_max: float) -> list[str]:
+    """Which dimensions of ``layout`` lie outside which model's validity range (no warnings)."""
+    f = np.array([f_max])
+    out: list[str] = []
+
+    def collect(label: str, fn) -> None:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", validity.ModelRangeWarning)
+            fn()
+        for w in caught:
+            if issubclass(w.category, validity.ModelRangeWarning):
+                msg = f"{label}: {w.message}"
+                if msg not in out:
+                    out.append(msg)
+            else:
+                warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+
+    kind = medium_kind(medium)
+    sides = [layout.feed_width, *layout.widths, layout.feed_width]
+    for k, s in enumerate(layout.gaps):
+        collect(
+            f"gap {k} (s = {s * 1e6:.1f} um)",
+            lambda k=k, s=s: gap_elements(medium, gap_model, sides[k], sides[k + 1], s, f),
+        )
+    for j, w in enumerate(layout.widths):
+        collect(
+            f"{kind} line {j + 1} (W = {w * 1e6:.1f} um)", lambda w=w: medium.line_properties(w, f)
+        )
+    collect(
+        f"{kind} feed (W = {layout.feed_width * 1e6:.1f} um)",
+        lambda: medium.line_properties(layout.feed_width, f),
+    )
+    return out

@@ -1,0 +1,70 @@
+"""Validity ranges of closed-form models.
+
+Every closed-form model in refine states the range its authors fitted or verified it over.
+Outside it the model still returns a finite value (it extrapolates the formula, or clamps as its
+docstring says) and raises a :class:`ModelRangeWarning`; :func:`range_violations` lets a design
+report list which dimensions are outside which model's range without raising anything.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike
+
+
+class ModelRangeWarning(UserWarning):
+    """A closed-form model was evaluated outside its stated validity range."""
+
+
+@dataclass(frozen=True)
+class RangeViolation:
+    """``quantity`` of ``model`` took values in [lowest, highest], outside [lo, hi]."""
+
+    model: str
+    quantity: str
+    lowest: float
+    highest: float
+    lo: float | None
+    hi: float | None
+
+    def __str__(self) -> str:
+        lo = "-inf" if self.lo is None else f"{self.lo:g}"
+        hi = "inf" if self.hi is None else f"{self.hi:g}"
+        span = (
+            f"{self.lowest:.4g}"
+            if self.lowest == self.highest
+            else f"{self.lowest:.4g}..{self.highest:.4g}"
+        )
+        return f"{self.model}: {self.quantity} = {span} is outside its validity range [{lo}, {hi}]"
+
+
+def outside(
+    model: str, quantity: str, values: ArrayLike, lo: float | None, hi: float | None
+) -> RangeViolation | None:
+    """The violation, if any value of ``values`` lies outside [lo, hi]; otherwise None."""
+    x = np.asarray(values, dtype=float)
+    if x.size == 0:
+        return None
+    xmin, xmax = float(np.min(x)), float(np.max(x))
+    if (lo is not None and xmin < lo * (1 - 1e-12)) or (hi is not None and xmax > hi * (1 + 1e-12)):
+        return RangeViolation(model, quantity, xmin, xmax, lo, hi)
+    return None
+
+
+def check(
+    model: str,
+    quantity: str,
+    values: ArrayLike,
+    lo: float | None,
+    hi: float | None,
+    *,
+    stacklevel: int = 3,
+) -> RangeViolation | None:
+    """Like :func:`outside`, and warn with :class:`ModelRangeWarning` when violated."""
+    v = outside(model, quantity, values, lo, hi)
+    if v is not None:
+        warnings.warn(str(v), ModelRangeWarning, stacklevel=stacklevel)
+    return v
