@@ -139,6 +139,8 @@ def realise(
             f"width {fab.min_width * 1e6:.1f} um; the minimum is used"
         )
         feed_w = res_w = fab.min_width
+    if fab is not None and fab.grid is not None:  # strips are drawn on the shop's grid
+        feed_w = res_w = max(round(feed_w / fab.grid), 1) * fab.grid
     y0 = 1.0 / float(medium.dispersive(res_w, np.array([f0]))[0][..., 0])
     n = design.order
     sides = [feed_w] + [res_w] * n + [feed_w]
@@ -216,3 +218,66 @@ def range_report(layout: Layout, medium: StripMedium, gap_model: str, f_max: flo
         lambda: medium.line_properties(layout.feed_width, f),
     )
     return out
+
+
+def tap_angle(design: ElectricalDesign, z_res: float) -> float | None:
+    """Electrical distance θ (rad) from a half-wave resonator's open end to the tap that gives
+    the external Q the design needs, Q_e = g0 g1 / FBW.
+
+    From the reactance slope of a half-wave resonator tapped at θ from an open end,
+    b = (Y_r π/2)/cos²θ, so Q_e = b z_ref = (π/2)(z_ref/Z_r)/cos²θ (the same argument as
+    Wong, "Microstrip tapped-line filter design", IEEE Trans. MTT-27(1), 44–50, 1979, where
+    it is derived for the tapped combline/hairpin case). Returns None when even a tap at the
+    open end couples too weakly (Q_e needed < (π/2) z_ref/Z_r).
+    """
+    qe = design.g[0] * design.g[1] / design.fbw
+    c2 = (math.pi / 2.0) * (design.z_ref / z_res) / qe
+    if c2 > 1.0:
+        return None
+    return math.acos(math.sqrt(c2))
+
+
+def realise_tapped(
+    design: ElectricalDesign,
+    medium: StripMedium,
+    fab: FabRules | None = None,
+    gap_model: str = "garg-bahl",
+) -> Realisation:
+    """Layout with a tapped feed: the n - 1 inner gaps as in :func:`realise`, the end resonators
+    open at their outer ends (length reduced by the open-end extension Δl) and tapped at the
+    position :func:`tap_angle` gives. The T-junction's own parasitics are not modelled."""
+    from .model import open_end_extension
+
+    if design.order < 2:
+        raise ValueError(
+            "order = 1 cannot use a tapped feed on both sides (needs at least 2 resonators)"
+        )
+    inner = realise(design, medium, fab, gap_model)
+    lay = inner.layout
+    f0 = design.f0
+    res_w = lay.widths[0]
+    z_res = float(medium.dispersive(res_w, np.array([f0]))[0][..., 0])
+    beta0 = float(medium.electrical_length(res_w, 1.0, f0))
+    phis = [-0.0] + [0.0] * (design.order - 1) + [0.0]
+    for g in inner.gaps[1:-1]:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", validity.ModelRangeWarning)
+            y0 = 1.0 / z_res
+            phis[g.index] = gap_inverter(medium, gap_model, res_w, res_w, g.gap, f0, y0)[1]
+    theta = resonator_angles(np.array(phis))
+    dl = open_end_extension(medium, res_w)
+    lengths = [float(t / beta0) for t in theta]
+    lengths[0] -= dl
+    lengths[-1] -= dl
+    notes = [n for n in inner.notes if not n.startswith(("gap 0:", f"gap {design.order}:"))]
+    ang = tap_angle(design, z_res)
+    if ang is None:
+        ang = 0.05
+        notes.append(
+            "even a tap at the open end couples too weakly for this bandwidth; the tap "
+            "starts near the open end"
+        )
+    tap = max(ang / beta0 - dl, 0.02 * lengths[0])
+    layout = Layout("tap", lay.feed_width, lay.widths, lay.gaps[1:-1], tuple(lengths), (tap, tap))
+    gaps = inner.gaps[1:-1]
+    return Realisation(layout, design, gap_model, gaps, tuple(inner.range_notes), tuple(notes))

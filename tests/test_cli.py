@@ -49,7 +49,15 @@ def test_design_on_microstrip_prints_layout_shortfall_and_spread(capsys):
 
 def test_design_feasible_alumina_meets_mask(capsys):
     assert main(["design", str(ROOT / "problems/microstrip-x-band-alumina-n3.toml")]) == 0
-    assert "status: mask met" in capsys.readouterr().out
+    out = capsys.readouterr().out
+    assert "status: MET" in out and "refined (dB)" in out and "resonator 1 length" in out
+    assert "snapped to the shop's 0.5 um grid" in out
+
+
+def test_design_infeasible_prints_diagnosis(capsys):
+    assert main(["design", str(ROOT / "problems/inf-pcb-gap-5g8-n3-3pct.toml")]) == 1
+    out = capsys.readouterr().out
+    assert "status: INFEASIBLE" in out and "can give at most" in out and "remedy: use a tapped feed" in out
 
 
 def test_design_stripline(capsys):

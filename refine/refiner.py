@@ -1,0 +1,481 @@
+"""From the closed-form seed to dimensions that meet the mask under the fab rules, or a
+quantified statement that none exist.
+
+Path: seed (gap or tapped feed) -> diagnosis -> refine on the optimiser grid -> verify on the
+dense grid (exact band edges; if a violation hid between optimiser samples, those frequencies
+join the optimiser grid and the run continues, at most three rounds) -> snap to the shop's
+grid (lengths re-refined once if snapping costs the mask) -> every fab rule re-checked.
+"""
+
+from __future__ import annotations
+
+import enum
+import math
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+from numpy.typing import NDArray
+
+from . import job
+from .diagnose import Diagnosis, diagnose
+from .layout import Layout
+from .mask import MaskResult
+from .model import IdealFilterModel, StripFilterModel, strip_model_for
+from .optimise import DesignSpace, Stopping, Strategy, Variable, optimiser_grid, refine_once
+from .problem import Problem
+from .realise import Realisation, realise, realise_tapped
+
+
+class Status(enum.Enum):
+    MET = "met"
+    NOT_MET = "not met"
+    INFEASIBLE = "infeasible"
+
+
+@dataclass(frozen=True)
+class RefineResult:
+    """Outcome of :func:`refine_problem`.
+
+    layout : refined layout (strip media), or None for the ideal medium, whose design is
+        ``capacitances`` (F) and ``thetas`` (rad at f0) instead.
+    worst, where : verified worst margin (dB) per mask region and its frequency (Hz).
+    binding : the constraints that limit the design (regions at the worst margin, variables at
+        their bounds).
+    evaluations, wall_time : model evaluations used by the optimiser, and seconds.
+    history : worst margin on the optimiser grid after each evaluation.
+    seed_worst : verified worst margin per region of the closed-form seed.
+    diagnosis : couplings needed vs what the fab rules can give, and remedies (strip media).
+    unsnapped_margin, snapped_margin : verified worst margin before and after snapping to the
+        shop's grid (snapped_margin is None without a grid).
+    fab_violations : fab rules the returned layout breaks (always empty; checked, not assumed).
+    """
+
+    problem: Problem
+    status: Status
+    strategy: str
+    layout: Layout | None
+    capacitances: tuple[float, ...] | None
+    thetas: tuple[float, ...] | None
+    seed_layout: Layout | None
+    worst: dict[str, float]
+    where: dict[str, float]
+    binding: tuple[str, ...]
+    evaluations: int
+    wall_time: float
+    history: tuple[float, ...]
+    seed_worst: dict[str, float]
+    diagnosis: Diagnosis | None
+    unsnapped_margin: float
+    snapped_margin: float | None
+    fab_violations: tuple[str, ...]
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def worst_margin(self) -> float:
+        return min(self.worst.values())
+
+    @property
+    def seed_worst_margin(self) -> float:
+        return min(self.seed_worst.values())
+
+
+def _mirror_ties(n_items: int, offset: int) -> list[list[int]]:
+    return [[offset + i, offset + n_items - 1 - i] for i in range(n_items // 2)]
+
+
+def strip_space(problem: Problem, model: StripFilterModel, seed: Layout) -> DesignSpace:
+    """Variables with fab-rule bounds for a strip layout, mirrored for symmetry."""
+    fab = problem.fab
+    h = problem.substrate.height
+    p0 = model.vector(seed)
+    variables: list[Variable] = []
+    gaps, lengths, taps, widths = model.split(p0)
+    ng, n = len(gaps), len(lengths)
+    for k, s in enumerate(gaps):
+        s = max(s, fab.min_gap)
+        variables.append(
+            Variable(model.names[k], s, fab.min_gap, max(4.0 * s, 2.0 * h, 2.0 * fab.min_gap))
+        )
+    for j, ln in enumerate(lengths):
+        variables.append(Variable(model.names[ng + j], ln, 0.75 * ln, 1.3 * ln))
+    k = ng + n
+    if taps is not None:
+        lo_len = 0.75 * min(lengths[0], lengths[-1])  # the shortest the end resonators may become
+        for i, t in enumerate(taps):
+            variables.append(
+                Variable(
+                    model.names[k + i], t, min(0.01 * lo_len, 0.5 * t), max(0.9 * lo_len, 1.01 * t)
+                )
+            )
+        k += 2
+    if model.free_widths:
+        lo_w = max(0.5 * seed.feed_width, fab.min_width or 0.0)
+        for j, w in enumerate(widths):
+            variables.append(
+                Variable(
+                    model.names[k + j], max(w, lo_w), lo_w, max(3.0 * seed.feed_width, 1.01 * lo_w)
+                )
+            )
+    return DesignSpace(variables, _ties_of(model))
+
+
+def _snap(p: NDArray, model: StripFilterModel, grid: float, min_gap: float) -> NDArray:
+    q = np.round(p / grid) * grid
+    ng = len(model.split(p)[0])
+    gaps = q[:ng]
+    below = gaps < min_gap - 1e-15
+    gaps[below] = np.ceil(min_gap / grid - 1e-9) * grid
+    q[:ng] = gaps
+    return q
+
+
+def fab_violations(problem: Problem, layout: Layout) -> list[str]:
+    """Every fab rule the layout breaks (an empty list is the only acceptable answer)."""
+    fab = problem.fab
+    out = []
+    for k, s in enumerate(layout.gaps):
+        if s < fab.min_gap * (1 - 1e-12):
+            out.append(
+                f"gap {k} = {s * 1e6:.3f} um is below the minimum gap {fab.min_gap * 1e6:.3f} um"
+            )
+    if fab.min_width is not None:
+        for j, w in enumerate((layout.feed_width, *layout.widths)):
+            if w < fab.min_width * (1 - 1e-12):
+                out.append(
+                    f"width {j} = {w * 1e6:.3f} um is below the minimum width {fab.min_width * 1e6:.3f} um"
+                )
+    if fab.max_total_length is not None and layout.total_length > fab.max_total_length * (
+        1 + 1e-12
+    ):
+        out.append(
+            f"total length {layout.total_length * 1e3:.3f} mm exceeds {fab.max_total_length * 1e3:.3f} mm"
+        )
+    return out
+
+
+def _verify(problem: Problem, model_factory, p: NDArray) -> tuple[MaskResult, NDArray]:
+    f = job.verification_grid(problem)
+    m = model_factory(f)
+    r = m.response(p)
+    return problem.mask.evaluate(f, r.s11, r.s21), f
+
+
+def _binding(res: MaskResult, space: DesignSpace, z: NDArray) -> tuple[str, ...]:
+    worst = res.worst_margin
+    regions = [
+        f"{name} (worst {m:+.2f} dB at {res.where[name] / 1e9:.4f} GHz)"
+        for name, m in res.worst.items()
+        if m <= worst + 0.1
+    ]
+    return tuple(regions + space.at_bounds(z))
+
+
+def refine_problem(
+    problem: Problem,
+    strategy: Strategy = Strategy.GRADIENT,
+    stopping: Stopping | None = None,
+    seed: job.Seed | None = None,
+) -> RefineResult:
+    """Refine a problem's closed-form seed until the mask is met under the fab rules."""
+    stopping = stopping or Stopping()
+    t0 = time.perf_counter()
+    sd = seed or job.seed(problem)
+    d = sd.design
+    notes: list[str] = []
+    if problem.medium == "ideal":
+        return _refine_ideal(problem, sd, strategy, stopping, t0)
+
+    medium = job.medium_for(problem)
+    if problem.external == "tap":
+        real: Realisation = realise_tapped(d, medium, problem.fab, problem.gap_model)
+        notes.append("tapped feed: the T-junction's own parasitics are not modelled")
+    else:
+        real = (
+            sd.realisation
+            if sd.realisation is not None
+            else realise(d, medium, problem.fab, problem.gap_model)
+        )
+    seed_layout = real.layout
+    diag = diagnose(
+        d, medium, problem.fab, problem.gap_model, seed_layout.feed_width, problem.external
+    )
+    free_widths = True  # resonator widths are refinable dimensions (bounded by the fab rules)
+
+    def factory(f: NDArray, fw: bool = free_widths) -> StripFilterModel:
+        return strip_model_for(medium, problem.gap_model, problem.z_ref, seed_layout, f, fw)
+
+    f_opt = optimiser_grid(problem.mask, d.order)
+    if problem.mask.max_insertion_loss_db is not None:
+        f_opt = np.unique(np.append(f_opt, problem.mask.midband))
+    model = factory(f_opt)
+    space = strip_space(problem, model, seed_layout)
+    p_seed = model.vector(seed_layout)
+    seed_res, _ = _verify(problem, factory, p_seed)
+    extra = _length_constraint(problem, model, space)
+    z = space.to_free(np.array([v.value for v in space.variables]))
+    evaluations, history = 0, []
+    res = seed_res
+    best_res, best_z = seed_res, z
+    stopping = _aim(stopping, seed_res)
+    for _round in range(3):
+        model = factory(f_opt)
+
+        def fn(p, grad, model=model):
+            r = model.response(p, grad)
+            return r.s11, r.s21, r.ds11, r.ds21
+
+        budget = (
+            None
+            if stopping.max_evaluations is None
+            else max(stopping.max_evaluations - evaluations, 1)
+        )
+        rec = refine_once(
+            strategy,
+            space,
+            problem.mask,
+            f_opt,
+            fn,
+            z,
+            Stopping(budget, stopping.max_seconds, stopping.target_margin_db, stopping.xtol_rel),
+            extra,
+            thorough=diag.couplings_reachable,
+        )
+        evaluations += rec.evaluations
+        history += rec.history
+        z = rec.z
+        res_new, _ = _verify(problem, factory, space.to_physical(z))
+        if res_new.worst_margin > best_res.worst_margin:
+            best_res, best_z = res_new, z
+        res, z = best_res, best_z
+        if (
+            res.passed
+            or rec.worst_margin < min(stopping.target_margin_db, 0.0)
+            or (budget is not None and evaluations >= stopping.max_evaluations)
+        ):
+            break
+        # the optimiser's grid met the mask but the dense grid did not: add what it missed
+        f_opt = np.unique(np.concatenate([f_opt, list(res.where.values())]))
+        notes.append(
+            f"verification found {res.worst_margin:+.3f} dB between optimiser samples; the grid was refined"
+        )
+    p = space.to_physical(z)
+    unsnapped = res.worst_margin
+    snapped_margin = None
+    if problem.fab.grid is not None:
+        q = _snap(p, model, problem.fab.grid, problem.fab.min_gap)
+        res_q, _ = _verify(problem, factory, q)
+        if res.passed and not res_q.passed:  # re-refine lengths with the gaps held at the grid
+            fixed = [
+                Variable(v_.name, float(qq), v_.lower, v_.upper, free=not v_.name.startswith("gap"))
+                for v_, qq in zip(
+                    space.variables,
+                    np.clip(
+                        q, [v.lower for v in space.variables], [v.upper for v in space.variables]
+                    ),
+                    strict=True,
+                )
+            ]
+            space2 = DesignSpace(fixed, _ties_of(model))
+
+            model2 = factory(f_opt)
+
+            def fn2(pp, grad, model=model2):
+                r = model.response(pp, grad)
+                return r.s11, r.s21, r.ds11, r.ds21
+
+            rec2 = refine_once(
+                Strategy.GRADIENT,
+                space2,
+                problem.mask,
+                f_opt,
+                fn2,
+                space2.to_free(np.array([v_.value for v_ in fixed])),
+                Stopping(100, None, stopping.target_margin_db, stopping.xtol_rel),
+            )
+            evaluations += rec2.evaluations
+            q = _snap(space2.to_physical(rec2.z), model, problem.fab.grid, problem.fab.min_gap)
+            res_q, _ = _verify(problem, factory, q)
+            notes.append(
+                "snapping to the shop's grid cost the mask; lengths were re-refined with gaps on the grid"
+            )
+        p, res, snapped_margin = q, res_q, res_q.worst_margin
+    layout = factory(f_opt).layout(p)
+    seed_legal = not fab_violations(problem, seed_layout) and (
+        problem.fab.grid is None
+        or np.allclose(
+            _snap(p_seed, model, problem.fab.grid, problem.fab.min_gap), p_seed, rtol=0, atol=1e-12
+        )
+    )
+    if res.worst_margin < seed_res.worst_margin and seed_legal:
+        notes.append(
+            "the refiner found nothing better than the closed-form seed; the seed is returned"
+        )
+        layout, res, z = (
+            seed_layout,
+            seed_res,
+            space.to_free(
+                np.clip(
+                    p_seed, [v.lower for v in space.variables], [v.upper for v in space.variables]
+                )
+            ),
+        )
+    violations = fab_violations(problem, layout)
+    if res.passed and not violations:
+        status = Status.MET
+    elif not diag.couplings_reachable:
+        status = Status.INFEASIBLE
+    else:
+        status = Status.NOT_MET
+    return RefineResult(
+        problem,
+        status,
+        strategy.value,
+        layout,
+        None,
+        None,
+        seed_layout,
+        dict(res.worst),
+        dict(res.where),
+        _binding(res, space, z),
+        evaluations,
+        time.perf_counter() - t0,
+        tuple(history),
+        dict(seed_res.worst),
+        diag,
+        unsnapped,
+        snapped_margin,
+        tuple(violations),
+        tuple(notes + list(real.notes)),
+    )
+
+
+def _aim(stopping: Stopping, seed_res: MaskResult) -> Stopping:
+    """When the seed already meets the mask with the requested margin there is no reason to stop
+    at it: aim for as much margin as the budget buys (better yield)."""
+    if seed_res.worst_margin >= stopping.target_margin_db:
+        return Stopping(stopping.max_evaluations, stopping.max_seconds, 100.0, stopping.xtol_rel)
+    return stopping
+
+
+def _ties_of(model: StripFilterModel) -> list[list[int]]:
+    """Mirror ties of a symmetric strip layout: gap k with gap -k, length j with length -j, the
+    two taps, width j with width -j."""
+    gaps, lengths, taps, _ = model.split(np.zeros(len(model.names)))
+    ng, n = len(gaps), len(lengths)
+    ties = _mirror_ties(ng, 0) + _mirror_ties(n, ng)
+    k = ng + n
+    if taps is not None:
+        ties.append([k, k + 1])
+        k += 2
+    if model.free_widths:
+        ties += _mirror_ties(n, k)
+    return ties
+
+
+def _length_constraint(problem: Problem, model: StripFilterModel, space: DesignSpace):
+    """Optional max-total-length rule as an extra inequality (in % of the limit)."""
+    lmax = problem.fab.max_total_length
+    if lmax is None:
+        return None
+    ng_n = len(model.split(np.zeros(len(model.names)))[0]) + model.order
+
+    def extra(z: NDArray) -> tuple[NDArray, NDArray]:
+        p = space.to_physical(z)
+        total = float(np.sum(p[:ng_n]))
+        dp = np.zeros((len(p), 1))
+        dp[:ng_n, 0] = 100.0 / lmax
+        return np.array([100.0 * (total - lmax) / lmax]), space.chain(p, dp).T
+
+    return extra
+
+
+def _refine_ideal(
+    problem: Problem, sd: job.Seed, strategy: Strategy, stopping: Stopping, t0: float
+) -> RefineResult:
+    d = sd.design
+    n = d.order
+
+    def factory(f: NDArray) -> IdealFilterModel:
+        return IdealFilterModel(d.f0, d.z_ref, n, f)
+
+    variables = [Variable(f"C {k}", c, 0.2 * c, 5.0 * c) for k, c in enumerate(d.capacitance)]
+    variables += [
+        Variable(f"theta {j + 1}", t, 0.8 * t, min(1.25 * t, 2 * math.pi))
+        for j, t in enumerate(d.theta)
+    ]
+    space = DesignSpace(variables, _mirror_ties(n + 1, 0) + _mirror_ties(n, n + 1))
+    p_seed = np.array([*d.capacitance, *d.theta])
+    seed_res, _ = _verify(problem, factory, p_seed)
+    stopping = _aim(stopping, seed_res)
+    f_opt = optimiser_grid(problem.mask, n)
+    z = space.to_free(p_seed)
+    evaluations, history, notes = 0, [], []
+    res = seed_res
+    best_res, best_z = seed_res, z
+    for _round in range(3):
+        model = factory(f_opt)
+
+        def fn(p, grad, model=model):
+            r = model.response(p, grad)
+            return r.s11, r.s21, r.ds11, r.ds21
+
+        budget = (
+            None
+            if stopping.max_evaluations is None
+            else max(stopping.max_evaluations - evaluations, 1)
+        )
+        rec = refine_once(
+            strategy,
+            space,
+            problem.mask,
+            f_opt,
+            fn,
+            z,
+            Stopping(budget, stopping.max_seconds, stopping.target_margin_db, stopping.xtol_rel),
+        )
+        evaluations += rec.evaluations
+        history += rec.history
+        z = rec.z
+        res_new, _ = _verify(problem, factory, space.to_physical(z))
+        if res_new.worst_margin > best_res.worst_margin:
+            best_res, best_z = res_new, z
+        res, z = best_res, best_z
+        if (
+            res.passed
+            or rec.worst_margin < min(stopping.target_margin_db, 0.0)
+            or (budget is not None and evaluations >= stopping.max_evaluations)
+        ):
+            break
+        f_opt = np.unique(np.concatenate([f_opt, list(res.where.values())]))
+        notes.append(
+            f"verification found {res.worst_margin:+.3f} dB between optimiser samples; the grid was refined"
+        )
+    p = space.to_physical(z)
+    if res.worst_margin < seed_res.worst_margin:
+        notes.append(
+            "the refiner found nothing better than the closed-form seed; the seed is returned"
+        )
+        p, res, z = p_seed, seed_res, space.to_free(p_seed)
+    status = Status.MET if res.passed else Status.NOT_MET
+    return RefineResult(
+        problem,
+        status,
+        strategy.value,
+        None,
+        tuple(p[: n + 1]),
+        tuple(p[n + 1 :]),
+        None,
+        dict(res.worst),
+        dict(res.where),
+        _binding(res, space, z),
+        evaluations,
+        time.perf_counter() - t0,
+        tuple(history),
+        dict(seed_res.worst),
+        None,
+        res.worst_margin,
+        None,
+        (),
+        tuple(notes),
+    )
