@@ -57,7 +57,11 @@ def test_design_feasible_alumina_meets_mask(capsys):
 def test_design_infeasible_prints_diagnosis(capsys):
     assert main(["design", str(ROOT / "problems/inf-pcb-gap-5g8-n3-3pct.toml")]) == 1
     out = capsys.readouterr().out
-    assert "status: INFEASIBLE" in out and "can give at most" in out and "remedy: use a tapped feed" in out
+    assert (
+        "status: INFEASIBLE" in out
+        and "can give at most" in out
+        and "remedy: use a tapped feed" in out
+    )
 
 
 def test_design_stripline(capsys):
