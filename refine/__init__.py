@@ -3,10 +3,32 @@ ripple/rejection mask under a fabrication shop's rules.
 
 The flow is one direction: problem -> prototype -> synthesis -> realise -> cascade -> mask ->
 refiner -> outputs. See README.md for the job and DEVELOPERS.md for the layout.
+
+Python API (what the ``refine`` command does, as plain calls)::
+
+    import refine
+    problem = refine.load_problem("problems/microstrip-x-band-alumina-n3.toml")
+    seed = refine.seed(problem)              # closed-form design, realised and checked
+    result = refine.design(problem, seed=seed)   # refine under the fab rules, verify
+    refine.write_outputs(result, seed, "out")    # Touchstone, DXF, SVG, plots, report
 """
 
 __version__ = "0.1.0"
 
+from .job import seed
+from .outputs import write_outputs
 from .problem import Problem, ProblemError, load_problem
+from .refiner import RefineResult, Status
+from .refiner import refine_problem as design
 
-__all__ = ["Problem", "ProblemError", "__version__", "load_problem"]
+__all__ = [
+    "Problem",
+    "ProblemError",
+    "RefineResult",
+    "Status",
+    "__version__",
+    "design",
+    "load_problem",
+    "seed",
+    "write_outputs",
+]

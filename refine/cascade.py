@@ -453,3 +453,20 @@ def element_matrices(element: Element, f: ArrayLike) -> NDArray[np.complex128]:
     out = np.empty((*shape, 2, 2), dtype=complex)
     out[..., 0, 0], out[..., 0, 1], out[..., 1, 0], out[..., 1, 1] = m
     return out
+
+
+def node_states(
+    elements: Sequence[Element], f: ArrayLike, z_ref: float
+) -> list[tuple[Array, Array]]:
+    """Voltage and current (V, I) at the input of every element, and after the last one, for a
+    load ``z_ref`` driven so that the load voltage is 1 V. Scale by the source to get absolute
+    values. Each entry is a pair of ``(..., nf)`` arrays; ``len(elements) + 1`` entries."""
+    _check_elements(elements)
+    z = v.positive("z_ref", z_ref)
+    omega = _omega(f)
+    col: tuple = (np.ones(omega.shape, complex), np.full(omega.shape, 1.0 / z, complex))
+    out = [col]
+    for e in reversed(elements):
+        col = _times_column(e.kind, e.value(omega), col)
+        out.append(col)
+    return out[::-1]

@@ -18,11 +18,12 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from . import __version__, job, synthesis
+from . import __version__, export, job, outputs, synthesis
 from .mask import MaskResult
 from .optimise import Stopping, Strategy
 from .problem import ProblemError, load_problem
 from .refiner import RefineResult, Status, refine_problem
+from .refiner import fab_violations as refiner_fab_violations
 
 
 class UsageError(Exception):
@@ -158,7 +159,22 @@ def _cmd_synth(args: argparse.Namespace) -> int:
             "ideal_mask_met": res.passed,
             "order_notes": list(choice.notes) if choice else [],
         }
-        print(json.dumps(out, indent=2))
+        if problem.medium != "ideal":
+            real = job.seed(problem).realisation
+            out["seed_layout_m"] = export.layout_dict(real.layout)
+            out["gaps"] = [
+                {
+                    "index": g.index,
+                    "j_target": g.j_target,
+                    "j_achieved": g.j_achieved,
+                    "gap_required_m": g.gap_required,
+                    "gap_m": g.gap,
+                    "limited_by_min_gap": g.limited,
+                    "coupling_shortfall": g.coupling_shortfall,
+                }
+                for g in real.gaps
+            ]
+        print(json.dumps(export._clean(out), indent=2))
         return 0
     print(
         f"{problem.name}: {d.family} N={d.order}"
@@ -178,6 +194,16 @@ def _cmd_synth(args: argparse.Namespace) -> int:
     print("closed-form design on ideal elements against the mask:")
     print(margins_table(res))
     print(f"mask {'met' if res.passed else 'NOT met'} by the closed-form seed on ideal elements")
+    if problem.medium != "ideal":
+        sd = job.seed(problem)
+        lay = sd.realisation.layout
+        print()
+        print(
+            f"realised seed ({problem.gap_model} gaps), feed width {lay.feed_width * 1e6:.1f} um:"
+        )
+        print(layout_table(sd))
+        for note in sd.realisation.notes:
+            print(f"  fab: {note}")
     return 0
 
 
@@ -216,6 +242,10 @@ def refined_table(r: RefineResult) -> str:
 
 def _cmd_design(args: argparse.Namespace) -> int:
     problem = load_problem(args.problem)
+    if args.power <= 0 or not math.isfinite(args.power):
+        raise UsageError(f"--power = {args.power:g} W is outside the allowed range (0, inf)")
+    if args.out is not None:
+        outputs.prepare_folder(args.out, args.force)  # refuse before any work or any write
     stopping = Stopping(max_evaluations=args.max_evaluations, target_margin_db=args.margin)
     sd = job.seed(problem)
     _print_seed(sd)
@@ -256,7 +286,47 @@ def _cmd_design(args: argparse.Namespace) -> int:
         print(f"  note: {note}")
     if r.fab_violations:
         print("FAB RULE VIOLATIONS: " + "; ".join(r.fab_violations))
+    if args.out is not None:
+        written = outputs.write_outputs(r, sd, args.out, args.power, args.force)
+        print()
+        print(f"wrote {len(written)} files to {args.out}: " + ", ".join(w.name for w in written))
+        if r.status is not Status.MET:
+            print("  (they describe the best design found, which does NOT meet the mask)")
     return 0 if r.status is Status.MET else 1
+
+
+def _cmd_check(args: argparse.Namespace) -> int:
+    problem = load_problem(args.problem)
+    lay = export.read_layout(args.layout)
+    f = job.verification_grid(problem)
+    if isinstance(lay, dict):
+        if problem.medium != "ideal":
+            raise UsageError(
+                f"{args.layout}: an electrical (ideal-medium) layout, but the problem's medium is {problem.medium!r}"
+            )
+        s = outputs.evaluate_electrical(
+            lay["series_capacitances_farad"],
+            lay["electrical_lengths_rad_at_f0"],
+            float(lay["f0_hz"]),
+            problem.z_ref,
+            f,
+        )
+    else:
+        if problem.medium == "ideal":
+            raise UsageError(
+                f"{args.layout}: a physical layout, but the problem's medium is 'ideal'"
+            )
+        s = outputs.evaluate_layout(problem, lay, f)
+        if problem.fab is not None:
+            for v_ in refiner_fab_violations(problem, lay):
+                print(f"fab rule: {v_}")
+    res = problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
+    print(f"{args.layout} against {problem.name} ({f.size} points, physical model with loss):")
+    print(margins_table(res))
+    print(
+        f"status: mask {'met' if res.passed else 'NOT met'} (worst margin {res.worst_margin:+.2f} dB)"
+    )
+    return 0 if res.passed else 1
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -302,7 +372,29 @@ def build_parser() -> argparse.ArgumentParser:
         default=0.05,
         help="worst margin in dB the refiner aims for before it stops (default: %(default)s)",
     )
+    p.add_argument(
+        "--out",
+        metavar="DIR",
+        help="folder for the hand-over files (summary.json, "
+        "layout.json, response.s2p, layout.dxf, layout.svg, response.png, layout.png, report.md)",
+    )
+    p.add_argument("--force", action="store_true", help="replace output files already in DIR")
+    p.add_argument(
+        "--power",
+        type=float,
+        default=1.0,
+        help="input power in W for the peak gap voltage in the report (default: %(default)s)",
+    )
     p.set_defaults(run=_cmd_design)
+    p = sub.add_parser(
+        "check",
+        help="evaluate a layout file against a problem's mask",
+        description="Evaluate a layout.json (as written by refine design, possibly "
+        "edited by hand) against the mask of a problem; no optimisation.",
+    )
+    p.add_argument("layout", help="layout file (JSON)")
+    p.add_argument("--problem", required=True, help="problem file (TOML)")
+    p.set_defaults(run=_cmd_check)
     return ap
 
 
@@ -311,7 +403,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     args = ap.parse_args(argv)
     try:
         return int(args.run(args))
-    except (ProblemError, UsageError, ValueError) as e:
+    except (ProblemError, UsageError, ValueError, OSError) as e:
         print(f"refine: error: {e}", file=sys.stderr)
         return 2
 

@@ -1,0 +1,159 @@
+"""Write every hand-over file of a refined design into one folder.
+
+Files: summary.json, layout.json, response.s2p, layout.dxf, layout.svg, response.png,
+layout.png, report.md (the ideal medium has no copper, so no DXF, SVG or layout picture). Each
+file is written atomically; an existing output file is never replaced unless ``force``.
+"""
+
+from __future__ import annotations
+
+import warnings
+from pathlib import Path
+
+import numpy as np
+
+from . import circuit, export, job, plot, report, synthesis, validity
+from .layout import Layout
+from .mask import MaskResult
+from .problem import Problem
+from .realise import range_report
+from .refiner import RefineResult
+
+OUTPUT_FILES = (
+    "summary.json",
+    "layout.json",
+    "response.s2p",
+    "layout.dxf",
+    "layout.svg",
+    "response.png",
+    "layout.png",
+    "report.md",
+)
+
+
+class OutputError(ValueError):
+    """The output folder cannot be used as asked."""
+
+
+def prepare_folder(out: str | Path, force: bool) -> Path:
+    """Check (before anything is computed or written) that ``out`` may receive the outputs."""
+    out = Path(out)
+    if out.exists() and not out.is_dir():
+        raise OutputError(f"--out {out}: exists and is not a folder")
+    if out.is_dir() and not force:
+        clash = [n for n in OUTPUT_FILES if (out / n).exists()]
+        if clash:
+            raise OutputError(
+                f"--out {out}: already holds {', '.join(clash)}; use --force to replace them"
+            )
+    return out
+
+
+def sweep(problem: Problem, n: int = 2001) -> np.ndarray:
+    """The hand-over sweep: 0.2 f0 to 2.5 f0 (past the spurious band at 2 f0), band edges included."""
+    f = np.linspace(0.2 * problem.f0, 2.5 * problem.f0, n)
+    return np.unique(np.concatenate([f, [problem.mask.passband_start, problem.mask.passband_stop]]))
+
+
+def responses(r: RefineResult, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(refined, seed) S-matrices over ``f`` on the physical model with loss."""
+    p = r.problem
+    if r.layout is None:
+        d = synthesis.design(p.family, len(r.thetas), p.f0, p.fbw, p.z_ref, p.ripple_db)
+        ref = evaluate_electrical(r.capacitances, r.thetas, p.f0, p.z_ref, f)
+        return ref, synthesis.ideal_response(d, f)
+    return evaluate_layout(p, r.layout, f), evaluate_layout(p, r.seed_layout, f)
+
+
+def evaluate_layout(problem: Problem, layout: Layout, f: np.ndarray) -> np.ndarray:
+    medium = job.medium_for(problem)
+    from .model import strip_model_for
+
+    model = strip_model_for(medium, problem.gap_model, problem.z_ref, layout, f, True)
+    gaps, lengths, taps, widths = model.split(model.vector(layout))
+    from . import cascade
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        els = model._build(gaps, lengths, taps, widths)[0]
+        return cascade.s_parameters(els, f, problem.z_ref)
+
+
+def evaluate_electrical(caps, thetas, f0: float, z_ref: float, f: np.ndarray) -> np.ndarray:
+    from . import cascade
+
+    return cascade.s_parameters(synthesis.ideal_elements(caps, thetas, f0, z_ref, f), f, z_ref)
+
+
+def model_spread(problem: Problem, layout: Layout) -> dict[str, MaskResult]:
+    """The refined layout's verdict under every gap model of its medium."""
+    models = circuit.GAP_MODELS.get(problem.medium, ())
+    if len(models) < 2:
+        return {}
+    f = job.verification_grid(problem)
+    out = {}
+    for m in models:
+        p2 = _with_gap_model(problem, m)
+        s = evaluate_layout(p2, layout, f)
+        out[m] = problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
+    return out
+
+
+def _with_gap_model(problem: Problem, model: str) -> Problem:
+    from dataclasses import replace
+
+    return replace(problem, gap_model=model)
+
+
+def write_outputs(
+    r: RefineResult, sd: job.Seed, out: str | Path, power_w: float = 1.0, force: bool = False
+) -> list[Path]:
+    """Write every hand-over file; returns the paths written."""
+    out = prepare_folder(out, force)
+    out.mkdir(parents=True, exist_ok=True)
+    p = r.problem
+    f = sweep(p)
+    s_ref, s_seed = responses(r, f)
+    spread = model_spread(p, r.layout) if r.layout is not None else {}
+    notes: list[str] = []
+    if r.layout is not None:
+        medium = job.medium_for(p)
+        if r.layout.external == "gap":
+            notes = range_report(r.layout, medium, p.gap_model, float(f[-1]))
+        else:
+            notes = [
+                "tapped feed: the gap and line models were used; the T-junction is not modelled"
+            ]
+    status = {
+        "met": "meets the mask",
+        "not met": "DOES NOT MEET THE MASK",
+        "infeasible": "INFEASIBLE: DOES NOT MEET THE MASK",
+    }[r.status.value]
+    title = p.name
+    written = []
+    written.append(
+        export.write_json(out / "summary.json", report.summary(r, sd, spread, power_w, notes))
+    )
+    if r.layout is not None:
+        written.append(export.write_json(out / "layout.json", export.layout_dict(r.layout)))
+    else:
+        written.append(
+            export.write_json(
+                out / "layout.json", export.electrical_dict(r.capacitances, r.thetas, p.f0)
+            )
+        )
+    comments = [
+        f"{export.GENERATOR}: {title}",
+        f"status: {status}",
+        f"gap model: {p.gap_model}; medium: {p.medium}",
+    ]
+    written.append(export.write_touchstone(out / "response.s2p", f, s_ref, p.z_ref, comments))
+    if r.layout is not None:
+        written.append(export.write_dxf(out / "layout.dxf", r.layout, f"{title} ({status})"))
+        written.append(export.write_svg(out / "layout.svg", r.layout, f"{title} ({status})"))
+        written.append(plot.layout_png(out / "layout.png", r.layout, title))
+    written.append(plot.response_png(out / "response.png", f, s_ref, s_seed, p.mask, title, status))
+    written.append(
+        export.write_text_atomic(out / "report.md", report.report_md(r, sd, spread, power_w, notes))
+    )
+    return written

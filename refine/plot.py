@@ -1,0 +1,188 @@
+"""Pictures: the response against the mask, and the layout to scale.
+
+The mask is drawn as shaded forbidden regions: above -RL on |S11| across the passband, above
+-rejection on |S21| across each stopband.
+"""
+
+from __future__ import annotations
+
+import itertools
+from pathlib import Path
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .export import copper, write_atomic
+from .layout import Layout
+from .mask import Mask
+
+
+def _db(x: NDArray) -> NDArray:
+    return 20.0 * np.log10(np.maximum(np.abs(x), 1e-15))
+
+
+def _shade_mask(ax, mask: Mask, bottom: float) -> None:
+    ghz = 1e-9
+    if mask.min_return_loss_db is not None:
+        ax.fill_between(
+            [mask.passband_start * ghz, mask.passband_stop * ghz],
+            -mask.min_return_loss_db,
+            5,
+            color="tab:red",
+            alpha=0.15,
+            lw=0,
+            label="forbidden for |S11| (passband)",
+        )
+    for k, sb in enumerate(mask.stopbands):
+        ax.fill_between(
+            [max(sb.start, 1.0) * ghz, sb.stop * ghz],
+            -sb.rejection_db,
+            5,
+            color="tab:purple",
+            alpha=0.12,
+            lw=0,
+            label="forbidden for |S21| (stopbands)" if k == 0 else None,
+        )
+    if mask.max_insertion_loss_db is not None:
+        ax.plot(
+            [mask.midband * ghz],
+            [-mask.max_insertion_loss_db],
+            "v",
+            color="tab:red",
+            label="midband loss limit",
+        )
+
+
+def response_png(
+    path: str | Path,
+    f: NDArray,
+    s_refined: NDArray,
+    s_seed: NDArray | None,
+    mask: Mask,
+    title: str,
+    status: str,
+) -> Path:
+    """|S21|, |S11| in dB with the mask; seed dashed, refined solid; second panel on the passband."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    ghz = f * 1e-9
+    fig, axes = plt.subplots(1, 2, figsize=(12, 4.6), gridspec_kw={"width_ratios": [1.6, 1]})
+    lo, hi = mask.passband_start, mask.passband_stop
+    span = hi - lo
+    zoom = (f >= lo - 1.5 * span) & (f <= hi + 1.5 * span)
+    for ax, sel, name in ((axes[0], slice(None), "full sweep"), (axes[1], zoom, "passband")):
+        bottom = -80 if name == "full sweep" else -40
+        _shade_mask(ax, mask, bottom)
+        if s_seed is not None:
+            ax.plot(
+                ghz[sel],
+                _db(s_seed[sel, 1, 0]),
+                "--",
+                color="tab:blue",
+                lw=1,
+                label="|S21| closed-form seed",
+            )
+            ax.plot(
+                ghz[sel],
+                _db(s_seed[sel, 0, 0]),
+                "--",
+                color="tab:orange",
+                lw=1,
+                label="|S11| closed-form seed",
+            )
+        ax.plot(
+            ghz[sel], _db(s_refined[sel, 1, 0]), color="tab:blue", lw=1.8, label="|S21| refined"
+        )
+        ax.plot(
+            ghz[sel], _db(s_refined[sel, 0, 0]), color="tab:orange", lw=1.8, label="|S11| refined"
+        )
+        ax.set_ylim(bottom, 2)
+        ax.set_xlim(ghz[sel][0], ghz[sel][-1])
+        ax.set_xlabel("frequency (GHz)")
+        ax.set_ylabel("dB")
+        ax.grid(True, alpha=0.3)
+        ax.set_title(name)
+    axes[0].legend(loc="lower left", fontsize=7)
+    fig.suptitle(f"{title} — {status}", fontsize=11)
+    fig.tight_layout()
+
+    def writer(tmp: Path) -> None:
+        fig.savefig(tmp, format="png", dpi=120)
+
+    try:
+        return write_atomic(path, writer)
+    finally:
+        plt.close(fig)
+
+
+def layout_png(path: str | Path, layout: Layout, title: str) -> Path:
+    """The copper to scale (millimetres) with the gaps, lengths and widths labelled."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    from matplotlib.patches import Rectangle
+
+    strips = copper(layout)
+    fig, ax = plt.subplots(figsize=(12, 3.8))
+    for st in strips:
+        ax.add_patch(
+            Rectangle(
+                (st.x0 * 1e3, st.y0 * 1e3),
+                (st.x1 - st.x0) * 1e3,
+                (st.y1 - st.y0) * 1e3,
+                color="#b87333",
+            )
+        )
+    res = [s for s in strips if s.name.startswith("resonator")]
+    top = max(s.y1 for s in strips) * 1e3
+    for j, s in enumerate(res):
+        ax.text(
+            (s.x0 + s.x1) / 2 * 1e3,
+            s.y1 * 1e3 + 0.15 * top + 0.05,
+            f"L{j + 1} {layout.lengths[j] * 1e3:.3f}\nW {layout.widths[j] * 1e3:.3f}",
+            ha="center",
+            va="bottom",
+            fontsize=7,
+        )
+    chain = sorted([s for s in strips if s.y0 < 0 < s.y1], key=lambda s: s.x0)
+    first_gap = 0 if layout.external == "gap" else 1
+    k = 0
+    for a, b in itertools.pairwise(chain):
+        if b.x0 > a.x1 + 1e-12:
+            ax.annotate(
+                f"s{k + first_gap}\n{(b.x0 - a.x1) * 1e6:.1f} um",
+                (((a.x1 + b.x0) / 2) * 1e3, -top),
+                ha="center",
+                va="top",
+                fontsize=7,
+                color="tab:blue",
+            )
+            k += 1
+    if layout.taps is not None:
+        ax.text(
+            strips[-2].x0 * 1e3,
+            strips[-2].y0 * 1e3,
+            f"tap {layout.taps[0] * 1e3:.3f} from open end",
+            fontsize=7,
+            va="top",
+        )
+    xs = [v for s in strips for v in (s.x0, s.x1)]
+    ys = [v for s in strips for v in (s.y0, s.y1)]
+    ax.set_xlim(min(xs) * 1e3 - 0.5, max(xs) * 1e3 + 0.5)
+    ax.set_ylim(min(ys) * 1e3 - 3 * top, max(ys) * 1e3 + 4 * top)
+    ax.set_aspect("equal")
+    ax.set_xlabel("mm")
+    ax.set_title(f"{title} — copper to scale, dimensions in mm unless marked", fontsize=10)
+    fig.tight_layout()
+
+    def writer(tmp: Path) -> None:
+        fig.savefig(tmp, format="png", dpi=130)
+
+    try:
+        return write_atomic(path, writer)
+    finally:
+        plt.close(fig)

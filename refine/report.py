@@ -1,0 +1,277 @@
+"""The design in words and numbers: summary.json, report.md, and the peak gap voltage.
+
+Peak gap voltage: with the source's available power P (peak EMF sqrt(8 P z_ref) behind z_ref),
+the voltage across each gap's series capacitance is computed over the passband from the node
+voltages of the cascade, and compared with a conservative breakdown field of 1 kV/mm (a third of
+the ~3 kV/mm of dry air at sea level; common practice, no source) across the gap width.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import asdict
+
+import numpy as np
+
+from . import cascade, job, validity
+from .model import strip_model_for
+from .refiner import RefineResult, Status
+
+BREAKDOWN_V_PER_M = 1.0e6  # conservative: 1 kV/mm
+
+
+def gap_voltages(r: RefineResult, power_w: float) -> list[float]:
+    """Peak voltage (V) across each series gap of the refined layout over the passband."""
+    p = r.problem
+    lay = r.layout
+    medium = job.medium_for(p)
+    f = np.linspace(p.mask.passband_start, p.mask.passband_stop, 201)
+    model = strip_model_for(medium, p.gap_model, p.z_ref, lay, f, True)
+    gaps, lengths, taps, widths = model.split(model.vector(lay))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        els, _deps, gap_slots, _lines, _iw = model._build(gaps, lengths, taps, widths)
+        states = cascade.node_states(els, f, p.z_ref)
+    v_in, i_in = states[0]
+    emf = math.sqrt(8.0 * power_w * p.z_ref)
+    scale = emf / (v_in + p.z_ref * i_in)
+    out = []
+    for e, *_ in gap_slots:
+        dv = (states[e][0] - states[e + 1][0]) * scale
+        out.append(float(np.max(np.abs(dv))))
+    return out
+
+
+def _dims(r: RefineResult) -> dict:
+    if r.layout is None:
+        return {
+            "series_capacitances_farad": list(r.capacitances),
+            "electrical_lengths_rad_at_f0": list(r.thetas),
+        }
+    lay = r.layout
+    return {
+        "external": lay.external,
+        "feed_width": lay.feed_width,
+        "widths": list(lay.widths),
+        "gaps": list(lay.gaps),
+        "lengths": list(lay.lengths),
+        "taps": None if lay.taps is None else list(lay.taps),
+        "total_length": lay.total_length,
+    }
+
+
+def summary(
+    r: RefineResult, sd: job.Seed, spread: dict, power_w: float, warnings_: list[str]
+) -> dict:
+    p = r.problem
+    volts = gap_voltages(r, power_w) if r.layout is not None else []
+    out = {
+        "problem": p.name,
+        "source": p.source,
+        "status": r.status.value,
+        "meets_mask": r.status is Status.MET,
+        "worst_margin_db": r.worst_margin,
+        "worst_margins_db": r.worst,
+        "worst_at_hz": r.where,
+        "binding": list(r.binding),
+        "layout_m": _dims(r),
+        "seed": {
+            "worst_margin_db": r.seed_worst_margin,
+            "worst_margins_db": r.seed_worst,
+            "layout_m": None
+            if r.seed_layout is None
+            else {
+                "gaps": list(r.seed_layout.gaps),
+                "lengths": list(r.seed_layout.lengths),
+                "widths": list(r.seed_layout.widths),
+            },
+        },
+        "design": {
+            "family": p.family,
+            "order": sd.design.order,
+            "ripple_db": p.ripple_db,
+            "f0_hz": p.f0,
+            "fbw": p.fbw,
+            "z_ref_ohm": p.z_ref,
+            "g": list(sd.design.g),
+            "j_norm": list(sd.design.j_norm),
+        },
+        "medium": {"kind": p.medium, **(asdict(p.substrate) if p.substrate else {})},
+        "fab": asdict(p.fab) if p.fab else None,
+        "models": {
+            "gap": p.gap_model,
+            "line": "Hammerstad-Jensen + Kirschning-Jansen + Jansen-Kirschning"
+            if p.medium == "microstrip"
+            else ("Cohn + Wheeler" if p.medium == "stripline" else "ideal TEM"),
+        },
+        "strategy": r.strategy,
+        "evaluations": r.evaluations,
+        "wall_time_s": r.wall_time,
+        "snapping": {
+            "grid_m": p.fab.grid if p.fab else None,
+            "margin_before_db": r.unsnapped_margin,
+            "margin_after_db": r.snapped_margin,
+        },
+        "fab_violations": list(r.fab_violations),
+        "gap_model_spread_db": {m: res.worst for m, res in spread.items()},
+        "peak_gap_voltage_v": volts,
+        "input_power_w": power_w,
+        "diagnosis": None
+        if r.diagnosis is None
+        else {
+            "couplings": [
+                {
+                    "coupling": f"{c.index},{c.index + 1}",
+                    "j_needed": c.j_needed,
+                    "j_max": c.j_max,
+                    "width_at_max_m": c.width_at_max,
+                    "reachable": c.ok,
+                }
+                for c in r.diagnosis.couplings
+            ],
+            "remedies": list(r.diagnosis.remedies),
+        },
+        "warnings": warnings_,
+        "notes": list(r.notes),
+    }
+    return out
+
+
+CAUTIONS = """## Cautions
+
+- Closed-form line and gap models are approximate (a few percent; the two microstrip gap models
+  differ by 20–36 % in series capacitance at small gaps). Before fabrication, verify this layout
+  with an electromagnetic simulation and a measured prototype.
+- Small gaps at high RF power can arc. The peak gap voltages above are for the stated input
+  power against a conservative 1 kV/mm; check them against your power, environment and margin.
+- Transmitters must meet local radio regulations and RF-exposure limits. Defer to local codes and
+  licensed practice.
+"""
+
+
+def report_md(
+    r: RefineResult, sd: job.Seed, spread: dict, power_w: float, warnings_: list[str]
+) -> str:
+    p = r.problem
+    lines = [f"# {p.name}", ""]
+    verdict = {
+        Status.MET: "**The refined design meets the mask.**",
+        Status.NOT_MET: "**NOT MET: the best design found does not meet the mask.** The outputs describe that best design.",
+        Status.INFEASIBLE: "**INFEASIBLE: no design meeting the mask exists under these fab rules** (see the diagnosis). The outputs describe the best design found.",
+    }[r.status]
+    lines += [
+        verdict,
+        "",
+        f"Worst margin {r.worst_margin:+.2f} dB on the verification grid (closed-form seed {r.seed_worst_margin:+.2f} dB); "
+        f"{r.evaluations} evaluations, {r.wall_time:.1f} s, strategy `{r.strategy}`.",
+        "",
+    ]
+    lines += [
+        "## Specification",
+        "",
+        f"- {p.family} response, order {sd.design.order}"
+        + (f", {p.ripple_db:g} dB ripple" if p.ripple_db else "")
+        + f"; centre {p.f0 / 1e9:.6g} GHz, fractional bandwidth {100 * p.fbw:.4g} %, z_ref {p.z_ref:g} ohm",
+    ]
+    m = p.mask
+    lines.append(
+        f"- passband {m.passband_start / 1e9:.6g}–{m.passband_stop / 1e9:.6g} GHz"
+        + (f", return loss ≥ {m.min_return_loss_db:g} dB" if m.min_return_loss_db else "")
+        + (f", ripple ≤ {m.max_ripple_db:g} dB" if m.max_ripple_db else "")
+        + (f", midband loss ≤ {m.max_insertion_loss_db:g} dB" if m.max_insertion_loss_db else "")
+    )
+    for sb in m.stopbands:
+        lines.append(f"- {sb.label}: rejection ≥ {sb.rejection_db:g} dB")
+    if p.substrate:
+        s = p.substrate
+        lines += [
+            "",
+            "## Substrate and fab rules",
+            "",
+            f"- {p.medium}: eps_r {s.eps_r:g}, height {s.height * 1e3:.4g} mm, metal {s.metal_thickness * 1e6:.3g} um, "
+            f"tan δ {s.loss_tangent:g}, conductivity {s.conductivity or 0:.3g} S/m, roughness {s.roughness * 1e6:.3g} um",
+            f"- gap model {p.gap_model}; coupling {p.external}",
+            f"- minimum gap {p.fab.min_gap * 1e6:.3g} um"
+            + (f", minimum width {p.fab.min_width * 1e6:.3g} um" if p.fab.min_width else "")
+            + (f", grid {p.fab.grid * 1e6:.3g} um" if p.fab.grid else ""),
+        ]
+    lines += [
+        "",
+        "## Margins (dB; positive passes)",
+        "",
+        "| region | refined | seed | worst at (GHz) |",
+        "|---|---|---|---|",
+    ]
+    for name, val in r.worst.items():
+        lines.append(
+            f"| {name} | {val:+.2f} | {r.seed_worst[name]:+.2f} | {r.where[name] / 1e9:.4f} |"
+        )
+    if r.snapped_margin is not None:
+        lines += [
+            "",
+            f"Snapped to the shop's {p.fab.grid * 1e6:g} um grid: worst margin {r.unsnapped_margin:+.2f} dB before, {r.snapped_margin:+.2f} dB after.",
+        ]
+    lines += ["", "## Dimensions", ""]
+    if r.layout is None:
+        lines += ["| element | value |", "|---|---|"]
+        lines += [f"| C {k} | {c * 1e12:.5f} pF |" for k, c in enumerate(r.capacitances)]
+        lines += [f"| θ {j + 1} | {math.degrees(t):.3f}° at f0 |" for j, t in enumerate(r.thetas)]
+    else:
+        lay, seed = r.layout, r.seed_layout
+        first = 0 if lay.external == "gap" else 1
+        lines += ["| dimension | refined | closed-form seed |", "|---|---|---|"]
+        lines += [
+            f"| gap {k + first} | {s * 1e6:.2f} µm | {seed.gaps[k] * 1e6:.2f} µm |"
+            for k, s in enumerate(lay.gaps)
+        ]
+        for j in range(lay.order):
+            lines.append(
+                f"| resonator {j + 1} length | {lay.lengths[j] * 1e3:.4f} mm | {seed.lengths[j] * 1e3:.4f} mm |"
+            )
+            lines.append(
+                f"| resonator {j + 1} width | {lay.widths[j] * 1e6:.2f} µm | {seed.widths[j] * 1e6:.2f} µm |"
+            )
+        if lay.taps:
+            lines += [
+                f"| tap {'in' if i == 0 else 'out'} (from the outer open end) | {t * 1e3:.4f} mm | {seed.taps[i] * 1e3:.4f} mm |"
+                for i, t in enumerate(lay.taps)
+            ]
+        lines.append(
+            f"| feed width | {lay.feed_width * 1e6:.2f} µm | {seed.feed_width * 1e6:.2f} µm |"
+        )
+        lines.append(
+            f"| total length | {lay.total_length * 1e3:.3f} mm | {seed.total_length * 1e3:.3f} mm |"
+        )
+        volts = gap_voltages(r, power_w)
+        lines += [
+            "",
+            f"## Peak gap voltage at {power_w:g} W input",
+            "",
+            "| gap | width | peak voltage | conservative limit (1 kV/mm) |",
+            "|---|---|---|---|",
+        ]
+        for k, (s, vpk) in enumerate(zip(lay.gaps, volts, strict=True)):
+            lim = BREAKDOWN_V_PER_M * s
+            flag = "" if vpk < lim else " **exceeds**"
+            lines.append(
+                f"| gap {k + first} | {s * 1e6:.1f} µm | {vpk:.1f} V | {lim:.0f} V{flag} |"
+            )
+    if r.diagnosis is not None:
+        lines += ["", "## Diagnosis", ""]
+        lines += [f"- {c}" for c in r.diagnosis.couplings]
+        lines += [f"- remedy: {rem}" for rem in r.diagnosis.remedies]
+        if r.status is not Status.MET:
+            lines += [f"- binding: {b}" for b in r.binding]
+    if spread:
+        lines += ["", "## Gap-model spread (same refined layout, worst margin per region, dB)", ""]
+        names = list(r.worst)
+        lines += ["| gap model | " + " | ".join(names) + " |", "|---" * (len(names) + 1) + "|"]
+        for mname, res in spread.items():
+            lines.append(f"| {mname} | " + " | ".join(f"{res.worst[n]:+.2f}" for n in names) + " |")
+    if warnings_:
+        lines += ["", "## Model-range warnings", ""] + [f"- {w}" for w in warnings_]
+    if r.notes:
+        lines += ["", "## Notes", ""] + [f"- {n}" for n in r.notes]
+    lines += ["", CAUTIONS]
+    return "\n".join(lines) + "\n"

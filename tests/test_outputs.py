@@ -1,0 +1,196 @@
+"""End to end: `refine design --out` on bundled problems, the hand-over files read back by outside
+tools (scikit-rf for Touchstone, ezdxf's audit for DXF), `refine check`, and the bad-input corpus."""
+
+import json
+import warnings
+from pathlib import Path
+
+import ezdxf
+import matplotlib.image
+import numpy as np
+import pytest
+from skrf import Network
+
+from refine import export
+from refine.cli import main
+
+ROOT = Path(__file__).parent.parent
+ALUMINA = ROOT / "problems/microstrip-x-band-alumina-n3.toml"
+BAD = sorted((Path(__file__).parent / "bad_problems").glob("*.toml"))
+
+
+@pytest.fixture(scope="module")
+def alumina_out(tmp_path_factory):
+    out = tmp_path_factory.mktemp("alumina") / "out"
+    assert main(["design", str(ALUMINA), "--out", str(out), "--power", "2"]) == 0
+    return out
+
+
+def test_every_output_file_is_written(alumina_out):
+    names = sorted(p.name for p in alumina_out.iterdir())
+    assert names == sorted(
+        [
+            "summary.json",
+            "layout.json",
+            "response.s2p",
+            "layout.dxf",
+            "layout.svg",
+            "response.png",
+            "layout.png",
+            "report.md",
+        ]
+    )
+
+
+def test_summary_json(alumina_out):
+    s = json.loads((alumina_out / "summary.json").read_text())
+    assert s["status"] == "met" and s["meets_mask"] is True
+    assert s["worst_margin_db"] >= 0 and s["worst_margin_db"] > s["seed"]["worst_margin_db"]
+    lay = s["layout_m"]
+    assert (
+        len(lay["gaps"]) == 4 and len(lay["lengths"]) == 3 and all(g >= 15e-6 for g in lay["gaps"])
+    )
+    assert set(s["gap_model_spread_db"]) == {"garg-bahl", "kirschning-jansen-koster"}
+    assert len(s["peak_gap_voltage_v"]) == 4 and s["input_power_w"] == 2
+    assert s["models"]["gap"] == "garg-bahl" and s["medium"]["eps_r"] == 9.8
+    assert s["fab_violations"] == []
+
+
+def test_touchstone_reads_back_in_scikit_rf_identically(alumina_out):
+    # Outside reference: scikit-rf's Touchstone reader.
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        ntw = Network(str(alumina_out / "response.s2p"))
+    lay = export.read_layout(alumina_out / "layout.json")
+    from refine.outputs import evaluate_layout, sweep
+    from refine.problem import load_problem
+
+    p = load_problem(ALUMINA)
+    f = sweep(p)
+    ours = evaluate_layout(p, lay, f)
+    np.testing.assert_allclose(ntw.f, f, rtol=1e-15)
+    np.testing.assert_allclose(ntw.s, ours, rtol=1e-12, atol=1e-15)
+    assert np.allclose(ntw.z0, 50.0)
+    assert ntw.f[-1] > 2 * p.f0  # the sweep runs past the spurious band near 2 f0
+
+
+def test_dxf_passes_ezdxf_audit(alumina_out):
+    doc = ezdxf.readfile(alumina_out / "layout.dxf")
+    auditor = doc.audit()
+    assert not auditor.has_errors
+    copper = [e for e in doc.modelspace() if e.dxf.layer == "copper"]
+    assert len(copper) == 5  # two feeds and three resonators, separated by real openings
+    xs = sorted(
+        (min(p[0] for p in e.get_points()), max(p[0] for p in e.get_points())) for e in copper
+    )
+    lay = export.read_layout(alumina_out / "layout.json")
+    for (_, a1), (b0, _), s in zip(xs[:-1], xs[1:], lay.gaps, strict=True):
+        assert b0 - a1 == pytest.approx(s * 1e3, abs=1e-9)  # the gaps, in millimetres
+
+
+def test_pictures_are_valid_png(alumina_out):
+    for name in ("response.png", "layout.png"):
+        data = (alumina_out / name).read_bytes()
+        assert data[:8] == b"\x89PNG\r\n\x1a\n"
+        img = matplotlib.image.imread(alumina_out / name)
+        assert img.shape[0] > 300 and img.shape[1] > 800
+    svg = (alumina_out / "layout.svg").read_text()
+    assert svg.startswith("<svg") and svg.count("<rect") == 6  # background + five strips
+
+
+def test_report_carries_the_job_and_the_cautions(alumina_out):
+    text = (alumina_out / "report.md").read_text()
+    for part in (
+        "meets the mask",
+        "## Specification",
+        "## Dimensions",
+        "## Margins",
+        "Peak gap voltage at 2 W",
+        "Gap-model spread",
+        "electromagnetic simulation",
+        "arc",
+        "RF-exposure",
+    ):
+        assert part in text, part
+
+
+def test_check_reads_the_layout_back(alumina_out, capsys):
+    assert main(["check", str(alumina_out / "layout.json"), "--problem", str(ALUMINA)]) == 0
+    assert "status: mask met" in capsys.readouterr().out
+    edited = json.loads((alumina_out / "layout.json").read_text())
+    edited["lengths"] = [x * 1.03 for x in edited["lengths"]]  # a hand edit that detunes it
+    bad = alumina_out.parent / "edited.json"
+    bad.write_text(json.dumps(edited))
+    assert main(["check", str(bad), "--problem", str(ALUMINA)]) == 1
+
+
+def test_outputs_are_not_overwritten_without_force(alumina_out, capsys):
+    before = {p.name: p.read_bytes() for p in alumina_out.iterdir()}
+    assert main(["design", str(ALUMINA), "--out", str(alumina_out)]) == 2
+    assert "use --force" in capsys.readouterr().err
+    assert {p.name: p.read_bytes() for p in alumina_out.iterdir()} == before
+
+
+def test_infeasible_problem_still_writes_marked_outputs(tmp_path):
+    out = tmp_path / "inf"
+    assert (
+        main(["design", str(ROOT / "problems/inf-pcb-gap-5g8-n3-3pct.toml"), "--out", str(out)])
+        == 1
+    )
+    s = json.loads((out / "summary.json").read_text())
+    assert s["status"] == "infeasible" and s["meets_mask"] is False and s["diagnosis"]["remedies"]
+    assert "INFEASIBLE" in (out / "report.md").read_text()
+    assert "DOES NOT MEET THE MASK" in (out / "response.s2p").read_text().splitlines()[1]
+
+
+def test_ideal_problem_writes_electrical_layout(tmp_path):
+    out = tmp_path / "ideal"
+    assert main(["design", str(ROOT / "problems/ideal-s-band-n5.toml"), "--out", str(out)]) == 0
+    lay = json.loads((out / "layout.json").read_text())
+    assert lay["medium"] == "ideal" and len(lay["series_capacitances_farad"]) == 6
+    assert not (out / "layout.dxf").exists()  # no copper on the ideal medium
+    assert (
+        main(
+            [
+                "check",
+                str(out / "layout.json"),
+                "--problem",
+                str(ROOT / "problems/ideal-s-band-n5.toml"),
+            ]
+        )
+        == 0
+    )
+
+
+def test_bad_input_corpus_is_large():
+    assert len(BAD) >= 40
+
+
+@pytest.mark.parametrize("path", BAD, ids=lambda p: p.stem)
+def test_bad_problem_is_refused_and_nothing_is_written(path, tmp_path, capsys):
+    expect = path.read_text().splitlines()[0].removeprefix("# expect: ")
+    out = tmp_path / "out"
+    assert main(["design", str(path), "--out", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert expect in err and str(path) in err and "Traceback" not in err
+    assert not out.exists()
+
+
+def test_bad_power_is_refused_before_anything_is_written(tmp_path, capsys):
+    out = tmp_path / "out"
+    assert main(["design", str(ALUMINA), "--out", str(out), "--power", "-1"]) == 2
+    assert "--power = -1 W is outside the allowed range (0, inf)" in capsys.readouterr().err
+    assert not out.exists()
+
+
+def test_atomic_write_leaves_old_file_on_failure(tmp_path):
+    target = tmp_path / "x.txt"
+    target.write_text("old")
+
+    def failing(p):
+        p.write_text("half")
+        raise RuntimeError("disk full")
+
+    with pytest.raises(RuntimeError):
+        export.write_atomic(target, failing)
+    assert target.read_text() == "old" and [p.name for p in tmp_path.iterdir()] == ["x.txt"]
