@@ -240,6 +240,27 @@ def refined_table(r: RefineResult) -> str:
     return _table(["dimension", "refined", "closed-form seed"], rows)
 
 
+def _progress_printer():
+    """Evaluations and best worst margin so far: one rewritten line on a terminal, a line every
+    50 evaluations otherwise (logs, CI)."""
+    tty = sys.stderr.isatty()
+
+    def show(n: int, worst: float) -> None:
+        if tty:
+            print(
+                f"\r  {n:5d} evaluations, best worst margin {worst:+8.3f} dB",
+                end="",
+                file=sys.stderr,
+                flush=True,
+            )
+        elif n % 50 == 0:
+            print(
+                f"  {n} evaluations, best worst margin {worst:+.3f} dB", file=sys.stderr, flush=True
+            )
+
+    return show
+
+
 def _cmd_design(args: argparse.Namespace) -> int:
     problem = load_problem(args.problem)
     if args.power <= 0 or not math.isfinite(args.power):
@@ -251,7 +272,7 @@ def _cmd_design(args: argparse.Namespace) -> int:
     _print_seed(sd)
     print()
     print(f"refining ({args.strategy}) ...", flush=True)
-    r = refine_problem(problem, Strategy(args.strategy), stopping, sd)
+    r = refine_problem(problem, Strategy(args.strategy), stopping, sd, _progress_printer())
     print()
     print(
         f"status: {r.status.value.upper()} — worst margin {r.worst_margin:+.2f} dB on the "

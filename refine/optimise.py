@@ -173,6 +173,9 @@ class DesignSpace:
         return names
 
 
+ProgressFn = Callable[[int, float], None]
+
+
 @dataclass
 class RunRecord:
     """What one optimiser run did."""
@@ -226,6 +229,7 @@ def _run_nlopt(
     extra: Callable[[NDArray], tuple[NDArray, NDArray]] | None = None,
     algo: int | None = None,
     aggregate: bool = False,
+    progress: ProgressFn | None = None,
 ) -> RunRecord:
     """One epigraph run; returns the best point seen (see the module's failure policy).
 
@@ -263,6 +267,8 @@ def _run_nlopt(
                 feasible_extra = bool(np.all(extra(z)[0] <= 1e-9))
             if worst > best["worst"] and feasible_extra:
                 best["worst"], best["z"] = worst, z.copy()
+            if progress is not None:
+                progress(best["n"], best["worst"])
             if worst >= stopping.target_margin_db and feasible_extra:
                 opt.force_stop()
             elif best["n"] - best["n_at_best"] >= STALL_EVALUATIONS:
@@ -350,12 +356,13 @@ def refine_once(
     restarts: int = 4,
     seed: int = 0,
     thorough: bool = True,
+    progress: ProgressFn | None = None,
 ) -> RunRecord:
     """Run ``strategy``; ``multistart`` restarts the gradient method from perturbed points."""
     if strategy is Strategy.GRADIENT:
-        return _gradient_then_polish(space, mask, f, fn, z0, stopping, extra, thorough)
+        return _gradient_then_polish(space, mask, f, fn, z0, stopping, extra, thorough, progress)
     if strategy is not Strategy.MULTISTART:
-        return _run_nlopt(strategy, space, mask, f, fn, z0, stopping, extra)
+        return _run_nlopt(strategy, space, mask, f, fn, z0, stopping, extra, progress=progress)
     t0 = time.perf_counter()
     rec = _gradient_then_polish(space, mask, f, fn, z0, stopping, extra, thorough)
     rng = np.random.default_rng(seed)
@@ -375,7 +382,15 @@ def refine_once(
 
 
 def _gradient_then_polish(
-    space, mask, f, fn, z0, stopping: Stopping, extra, thorough: bool = True
+    space,
+    mask,
+    f,
+    fn,
+    z0,
+    stopping: Stopping,
+    extra,
+    thorough: bool = True,
+    progress: ProgressFn | None = None,
 ) -> RunRecord:
     """SLSQP; while the mask is still violated, SLSQP again from its best point (a fresh
     quasi-Newton model, up to ``SLSQP_RESTARTS`` times), then CCSAQ from the best point for at
@@ -383,7 +398,13 @@ def _gradient_then_polish(
     buy extra margin, where it is slow (its dual subproblem grows with the constraint count).
     Unless ``thorough``, the polish sees each mask region as one smooth-maximum constraint,
     which is much faster and somewhat less effective."""
-    best = _run_nlopt(Strategy.GRADIENT, space, mask, f, fn, z0, stopping, extra)
+
+    def report(n: int, worst: float) -> None:
+        if progress is not None:
+            progress(total_box[0] + n, worst)
+
+    total_box = [0]
+    best = _run_nlopt(Strategy.GRADIENT, space, mask, f, fn, z0, stopping, extra, progress=report)
     total, hist = best.evaluations, list(best.history)
 
     def budget_left() -> int | None:

@@ -12,6 +12,7 @@ from __future__ import annotations
 import enum
 import math
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -176,15 +177,18 @@ def refine_problem(
     strategy: Strategy = Strategy.GRADIENT,
     stopping: Stopping | None = None,
     seed: job.Seed | None = None,
+    progress: Callable[[int, float], None] | None = None,
 ) -> RefineResult:
-    """Refine a problem's closed-form seed until the mask is met under the fab rules."""
+    """Refine a problem's closed-form seed until the mask is met under the fab rules.
+
+    ``progress(evaluations, best_worst_margin_db)`` is called after every model evaluation."""
     stopping = stopping or Stopping()
     t0 = time.perf_counter()
     sd = seed or job.seed(problem)
     d = sd.design
     notes: list[str] = []
     if problem.medium == "ideal":
-        return _refine_ideal(problem, sd, strategy, stopping, t0)
+        return _refine_ideal(problem, sd, strategy, stopping, t0, progress)
 
     medium = job.medium_for(problem)
     if problem.external == "tap":
@@ -240,6 +244,7 @@ def refine_problem(
             Stopping(budget, stopping.max_seconds, stopping.target_margin_db, stopping.xtol_rel),
             extra,
             thorough=diag.couplings_reachable,
+            progress=_offset(progress, evaluations),
         )
         evaluations += rec.evaluations
         history += rec.history
@@ -350,6 +355,13 @@ def refine_problem(
     )
 
 
+def _offset(progress, done: int):
+    """A progress callback that counts on from ``done`` evaluations of earlier rounds."""
+    if progress is None:
+        return None
+    return lambda n, worst: progress(done + n, worst)
+
+
 def _aim(stopping: Stopping, seed_res: MaskResult) -> Stopping:
     """When the seed already meets the mask with the requested margin there is no reason to stop
     at it: aim for as much margin as the budget buys (better yield)."""
@@ -391,7 +403,7 @@ def _length_constraint(problem: Problem, model: StripFilterModel, space: DesignS
 
 
 def _refine_ideal(
-    problem: Problem, sd: job.Seed, strategy: Strategy, stopping: Stopping, t0: float
+    problem: Problem, sd: job.Seed, strategy: Strategy, stopping: Stopping, t0: float, progress=None
 ) -> RefineResult:
     d = sd.design
     n = d.order
@@ -433,6 +445,7 @@ def _refine_ideal(
             fn,
             z,
             Stopping(budget, stopping.max_seconds, stopping.target_margin_db, stopping.xtol_rel),
+            progress=_offset(progress, evaluations),
         )
         evaluations += rec.evaluations
         history += rec.history

@@ -194,3 +194,21 @@ def test_atomic_write_leaves_old_file_on_failure(tmp_path):
     with pytest.raises(RuntimeError):
         export.write_atomic(target, failing)
     assert target.read_text() == "old" and [p.name for p in tmp_path.iterdir()] == ["x.txt"]
+
+
+def test_tapped_layout_drawing(tmp_path):
+    out = tmp_path / "tap"
+    assert (
+        main(["design", str(ROOT / "problems/ms-pcb-tap-5g8-n3-3pct.toml"), "--out", str(out)]) == 0
+    )
+    lay = export.read_layout(out / "layout.json")
+    assert lay.external == "tap" and len(lay.gaps) == 2 and lay.taps is not None
+    doc = ezdxf.readfile(out / "layout.dxf")
+    assert not doc.audit().has_errors
+    strips = export.copper(lay)
+    feed_in = next(s for s in strips if s.name == "feed in")
+    res1 = next(s for s in strips if s.name == "resonator 1")
+    assert (feed_in.x0 + feed_in.x1) / 2 - res1.x0 == pytest.approx(
+        lay.taps[0]
+    )  # centre line at the tap
+    assert feed_in.y1 == pytest.approx(res1.y0)  # the feed touches the resonator's edge
