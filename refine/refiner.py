@@ -218,52 +218,29 @@ def refine_problem(
     seed_res, _ = _verify(problem, factory, p_seed)
     extra = _length_constraint(problem, model, space)
     z = space.to_free(np.array([v.value for v in space.variables]))
-    evaluations, history = 0, []
-    res = seed_res
-    best_res, best_z = seed_res, z
     stopping = _aim(stopping, seed_res)
-    for _round in range(3):
-        model = factory(f_opt)
-
-        def fn(p, grad, model=model):
-            r = model.response(p, grad)
-            return r.s11, r.s21, r.ds11, r.ds21
-
-        budget = (
-            None
-            if stopping.max_evaluations is None
-            else max(stopping.max_evaluations - evaluations, 1)
-        )
-        rec = refine_once(
-            strategy,
-            space,
-            problem.mask,
-            f_opt,
-            fn,
-            z,
-            Stopping(budget, stopping.max_seconds, stopping.target_margin_db, stopping.xtol_rel),
-            extra,
-            thorough=diag.couplings_reachable,
-            progress=_offset(progress, evaluations),
-        )
-        evaluations += rec.evaluations
-        history += rec.history
-        z = rec.z
-        res_new, _ = _verify(problem, factory, space.to_physical(z))
-        if res_new.worst_margin > best_res.worst_margin:
-            best_res, best_z = res_new, z
-        res, z = best_res, best_z
-        if (
-            res.passed
-            or rec.worst_margin < min(stopping.target_margin_db, 0.0)
-            or (budget is not None and evaluations >= stopping.max_evaluations)
-        ):
-            break
-        # the optimiser's grid met the mask but the dense grid did not: add what it missed
-        f_opt = np.unique(np.concatenate([f_opt, list(res.where.values())]))
-        notes.append(
-            f"verification found {res.worst_margin:+.3f} dB between optimiser samples; the grid was refined"
-        )
+    rounds = _refine_rounds(
+        problem,
+        factory,
+        space,
+        f_opt,
+        z,
+        seed_res,
+        strategy,
+        stopping,
+        extra,
+        diag.couplings_reachable,
+        progress,
+    )
+    res, z, f_opt, evaluations, history = (
+        rounds.res,
+        rounds.z,
+        rounds.f_opt,
+        rounds.evaluations,
+        rounds.history,
+    )
+    notes += rounds.notes
+    model = factory(f_opt)
     p = space.to_physical(z)
     unsnapped = res.worst_margin
     snapped_margin = None
@@ -355,6 +332,78 @@ def refine_problem(
     )
 
 
+@dataclass
+class _Rounds:
+    res: MaskResult
+    z: NDArray
+    f_opt: NDArray
+    evaluations: int
+    history: list[float]
+    notes: list[str]
+
+
+def _refine_rounds(
+    problem: Problem,
+    factory,
+    space: DesignSpace,
+    f_opt: NDArray,
+    z: NDArray,
+    seed_res: MaskResult,
+    strategy: Strategy,
+    stopping: Stopping,
+    extra=None,
+    thorough: bool = True,
+    progress=None,
+) -> _Rounds:
+    """Refine on the optimiser grid, verify on the dense grid, and, when a violation hid between
+    the optimiser's samples, add those frequencies to its grid and go on (at most 3 rounds).
+    Returns the best verified point (the seed's, if nothing beat it)."""
+    evaluations, history, notes = 0, [], []
+    best_res, best_z = seed_res, z
+    for _round in range(3):
+        model = factory(f_opt)
+
+        def fn(p, grad, model=model):
+            r = model.response(p, grad)
+            return r.s11, r.s21, r.ds11, r.ds21
+
+        budget = (
+            None
+            if stopping.max_evaluations is None
+            else max(stopping.max_evaluations - evaluations, 1)
+        )
+        rec = refine_once(
+            strategy,
+            space,
+            problem.mask,
+            f_opt,
+            fn,
+            z,
+            Stopping(budget, stopping.max_seconds, stopping.target_margin_db, stopping.xtol_rel),
+            extra,
+            thorough=thorough,
+            progress=_offset(progress, evaluations),
+        )
+        evaluations += rec.evaluations
+        history += rec.history
+        res_new, _ = _verify(problem, factory, space.to_physical(rec.z))
+        if res_new.worst_margin > best_res.worst_margin:
+            best_res, best_z = res_new, rec.z
+        z = best_z
+        if (
+            best_res.passed
+            or rec.worst_margin < min(stopping.target_margin_db, 0.0)
+            or (budget is not None and evaluations >= stopping.max_evaluations)
+        ):
+            break
+        # the optimiser's grid met the mask but the dense grid did not: add what it missed
+        f_opt = np.unique(np.concatenate([f_opt, list(res_new.where.values())]))
+        notes.append(
+            f"verification found {res_new.worst_margin:+.3f} dB between optimiser samples; the grid was refined"
+        )
+    return _Rounds(best_res, best_z, f_opt, evaluations, history, notes)
+
+
 def _offset(progress, done: int):
     """A progress callback that counts on from ``done`` evaluations of earlier rounds."""
     if progress is None:
@@ -422,48 +471,16 @@ def _refine_ideal(
     stopping = _aim(stopping, seed_res)
     f_opt = optimiser_grid(problem.mask, n)
     z = space.to_free(p_seed)
-    evaluations, history, notes = 0, [], []
-    res = seed_res
-    best_res, best_z = seed_res, z
-    for _round in range(3):
-        model = factory(f_opt)
-
-        def fn(p, grad, model=model):
-            r = model.response(p, grad)
-            return r.s11, r.s21, r.ds11, r.ds21
-
-        budget = (
-            None
-            if stopping.max_evaluations is None
-            else max(stopping.max_evaluations - evaluations, 1)
-        )
-        rec = refine_once(
-            strategy,
-            space,
-            problem.mask,
-            f_opt,
-            fn,
-            z,
-            Stopping(budget, stopping.max_seconds, stopping.target_margin_db, stopping.xtol_rel),
-            progress=_offset(progress, evaluations),
-        )
-        evaluations += rec.evaluations
-        history += rec.history
-        z = rec.z
-        res_new, _ = _verify(problem, factory, space.to_physical(z))
-        if res_new.worst_margin > best_res.worst_margin:
-            best_res, best_z = res_new, z
-        res, z = best_res, best_z
-        if (
-            res.passed
-            or rec.worst_margin < min(stopping.target_margin_db, 0.0)
-            or (budget is not None and evaluations >= stopping.max_evaluations)
-        ):
-            break
-        f_opt = np.unique(np.concatenate([f_opt, list(res.where.values())]))
-        notes.append(
-            f"verification found {res.worst_margin:+.3f} dB between optimiser samples; the grid was refined"
-        )
+    rounds = _refine_rounds(
+        problem, factory, space, f_opt, z, seed_res, strategy, stopping, progress=progress
+    )
+    res, z, evaluations, history, notes = (
+        rounds.res,
+        rounds.z,
+        rounds.evaluations,
+        rounds.history,
+        rounds.notes,
+    )
     p = space.to_physical(z)
     if res.worst_margin < seed_res.worst_margin:
         notes.append(

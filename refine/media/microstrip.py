@@ -188,6 +188,21 @@ def hammerstad_roughness_factor(f: ArrayLike, conductivity: float, rms: float) -
     return 1.0 + 2.0 / np.pi * np.arctan(1.4 * (rms / skin_depth(f, conductivity)) ** 2)
 
 
+def solve_log_width(z_of, z0: float, lo: float, hi: float, what: str, ratio: str) -> float:
+    """The width ratio x in [lo, hi] with z_of(ln x) = z0 (impedance falls as x grows), by
+    Brent's method on ln x; trial widths outside the models' ranges do not warn."""
+    a, b = math.log(lo), math.log(hi)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        z_hi, z_lo = z_of(a), z_of(b)
+        if not z_lo < z0 < z_hi:
+            raise ValueError(
+                f"z0 = {z0:g} ohm is outside the range {what} can give, "
+                f"({z_lo:.4g}, {z_hi:.4g}) ohm for {lo:g} <= {ratio} <= {hi:g}"
+            )
+        return math.exp(brentq(lambda x: z_of(x) - z0, a, b, xtol=1e-14, rtol=1e-13))
+
+
 @dataclass(frozen=True)
 class Microstrip:
     """Microstrip on ``substrate``; ``loss`` switches conductor and dielectric loss on or off.
@@ -279,16 +294,7 @@ class Microstrip:
                 return float(self.quasi_static(w)[0])
             return float(self.dispersive(w, np.array([f]))[0][0])
 
-        lo, hi = math.log(0.01), math.log(100.0)
-        with warnings.catch_warnings():  # trial widths may lie outside the models' ranges
-            warnings.simplefilter("ignore", validity.ModelRangeWarning)
-            z_hi, z_lo = z_of(lo), z_of(hi)
-            if not z_lo < z0 < z_hi:
-                raise ValueError(
-                    f"z0 = {z0:g} ohm is outside the range this substrate can give, "
-                    f"({z_lo:.4g}, {z_hi:.4g}) ohm for 0.01 <= W/h <= 100"
-                )
-            w = h * math.exp(brentq(lambda x: z_of(x) - z0, lo, hi, xtol=1e-14, rtol=1e-13))
+        w = h * solve_log_width(z_of, z0, 0.01, 100.0, "this substrate", "W/h")
         self.dispersive(w, np.array([f if f is not None else 1e9]))  # warn for the answer only
         return w
 

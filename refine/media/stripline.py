@@ -18,18 +18,16 @@ Models
 from __future__ import annotations
 
 import math
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.constants import c as C0
-from scipy.optimize import brentq
 from scipy.special import ellipk
 
 from .. import _validate as v
 from .. import validity
-from .microstrip import ETA0, surface_resistance
+from .microstrip import ETA0, solve_log_width, surface_resistance
 from .substrate import Substrate
 
 
@@ -160,16 +158,7 @@ class Stripline:
         def z_of(lnw: float) -> float:
             return float(self.z0(b * math.exp(lnw)))
 
-        lo, hi = math.log(0.05), math.log(10.0)
-        with warnings.catch_warnings():  # trial widths may lie outside the models' ranges
-            warnings.simplefilter("ignore", validity.ModelRangeWarning)
-            z_hi, z_lo = z_of(lo), z_of(hi)
-            if not z_lo < z0 < z_hi:
-                raise ValueError(
-                    f"z0 = {z0:g} ohm is outside the range this stripline can give, "
-                    f"({z_lo:.4g}, {z_hi:.4g}) ohm for 0.05 <= W/b <= 10"
-                )
-            w = b * math.exp(brentq(lambda x: z_of(x) - z0, lo, hi, xtol=1e-14, rtol=1e-13))
+        w = b * solve_log_width(z_of, z0, 0.05, 10.0, "this stripline", "W/b")
         self.z0(w)  # warn for the answer only
         return w
 
