@@ -178,3 +178,50 @@ def model_spread(
     return {
         m: layout_response(layout, medium, m, f, z_ref) for m in GAP_MODELS[medium_kind(medium)]
     }
+
+
+def tapped_filter_elements(
+    medium: StripMedium,
+    model: str,
+    widths: ArrayLike,
+    gaps: ArrayLike,
+    lengths: ArrayLike,
+    taps: ArrayLike,
+    f: ArrayLike,
+) -> list[cascade.Element]:
+    """Elements of a tapped-feed filter (see :mod:`refine.model` for the circuit), batched like
+    :func:`filter_elements`: ``widths``, ``lengths`` ``(..., n)``, ``gaps`` ``(..., n - 1)``,
+    ``taps`` ``(..., 2)``."""
+    from .model import open_end_extensions
+
+    check_gap_model(medium, model)
+    f = v.frequencies("f", f)
+    widths = v.positive_array("widths", widths)
+    gaps = v.positive_array("gaps", gaps)
+    lengths = v.positive_array("lengths", lengths)
+    taps = v.positive_array("taps", taps)
+    n = widths.shape[-1]
+    if lengths.shape[-1] != n or gaps.shape[-1] != n - 1 or taps.shape[-1] != 2:
+        raise ValueError(
+            f"a tapped filter with {n} resonators needs {n} lengths, {n - 1} gaps and 2 taps, got "
+            f"{lengths.shape[-1]}, {gaps.shape[-1]} and {taps.shape[-1]}"
+        )
+    w = [widths[..., j, None] for j in range(n)]
+    props = _line_properties_shared(medium, w, f)
+    dl_in = open_end_extensions(medium, w[0])
+    dl_out = open_end_extensions(medium, w[-1])
+    t_in, t_out = taps[..., 0, None], taps[..., 1, None]
+    out: list[cascade.Element] = [cascade.ShuntOpenStub(props[0][0], props[0][1], t_in + dl_in)]
+    for j in range(n):
+        ln = lengths[..., j, None]
+        if j == 0:
+            ln = ln - t_in
+        if j == n - 1:
+            ln = ln - t_out
+        out.append(cascade.Line(props[j][0], props[j][1], ln))
+        if j < n - 1:
+            out += gap_elements(
+                medium, model, w[j], w[j + 1], gaps[..., j, None], f, props[j], props[j + 1]
+            )
+    out.append(cascade.ShuntOpenStub(props[-1][0], props[-1][1], t_out + dl_out))
+    return out

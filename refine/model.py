@@ -46,14 +46,21 @@ _CSTEP = 1e-30  # complex-step size relative to the gap width
 _FD = 1e-6  # relative central-difference step for widths
 
 
-def open_end_extension(medium: StripMedium, width: float) -> float:
-    """Open-end length extension Δl (m) of a strip of ``width`` on ``medium``."""
+def open_end_extensions(medium: StripMedium, width) -> NDArray:
+    """Open-end length extension Δl (m) of strips of ``width`` (any array shape) on ``medium``:
+    Kirschning–Jansen–Koster 1981 on microstrip, b ln 2/π on stripline."""
     sub = medium.substrate
+    w = np.asarray(width, float)
     if isinstance(medium, Stripline):
-        return stripline_open_end(sub.height)
-    u = width / sub.height
+        return np.full(w.shape, stripline_open_end(sub.height))
+    u = w / sub.height
     _, ee, _ = hammerstad_jensen(u, sub.eps_r, sub.metal_thickness / sub.height)
-    return float(kirschning_jansen_koster_open_end(u, sub.eps_r, ee)) * sub.height
+    return kirschning_jansen_koster_open_end(u, sub.eps_r, ee) * sub.height
+
+
+def open_end_extension(medium: StripMedium, width: float) -> float:
+    """Open-end length extension Δl (m) of one strip of ``width`` on ``medium``."""
+    return float(open_end_extensions(medium, width))
 
 
 @dataclass

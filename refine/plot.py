@@ -186,3 +186,32 @@ def layout_png(path: str | Path, layout: Layout, title: str) -> Path:
         return write_atomic(path, writer)
     finally:
         plt.close(fig)
+
+
+def yield_png(
+    path: str | Path, margins: NDArray, nominal: float, title: str, subtitle: str
+) -> Path:
+    """Histogram of the Monte Carlo worst margins with the pass line and the nominal design."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    fig, ax = plt.subplots(figsize=(8, 4.2))
+    ax.hist(margins, bins=60, color="tab:blue", alpha=0.8)
+    ax.axvline(0.0, color="tab:red", lw=1.5, label="mask limit (0 dB)")
+    ax.axvline(nominal, color="black", lw=1, ls="--", label=f"nominal design {nominal:+.2f} dB")
+    ax.set_xlabel("worst margin against the mask (dB)")
+    ax.set_ylabel("samples")
+    ax.set_title(f"{title}\n{subtitle}", fontsize=10)
+    ax.legend(fontsize=8)
+    ax.grid(True, alpha=0.3)
+    fig.tight_layout()
+
+    def writer(tmp: Path) -> None:
+        fig.savefig(tmp, format="png", dpi=120)
+
+    try:
+        return write_atomic(path, writer)
+    finally:
+        plt.close(fig)

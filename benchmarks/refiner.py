@@ -1,7 +1,7 @@
 """Refiner speed over the bundled problem set, ours vs a derivative-free baseline, in one run.
 
-    python benchmarks/refine.py                 # every problem (several minutes)
-    python benchmarks/refine.py --only ms-      # problems whose file name starts with "ms-"
+    python benchmarks/refiner.py                # every problem (several minutes)
+    python benchmarks/refiner.py --only ms-      # problems whose file name starts with "ms-"
 
 For every problem whose file says it is feasible, both strategies start from the same
 closed-form seed: refine's default (``gradient``: SLSQP with analytic gradients, restarts and a
@@ -22,14 +22,10 @@ import sys
 import warnings
 from pathlib import Path
 
-# This file is named like the package; run as a script, its own folder comes first on sys.path
-# and would shadow the package. Drop that folder before importing refine.
-sys.path[:] = [p for p in sys.path if Path(p or ".").resolve() != Path(__file__).resolve().parent]
-
-from refine.optimise import Stopping, Strategy  # noqa: E402
-from refine.problem import load_problem  # noqa: E402
-from refine.refiner import Status, refine_problem  # noqa: E402
-from refine.validity import ModelRangeWarning  # noqa: E402
+from refine.optimise import Stopping, Strategy
+from refine.problem import load_problem
+from refine.refiner import Status, refine_problem
+from refine.validity import ModelRangeWarning
 
 ROOT = Path(__file__).resolve().parent.parent
 

@@ -1,0 +1,165 @@
+"""Yield under fab tolerances: batched Monte Carlo equals the per-sample evaluation, is
+reproducible, and its sensitivities agree with finite differences; the yield verb's files."""
+
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from refine import tolerance
+from refine.cli import main
+from refine.layout import Layout
+from refine.problem import load_problem
+from refine.validity import ModelRangeWarning
+
+ROOT = Path(__file__).parent.parent
+ALUMINA = load_problem(ROOT / "problems/microstrip-x-band-alumina-n3.toml")
+LAY = Layout(
+    "gap",
+    623e-6,
+    (1869e-6, 1795.5e-6, 1869e-6),
+    (37e-6, 500e-6, 500e-6, 37e-6),
+    (4.8735e-3, 4.9745e-3, 4.8735e-3),
+)
+
+
+def _quiet():
+    w = warnings.catch_warnings()
+    w.__enter__()
+    warnings.simplefilter("ignore", ModelRangeWarning)
+    return w
+
+
+def test_batched_margins_equal_one_sample_at_a_time():
+    tol = tolerance.Tolerances.from_problem(ALUMINA, correlated=True)
+    s = tolerance.sample(LAY, tol, 40, seed=3)
+    f = tolerance.yield_grid(ALUMINA, 41)
+    batch = tolerance.worst_margins(ALUMINA, s, f)
+    for k in range(0, 40, 7):
+        one = tolerance.Samples(s.feed[[k]], s.widths[[k]], s.gaps[[k]], s.lengths[[k]], None)
+        assert tolerance.worst_margins(ALUMINA, one, f)[0] == pytest.approx(batch[k], abs=1e-10)
+
+
+def test_yield_is_reproducible_and_sensible():
+    a = tolerance.estimate_yield(ALUMINA, LAY, 600, seed=5)
+    b = tolerance.estimate_yield(ALUMINA, LAY, 600, seed=5)
+    c = tolerance.estimate_yield(ALUMINA, LAY, 600, seed=6)
+    np.testing.assert_array_equal(a.margins, b.margins)
+    assert not np.array_equal(a.margins, c.margins)
+    assert a.nominal_margin > 0 and 0 < a.yield_fraction < 1
+    lo, hi = a.interval
+    assert lo < a.yield_fraction < hi
+    # a correlated over-etch on top of the independent errors cannot help here
+    assert (
+        tolerance.estimate_yield(ALUMINA, LAY, 600, seed=5, correlated=True).yield_fraction
+        <= a.yield_fraction + 0.05
+    )
+
+
+def test_tighter_shop_gives_higher_yield():
+    from dataclasses import replace
+
+    tight = replace(ALUMINA, fab=replace(ALUMINA.fab, gap_tolerance=0.5e-6, width_tolerance=0.5e-6))
+    assert (
+        tolerance.estimate_yield(tight, LAY, 400, 1).yield_fraction
+        > tolerance.estimate_yield(ALUMINA, LAY, 400, 1).yield_fraction
+    )
+
+
+def test_correlated_etch_moves_every_edge_together():
+    tol = tolerance.Tolerances(0.0, 2e-6, correlated=True)
+    s = tolerance.sample(LAY, tol, 2000, seed=0)
+    # with no independent gap error, every gap moves by the same +2δ and every length by -2δ
+    dg = s.gaps - np.array(LAY.gaps)
+    dl = s.lengths - np.array(LAY.lengths)
+    np.testing.assert_allclose(dg, np.broadcast_to(dg[:, [0]], dg.shape), atol=1e-18)
+    np.testing.assert_allclose(dl, -dg[:, :3], atol=1e-18)
+    assert np.std(dg[:, 0]) == pytest.approx(2e-6, rel=0.1)  # 2δ with σ_δ = σ_width/2
+
+
+def test_wilson_interval():
+    # Wilson 1927 score interval, 81 of 100 at 95 % (z = 1.96): centre (0.81 + z²/200)/(1 + z²/100)
+    # = 0.79853, half-width 0.07632, so 0.7222..0.8749 (worked by hand from the formula).
+    lo, hi = tolerance.wilson_interval(81, 100)
+    assert lo == pytest.approx(0.7222, abs=1e-4) and hi == pytest.approx(0.8749, abs=1e-4)
+    assert tolerance.wilson_interval(0, 50)[0] == 0.0
+    assert tolerance.wilson_interval(50, 50)[1] == pytest.approx(1.0, abs=1e-12)
+
+
+def test_sensitivity_matches_finite_difference_of_the_worst_margin():
+    tol = tolerance.Tolerances.from_problem(ALUMINA)
+    f = tolerance.yield_grid(ALUMINA)
+    w = _quiet()
+    try:
+        sens = {s.name: s for s in tolerance.sensitivities(ALUMINA, LAY, tol, f)}
+        h = 1e-9
+        gaps_up = list(LAY.gaps)
+        gaps_up[0] += h
+        gaps_dn = list(LAY.gaps)
+        gaps_dn[0] -= h
+        from dataclasses import replace
+
+        up = tolerance.worst_margins(
+            ALUMINA, tolerance._as_samples(replace(LAY, gaps=tuple(gaps_up))), f
+        )[0]
+        dn = tolerance.worst_margins(
+            ALUMINA, tolerance._as_samples(replace(LAY, gaps=tuple(gaps_dn))), f
+        )[0]
+    finally:
+        w.__exit__(None, None, None)
+    assert sens["gap 0"].db_per_m == pytest.approx((up - dn) / (2 * h), rel=1e-4)
+    assert max(sens.values(), key=lambda s: s.db_per_sigma).name == "gap 0"  # the narrowest gap
+
+
+@pytest.mark.parametrize(
+    ("args", "message"),
+    [
+        (["--samples", "0"], "--samples = 0 is outside the allowed range 1..1000000"),
+        (["--samples", "-5"], "--samples = -5 is outside the allowed range 1..1000000"),
+    ],
+)
+def test_yield_verb_bad_input(tmp_path, capsys, args, message):
+    lay = tmp_path / "layout.json"
+    from refine.export import layout_dict, write_json
+
+    write_json(lay, layout_dict(LAY))
+    assert (
+        main(
+            [
+                "yield",
+                str(lay),
+                "--problem",
+                str(ROOT / "problems/microstrip-x-band-alumina-n3.toml"),
+                *args,
+            ]
+        )
+        == 2
+    )
+    assert message in capsys.readouterr().err
+    assert not (tmp_path / "yield.csv").exists()
+
+
+def test_yield_verb_writes_csv_and_histogram(tmp_path, capsys):
+    from refine.export import layout_dict, write_json
+
+    lay = tmp_path / "layout.json"
+    write_json(lay, layout_dict(LAY))
+    prob = str(ROOT / "problems/microstrip-x-band-alumina-n3.toml")
+    assert main(["yield", str(lay), "--problem", prob, "--samples", "300", "--seed", "2"]) == 0
+    out = capsys.readouterr().out
+    assert "yield " in out and "95 % interval" in out and "dB per 1-sigma" in out
+    import pandas as pd
+
+    frame = pd.read_csv(tmp_path / "yield.csv")
+    assert len(frame) == 300 and {"worst_margin_db", "gap_0_m", "width_1_m", "length_3_m"} <= set(
+        frame.columns
+    )
+    assert (tmp_path / "yield.png").read_bytes()[:4] == b"\x89PNG"
+    assert main(["yield", str(lay), "--problem", prob, "--samples", "300"]) == 2  # no overwrite
+    assert "use --force" in capsys.readouterr().err
+
+
+def test_ideal_medium_has_no_yield():
+    with pytest.raises(ValueError, match="yield needs a strip medium"):
+        tolerance.estimate_yield(load_problem(ROOT / "problems/ideal-s-band-n5.toml"), LAY, 10)
