@@ -153,10 +153,10 @@ def _line_properties_shared(
 def layout_elements(
     layout: Layout, medium: StripMedium, model: str, f: ArrayLike
 ) -> list[cascade.Element]:
-    """Elements of a :class:`Layout` (gap coupling)."""
-    if layout.external != "gap":
-        raise ValueError(
-            f"layout.external = {layout.external!r}: only 'gap' coupling has a circuit yet"
+    """Elements of a :class:`Layout`, gap or tapped coupling."""
+    if layout.external == "tap":
+        return tapped_filter_elements(
+            medium, model, layout.widths, layout.gaps, layout.lengths, layout.taps, f
         )
     return filter_elements(
         medium, model, layout.feed_width, layout.widths, layout.gaps, layout.lengths, f

@@ -17,8 +17,6 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-import numpy as np
-
 from . import __version__, export, job, outputs, plot, synthesis, tolerance
 from .mask import MaskResult
 from .optimise import Stopping, Strategy
@@ -62,33 +60,42 @@ def margins_table(res: MaskResult) -> str:
 
 
 def layout_table(seed: job.Seed) -> str:
+    """Resonators and gaps in order from input to output, with each gap's fab shortfall."""
     real = seed.realisation
     lay = real.layout
+    by_gap = {g.index: g for g in real.gaps}
     rows = []
-    for k, g in enumerate(real.gaps):
-        req = "none works" if g.gap_required is None else f"{g.gap_required * 1e6:.1f}"
-        short = f"{100 * g.coupling_shortfall:.0f} %" if g.limited else ""
-        rows.append(
-            [
-                f"gap {k}",
-                f"{g.gap * 1e6:.1f}",
-                req,
-                f"{g.j_target:.4f}",
-                f"{g.j_achieved:.4f}",
-                short,
-            ]
-        )
-        if k < lay.order:
+    if lay.taps is not None:
+        rows.append(["tap in", f"{lay.taps[0] * 1e3:.4f} mm from the open end", "", "", "", ""])
+    # gap j sits before resonator j + 1 (gap coupling has gaps 0..n, a tapped feed 1..n-1)
+    for j in range(lay.order + (1 if lay.external == "gap" else 0)):
+        if j in by_gap:
+            g = by_gap[j]
+            req = "none works" if g.gap_required is None else f"{g.gap_required * 1e6:.1f}"
+            short = f"{100 * g.coupling_shortfall:.0f} %" if g.limited else ""
             rows.append(
                 [
-                    f"resonator {k + 1}",
-                    f"L {lay.lengths[k] * 1e3:.4f} mm",
-                    f"W {lay.widths[k] * 1e6:.1f}",
+                    f"gap {g.index}",
+                    f"{g.gap * 1e6:.1f}",
+                    req,
+                    f"{g.j_target:.4f}",
+                    f"{g.j_achieved:.4f}",
+                    short,
+                ]
+            )
+        if j < lay.order:
+            rows.append(
+                [
+                    f"resonator {j + 1}",
+                    f"L {lay.lengths[j] * 1e3:.4f} mm",
+                    f"W {lay.widths[j] * 1e6:.1f}",
                     "",
                     "",
                     "",
                 ]
             )
+    if lay.taps is not None:
+        rows.append(["tap out", f"{lay.taps[1] * 1e3:.4f} mm from the open end", "", "", "", ""])
     return _table(
         ["element", "used (um)", "required (um)", "J/Y0 designed", "J/Y0 achieved", "shortfall"],
         rows,
@@ -521,5 +528,4 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 
 if __name__ == "__main__":
-    np.seterr(all="ignore")
     sys.exit(main())

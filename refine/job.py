@@ -17,7 +17,7 @@ from .mask import MaskResult
 from .media.microstrip import Microstrip
 from .media.stripline import Stripline
 from .problem import Problem
-from .realise import Realisation, realise
+from .realise import Realisation, realise, realise_tapped
 
 
 def medium_for(problem: Problem, loss: bool = True) -> circuit.StripMedium | None:
@@ -88,7 +88,10 @@ def seed(problem: Problem) -> Seed:
         s = synthesis.ideal_response(d, f)
         real = None
     else:
-        real = realise(d, medium, problem.fab, problem.gap_model)
+        if problem.external == "tap":
+            real = realise_tapped(d, medium, problem.fab, problem.gap_model)
+        else:
+            real = realise(d, medium, problem.fab, problem.gap_model)
         notes += list(real.range_notes)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", validity.ModelRangeWarning)  # listed in range_notes

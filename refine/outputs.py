@@ -66,17 +66,12 @@ def responses(r: RefineResult, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 
 def evaluate_layout(problem: Problem, layout: Layout, f: np.ndarray) -> np.ndarray:
-    medium = job.medium_for(problem)
-    from .model import strip_model_for
-
-    model = strip_model_for(medium, problem.gap_model, problem.z_ref, layout, f, True)
-    gaps, lengths, taps, widths = model.split(model.vector(layout))
-    from . import cascade
-
+    """S-matrix of a layout on the problem's medium with loss (range warnings go to the report)."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", validity.ModelRangeWarning)
-        els = model._build(gaps, lengths, taps, widths)[0]
-        return cascade.s_parameters(els, f, problem.z_ref)
+        return circuit.layout_response(
+            layout, job.medium_for(problem), problem.gap_model, f, problem.z_ref
+        )
 
 
 def evaluate_electrical(caps, thetas, f0: float, z_ref: float, f: np.ndarray) -> np.ndarray:

@@ -17,6 +17,16 @@ from .layout import Layout
 from .mask import Mask
 
 
+def _save(fig, path: str | Path, dpi: int) -> Path:
+    """Write ``fig`` as a PNG atomically and release it."""
+    import matplotlib.pyplot as plt
+
+    try:
+        return write_atomic(path, lambda tmp: fig.savefig(tmp, format="png", dpi=dpi))
+    finally:
+        plt.close(fig)
+
+
 def _db(x: NDArray) -> NDArray:
     return 20.0 * np.log10(np.maximum(np.abs(x), 1e-15))
 
@@ -109,13 +119,7 @@ def response_png(
     fig.suptitle(f"{title} — {status}", fontsize=11)
     fig.tight_layout()
 
-    def writer(tmp: Path) -> None:
-        fig.savefig(tmp, format="png", dpi=120)
-
-    try:
-        return write_atomic(path, writer)
-    finally:
-        plt.close(fig)
+    return _save(fig, path, 120)
 
 
 def layout_png(path: str | Path, layout: Layout, title: str) -> Path:
@@ -179,13 +183,7 @@ def layout_png(path: str | Path, layout: Layout, title: str) -> Path:
     ax.set_title(f"{title} — copper to scale, dimensions in mm unless marked", fontsize=10)
     fig.tight_layout()
 
-    def writer(tmp: Path) -> None:
-        fig.savefig(tmp, format="png", dpi=130)
-
-    try:
-        return write_atomic(path, writer)
-    finally:
-        plt.close(fig)
+    return _save(fig, path, 130)
 
 
 def yield_png(
@@ -208,10 +206,4 @@ def yield_png(
     ax.grid(True, alpha=0.3)
     fig.tight_layout()
 
-    def writer(tmp: Path) -> None:
-        fig.savefig(tmp, format="png", dpi=120)
-
-    try:
-        return write_atomic(path, writer)
-    finally:
-        plt.close(fig)
+    return _save(fig, path, 120)

@@ -280,4 +280,5 @@ def realise_tapped(
     tap = max(ang / beta0 - dl, 0.02 * lengths[0])
     layout = Layout("tap", lay.feed_width, lay.widths, lay.gaps[1:-1], tuple(lengths), (tap, tap))
     gaps = inner.gaps[1:-1]
-    return Realisation(layout, design, gap_model, gaps, tuple(inner.range_notes), tuple(notes))
+    ranges = tuple(range_report(layout, medium, gap_model, f0))
+    return Realisation(layout, design, gap_model, gaps, ranges, tuple(notes))

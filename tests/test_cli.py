@@ -68,3 +68,11 @@ def test_design_stripline(capsys):
     assert main(["design", str(ROOT / "problems/stripline-l-band.toml")]) == 1
     out = capsys.readouterr().out
     assert "order chosen from the stopbands: N = 4" in out and "altschuler-oliner" in out
+
+
+def test_tapped_problem_shows_a_tapped_seed(capsys):
+    assert main(["design", str(ROOT / "problems/ms-pcb-tap-5g8-n3-3pct.toml")]) == 0
+    out = capsys.readouterr().out
+    seed_part = out[out.index("realised seed") : out.index("refining")]
+    assert "tap in" in seed_part and "tap out" in seed_part and "gap 1" in seed_part
+    assert "gap 0" not in seed_part and "none works" not in seed_part  # no end gaps with a tap
