@@ -203,10 +203,13 @@ def range_report(layout: Layout, medium: StripMedium, gap_model: str, f_max: flo
                 warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
 
     kind = medium_kind(medium)
-    sides = [layout.feed_width, *layout.widths, layout.feed_width]
+    if layout.external == "gap":
+        sides, first = [layout.feed_width, *layout.widths, layout.feed_width], 0
+    else:  # tapped: the gaps are the inner ones, between resonators
+        sides, first = list(layout.widths), 1
     for k, s in enumerate(layout.gaps):
         collect(
-            f"gap {k} (s = {s * 1e6:.1f} um)",
+            f"gap {k + first} (s = {s * 1e6:.1f} um)",
             lambda k=k, s=s: gap_elements(medium, gap_model, sides[k], sides[k + 1], s, f),
         )
     for j, w in enumerate(layout.widths):

@@ -191,15 +191,12 @@ def refine_problem(
         return _refine_ideal(problem, sd, strategy, stopping, t0, progress)
 
     medium = job.medium_for(problem)
+    real: Realisation | None = sd.realisation  # the job's seed already follows problem.external
+    if real is None or real.layout.external != problem.external:
+        realiser = realise_tapped if problem.external == "tap" else realise
+        real = realiser(d, medium, problem.fab, problem.gap_model)
     if problem.external == "tap":
-        real: Realisation = realise_tapped(d, medium, problem.fab, problem.gap_model)
         notes.append("tapped feed: the T-junction's own parasitics are not modelled")
-    else:
-        real = (
-            sd.realisation
-            if sd.realisation is not None
-            else realise(d, medium, problem.fab, problem.gap_model)
-        )
     seed_layout = real.layout
     diag = diagnose(
         d, medium, problem.fab, problem.gap_model, seed_layout.feed_width, problem.external
