@@ -391,6 +391,11 @@ def _cmd_yield(args: argparse.Namespace) -> int:
     print(
         f"{args.layout} against {problem.name}: {res.samples} samples, seed {res.seed}, "
         f"gap sigma {tol.gap_sigma * 1e6:g} um, width sigma {tol.width_sigma * 1e6:g} um ({kind})"
+        + (
+            f", eps_r sigma {tol.eps_r_sigma:g}, height sigma {tol.height_sigma * 1e6:g} um"
+            if tol.eps_r_sigma or tol.height_sigma
+            else ""
+        )
     )
     print(
         f"yield {100 * res.yield_fraction:.1f} % (95 % interval {100 * lo:.1f}-{100 * hi:.1f} %); "
@@ -403,7 +408,7 @@ def _cmd_yield(args: argparse.Namespace) -> int:
     ]
     print(_table(["dimension", "dB per 1-sigma", "dB per um"], rows))
     out.mkdir(parents=True, exist_ok=True)
-    smp = tolerance.sample(lay, tol, res.samples, res.seed)
+    smp = tolerance.sample(lay, tol, res.samples, res.seed, problem.substrate)
     cols = {
         "worst_margin_db": res.margins,
         "meets_mask": res.margins >= 0,
@@ -415,6 +420,8 @@ def _cmd_yield(args: argparse.Namespace) -> int:
     cols |= {f"length_{j + 1}_m": smp.lengths[:, j] for j in range(smp.lengths.shape[1])}
     if smp.taps is not None:
         cols |= {"tap_in_m": smp.taps[:, 0], "tap_out_m": smp.taps[:, 1]}
+    if smp.eps_r is not None:
+        cols |= {"eps_r": smp.eps_r, "height_m": smp.height}
     import pandas as pd
 
     frame = pd.DataFrame(cols)

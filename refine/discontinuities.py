@@ -273,7 +273,7 @@ def stripline_gap(
     if w is not None:
         validity.check("stripline gap (quasi-static)", "W/b", np.asarray(w, float) / b, 0.5, None)
     y0 = 1.0 / np.asarray(z0, float)
-    v = C0 / math.sqrt(eps_r)
+    v = C0 / np.sqrt(eps_r)
     x = np.pi * s / (2.0 * b)
     c_series = y0 * b / (2.0 * np.pi * v) * np.log(1.0 / np.tanh(x))
     c_shunt = -y0 * 2.0 * b / (2.0 * np.pi * v) * np.log(np.cosh(x))

@@ -52,7 +52,7 @@ def open_end_extensions(medium: StripMedium, width) -> NDArray:
     sub = medium.substrate
     w = np.asarray(width, float)
     if isinstance(medium, Stripline):
-        return np.full(w.shape, stripline_open_end(sub.height))
+        return np.broadcast_to(stripline_open_end(sub.height), w.shape)
     u = w / sub.height
     _, ee, _ = hammerstad_jensen(u, sub.eps_r, sub.metal_thickness / sub.height)
     return kirschning_jansen_koster_open_end(u, sub.eps_r, ee) * sub.height

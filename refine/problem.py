@@ -18,6 +18,7 @@ Schema (keys marked * are required)::
     kind = "microstrip" | "stripline" | "ideal"               *
     eps_r, height                            * for microstrip and stripline
     metal_thickness, loss_tangent, conductivity, roughness    optional
+    eps_r_tolerance, height_tolerance                         optional, 1-sigma, for yield
     [fab]                                    * for microstrip and stripline
     min_gap *, min_width, grid, gap_tolerance, width_tolerance, max_total_length
     [coupling]  external = "gap" | "tap"     (default "gap")
@@ -269,7 +270,17 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
     med = r.table(
         data,
         "medium",
-        {"kind", "eps_r", "height", "metal_thickness", "loss_tangent", "conductivity", "roughness"},
+        {
+            "kind",
+            "eps_r",
+            "height",
+            "metal_thickness",
+            "loss_tangent",
+            "conductivity",
+            "roughness",
+            "eps_r_tolerance",
+            "height_tolerance",
+        },
     )
     kind = r.choice(med, "medium", "kind", MEDIUM_KINDS)
     substrate = None
@@ -288,7 +299,9 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         tand = r.number(med, "medium", "loss_tangent", 0.0, 0.1, hi_open=True, default=0.0)
         sigma = r.quantity(med, "medium", "conductivity", "conductivity", 0.0, None, lo_open=True)
         rough = r.quantity(med, "medium", "roughness", "length", 0.0, h) or 0.0
-        substrate = Substrate(eps_r, h, t, tand, sigma, rough)
+        er_tol = r.number(med, "medium", "eps_r_tolerance", 0.0, eps_r / 5.0, default=0.0)
+        h_tol = r.quantity(med, "medium", "height_tolerance", "length", 0.0, h / 5.0) or 0.0
+        substrate = Substrate(eps_r, h, t, tand, sigma, rough, er_tol, h_tol)
         fab_t = r.table(
             data,
             "fab",

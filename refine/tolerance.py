@@ -14,8 +14,9 @@ Python loop per sample. The yield is the fraction of samples whose worst margin 
 grid is ≥ 0, with a Wilson 95 % confidence interval (Wilson, J. Am. Stat. Assoc. 22, 209–212,
 1927).
 
-Not yet modelled: substrate permittivity and height tolerances (they need a batched substrate in
-the line models).
+* Substrate: eps_r ~ N(eps_r, σ_εr) and height ~ N(h, σ_h) per board, from the problem's
+  ``medium.eps_r_tolerance`` and ``medium.height_tolerance``. Each chunk of samples is evaluated
+  with a batched substrate whose values are arrays, through the same line and gap formulas.
 """
 
 from __future__ import annotations
@@ -46,14 +47,17 @@ class Tolerances:
     gap_sigma: float
     width_sigma: float
     correlated: bool = False
+    eps_r_sigma: float = 0.0
+    height_sigma: float = 0.0
 
     def __post_init__(self) -> None:
-        v.real_in_range("gap_sigma", self.gap_sigma, 0.0, None)
-        v.real_in_range("width_sigma", self.width_sigma, 0.0, None)
-        if self.gap_sigma == 0 and self.width_sigma == 0:
+        for name in ("gap_sigma", "width_sigma", "eps_r_sigma", "height_sigma"):
+            v.real_in_range(name, getattr(self, name), 0.0, None)
+        if not any((self.gap_sigma, self.width_sigma, self.eps_r_sigma, self.height_sigma)):
             raise ValueError(
-                "tolerances: gap_sigma and width_sigma are both 0; there is nothing to sample "
-                "(give fab.gap_tolerance or fab.width_tolerance in the problem)"
+                "tolerances: every sigma is 0; there is nothing to sample (give "
+                "fab.gap_tolerance, fab.width_tolerance, medium.eps_r_tolerance or "
+                "medium.height_tolerance in the problem)"
             )
 
     @classmethod
@@ -63,7 +67,13 @@ class Tolerances:
             raise ValueError(
                 "yield needs a strip medium with [fab] tolerances; the ideal medium has none"
             )
-        return cls(fab.gap_tolerance or 0.0, fab.width_tolerance or 0.0, correlated)
+        return cls(
+            fab.gap_tolerance or 0.0,
+            fab.width_tolerance or 0.0,
+            correlated,
+            problem.substrate.eps_r_tolerance,
+            problem.substrate.height_tolerance,
+        )
 
 
 @dataclass(frozen=True)
@@ -75,10 +85,29 @@ class Samples:
     gaps: NDArray
     lengths: NDArray
     taps: NDArray | None
+    eps_r: NDArray | None = None  # per-board substrate, or None for the nominal substrate
+    height: NDArray | None = None
 
 
-def sample(layout: Layout, tol: Tolerances, n: int, seed: int) -> Samples:
-    """``n`` perturbed copies of ``layout`` (reproducible for a given ``seed``)."""
+@dataclass(frozen=True)
+class SubstrateBatch:
+    """A substrate whose eps_r and height are arrays of shape (n, 1), one row per board, for
+    batched evaluation through the line and gap formulas (which are elementwise). Not validated:
+    only :func:`worst_margins` builds it, from a validated :class:`Substrate`."""
+
+    eps_r: NDArray
+    height: NDArray
+    metal_thickness: float
+    loss_tangent: float
+    conductivity: float | None
+    roughness: float
+
+
+def sample(layout: Layout, tol: Tolerances, n: int, seed: int, substrate=None) -> Samples:
+    """``n`` perturbed copies of ``layout`` (reproducible for a given ``seed``); with substrate
+    tolerances, also ``n`` boards' eps_r and height around ``substrate``'s nominal values."""
+    if (tol.eps_r_sigma or tol.height_sigma) and substrate is None:
+        raise ValueError("sample: substrate tolerances need the nominal substrate")
     n = v.integer_in_range("samples", n, 1, MAX_SAMPLES)
     rng = np.random.default_rng(seed)
     nw, ng = layout.order, len(layout.gaps)
@@ -95,10 +124,22 @@ def sample(layout: Layout, tol: Tolerances, n: int, seed: int) -> Samples:
         lengths = lengths - 2 * delta
         if taps is not None:
             taps = taps - delta  # the tap's centre line moves with the receding open end
+    eps_r = height = None
+    if tol.eps_r_sigma or tol.height_sigma:  # drawn after the etch errors: same seed, same etch
+        eps_r = np.maximum(substrate.eps_r + rng.normal(0.0, tol.eps_r_sigma, n), 1.0)
+        height = np.maximum(
+            substrate.height + rng.normal(0.0, tol.height_sigma, n), 0.5 * substrate.height
+        )
     floor = 1e-9  # an etch error cannot make a dimension vanish or go negative
     clip = lambda x: np.maximum(x, floor)  # noqa: E731
     return Samples(
-        clip(feed), clip(widths), clip(gaps), clip(lengths), None if taps is None else clip(taps)
+        clip(feed),
+        clip(widths),
+        clip(gaps),
+        clip(lengths),
+        None if taps is None else clip(taps),
+        eps_r,
+        height,
     )
 
 
@@ -120,13 +161,25 @@ def yield_grid(problem: Problem, points_per_region: int = 121) -> NDArray:
 
 def worst_margins(problem: Problem, samples: Samples, f: NDArray) -> NDArray:
     """Worst margin (dB) of every sample, evaluated in batched cascade calls of ``CHUNK``."""
-    medium = job.medium_for(problem)
+    nominal = job.medium_for(problem)
     n = samples.widths.shape[0]
     out = np.empty(n)
+    sub = problem.substrate
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", validity.ModelRangeWarning)
         for a in range(0, n, CHUNK):
             sl = slice(a, min(a + CHUNK, n))
+            medium = nominal
+            if samples.eps_r is not None:
+                batch = SubstrateBatch(
+                    samples.eps_r[sl, None],
+                    samples.height[sl, None],
+                    sub.metal_thickness,
+                    sub.loss_tangent,
+                    sub.conductivity,
+                    sub.roughness,
+                )
+                medium = type(nominal)(batch, nominal.loss)
             if samples.taps is None:
                 els = circuit.filter_elements(
                     medium,
@@ -207,6 +260,24 @@ def sensitivities(
         else:  # lengths and taps move only with the correlated etch
             sigma = tol.width_sigma if tol.correlated else 0.0  # 2δ with σ_δ = σ_width/2
         out.append(Sensitivity(name, float(d), float(abs(d) * sigma)))
+    for name, sigma in (("eps_r", tol.eps_r_sigma), ("height", tol.height_sigma)):
+        if sigma:  # not a layout dimension: a central difference of the nominal worst margin
+            base = getattr(problem.substrate, name)
+            h = 1e-4 * base
+            one = _as_samples(layout)
+            wm = []
+            for x in (base + h, base - h):
+                er = np.array([x if name == "eps_r" else problem.substrate.eps_r])
+                hh = np.array([x if name == "height" else problem.substrate.height])
+                wm.append(
+                    worst_margins(
+                        problem,
+                        Samples(one.feed, one.widths, one.gaps, one.lengths, one.taps, er, hh),
+                        f,
+                    )[0]
+                )
+            d = (wm[0] - wm[1]) / (2 * h)
+            out.append(Sensitivity(f"substrate {name}", float(d), float(abs(d) * sigma)))
     return tuple(sorted(out, key=lambda s: -s.db_per_sigma))
 
 
@@ -219,7 +290,7 @@ def estimate_yield(
             "yield needs a strip medium with [fab] tolerances; the ideal medium has none"
         )
     tol = Tolerances.from_problem(problem, correlated)
-    s = sample(layout, tol, samples, seed)
+    s = sample(layout, tol, samples, seed, problem.substrate)
     f = yield_grid(problem)
     m = worst_margins(problem, s, f)
     nominal = worst_margins(problem, _as_samples(layout), f)[0]
@@ -288,7 +359,7 @@ def centre_for_yield(
     model = strip_model_for(medium, problem.gap_model, problem.z_ref, layout, f, True)
     space = strip_space(problem, model, layout)
     p0 = model.vector(layout)
-    smp = sample(layout, tol, design_samples, seed)
+    smp = sample(layout, tol, design_samples, seed, problem.substrate)  # its geometry is used below
     names = model.names
     offsets = np.zeros((design_samples + 1, len(names)))  # row 0: the nominal layout itself
     for i, name in enumerate(names):
@@ -303,10 +374,6 @@ def centre_for_yield(
         elif kind == "tap" and smp.taps is not None:
             j = 0 if idx == "in" else 1
             offsets[1:, i] = smp.taps[:, j] - layout.taps[j]
-
-    class _Stacked:
-        """All perturbed layouts as one long 'frequency' axis, so the mask machinery and the
-        epigraph adapter see one design."""
 
     n_f = f.size
     f_all = np.tile(f, design_samples + 1)

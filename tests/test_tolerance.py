@@ -202,3 +202,62 @@ def test_design_with_centre_yield(tmp_path, capsys):
     text = capsys.readouterr().out
     assert "centring for yield" in text and "% ->" in text
     assert "yield-centred" in (out / "report.md").read_text()
+
+
+def _with_substrate_tolerances(eps_tol=0.05, h_tol=10e-6):
+    from dataclasses import replace
+
+    return replace(
+        ALUMINA,
+        substrate=replace(ALUMINA.substrate, eps_r_tolerance=eps_tol, height_tolerance=h_tol),
+    )
+
+
+def test_substrate_tolerances_batched_equal_one_board_at_a_time():
+    p = _with_substrate_tolerances()
+    tol = tolerance.Tolerances.from_problem(p)
+    assert tol.eps_r_sigma == 0.05 and tol.height_sigma == 10e-6
+    s = tolerance.sample(LAY, tol, 30, seed=8, substrate=p.substrate)
+    assert np.std(s.eps_r) > 0 and np.std(s.height) > 0
+    f = tolerance.yield_grid(p, 41)
+    batch = tolerance.worst_margins(p, s, f)
+    from dataclasses import replace
+
+    for k in (0, 13, 29):  # one board: the nominal (scalar) substrate set to that board's values
+        one = replace(
+            p, substrate=replace(p.substrate, eps_r=float(s.eps_r[k]), height=float(s.height[k]))
+        )
+        single = tolerance.Samples(s.feed[[k]], s.widths[[k]], s.gaps[[k]], s.lengths[[k]], None)
+        assert tolerance.worst_margins(one, single, f)[0] == pytest.approx(batch[k], abs=1e-9)
+
+
+def test_substrate_tolerances_lower_yield_and_show_in_sensitivities():
+    p = _with_substrate_tolerances(eps_tol=0.08)
+    with_sub = tolerance.estimate_yield(p, LAY, 500, seed=3)
+    without = tolerance.estimate_yield(ALUMINA, LAY, 500, seed=3)
+    assert with_sub.yield_fraction < without.yield_fraction
+    names = {s.name for s in with_sub.sensitivities}
+    assert {"substrate eps_r", "substrate height"} <= names
+    eps = next(s for s in with_sub.sensitivities if s.name == "substrate eps_r")
+    assert eps.db_per_sigma > 0.1  # a permittivity error detunes a 3 % filter noticeably
+
+
+def test_substrate_tolerance_keys_in_problem_files(tmp_path):
+    text = (ROOT / "problems/microstrip-x-band-alumina-n3.toml").read_text()
+    text = text.replace(
+        'roughness = "0.05 um"',
+        'roughness = "0.05 um"\neps_r_tolerance = 0.05\nheight_tolerance = "10 um"',
+    )
+    f = tmp_path / "p.toml"
+    f.write_text(text)
+    p = load_problem(f)
+    assert p.substrate.eps_r_tolerance == 0.05 and p.substrate.height_tolerance == pytest.approx(
+        10e-6
+    )
+    f.write_text(text.replace("eps_r_tolerance = 0.05", "eps_r_tolerance = 5"))
+    from refine.problem import ProblemError
+
+    with pytest.raises(
+        ProblemError, match=r"medium.eps_r_tolerance = 5: outside the allowed range \[0, 1.96\]"
+    ):
+        load_problem(f)

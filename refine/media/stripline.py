@@ -84,13 +84,13 @@ def pozar_stripline_conductor_loss(
     rs = np.asarray(rs, float)
     z0 = np.asarray(z0, float)
     w = np.asarray(w, float)
-    a_fac = 1.0 + 2.0 * w / (b - t) + (b + t) / (np.pi * (b - t)) * math.log((2.0 * b - t) / t)
+    a_fac = 1.0 + 2.0 * w / (b - t) + (b + t) / (np.pi * (b - t)) * np.log((2.0 * b - t) / t)
     low = 2.7e-3 * rs * eps_r * z0 * a_fac / (30.0 * np.pi * (b - t))
     b_fac = 1.0 + b / (0.5 * w + 0.7 * t) * (
         0.5 + 0.414 * t / w + np.log(4.0 * np.pi * w / t) / (2.0 * np.pi)
     )
     high = 0.16 * rs / (z0 * b) * b_fac
-    return np.where(math.sqrt(eps_r) * z0 < 120.0, low, high)
+    return np.where(np.sqrt(eps_r) * z0 < 120.0, low, high)
 
 
 @dataclass(frozen=True)
@@ -131,7 +131,7 @@ class Stripline:
         shape = np.broadcast_shapes(np.shape(z0), f.shape)
         if not self.loss:
             return np.zeros(shape), np.zeros(shape)
-        k = 2.0 * np.pi * f * math.sqrt(s.eps_r) / C0
+        k = 2.0 * np.pi * f * np.sqrt(s.eps_r) / C0
         alpha_d = np.broadcast_to(k * s.loss_tangent / 2.0, shape)
         b, t = s.height, s.metal_thickness
         w = np.asarray(width, float)
@@ -145,7 +145,7 @@ class Stripline:
         """(gamma, z_c): gamma = α + j 2π f sqrt(eps_r)/c, z_c = Z0 (TEM, no dispersion)."""
         f = v.frequencies("f", f)
         z0 = self.z0(width)
-        beta = 2.0 * np.pi * f * math.sqrt(self.substrate.eps_r) / C0
+        beta = 2.0 * np.pi * f * np.sqrt(self.substrate.eps_r) / C0
         ac, ad = self.attenuation(width, f)
         gamma = (ac + ad) + 1j * beta
         return gamma, np.broadcast_to(z0, gamma.shape).astype(complex)
@@ -167,15 +167,17 @@ class Stripline:
         f = v.frequencies("f", f)
         z0 = self.z0(width)
         shape = np.broadcast_shapes(np.shape(z0), f.shape)
-        return np.broadcast_to(z0, shape), np.full(shape, float(self.substrate.eps_r))
+        return np.broadcast_to(z0, shape), np.broadcast_to(
+            np.asarray(self.substrate.eps_r, float), shape
+        )
 
     def guided_wavelength(self, width: ArrayLike, f: ArrayLike) -> NDArray:
         f = v.frequencies("f", f)
         return np.broadcast_to(
-            C0 / (f * math.sqrt(self.substrate.eps_r)),
+            C0 / (f * np.sqrt(self.substrate.eps_r)),
             np.broadcast_shapes(np.shape(width), f.shape),
         )
 
     def electrical_length(self, width: ArrayLike, length: ArrayLike, f0: float) -> NDArray:
         f0 = v.positive("f0", f0)
-        return 2.0 * np.pi * f0 * math.sqrt(self.substrate.eps_r) / C0 * np.asarray(length, float)
+        return 2.0 * np.pi * f0 * np.sqrt(self.substrate.eps_r) / C0 * np.asarray(length, float)

@@ -20,6 +20,8 @@ class Substrate:
     loss_tangent : tan δ (≥ 0, < 0.1).
     conductivity : of the strip metal (S/m, > 0), or None for a lossless conductor.
     roughness : RMS surface roughness (m, ≥ 0), used by the Hammerstad roughness factor.
+    eps_r_tolerance, height_tolerance : the laminate's 1-sigma tolerances (absolute; the height
+        one in m), used for yield; at most a fifth of the nominal value.
     """
 
     eps_r: float
@@ -28,6 +30,8 @@ class Substrate:
     loss_tangent: float = 0.0
     conductivity: float | None = None
     roughness: float = 0.0
+    eps_r_tolerance: float = 0.0
+    height_tolerance: float = 0.0
 
     def __post_init__(self) -> None:
         v.real_in_range("eps_r", self.eps_r, 1.0, 100.0)
@@ -37,3 +41,5 @@ class Substrate:
         if self.conductivity is not None:
             v.positive("conductivity", self.conductivity)
         v.real_in_range("roughness", self.roughness, 0.0, h)
+        v.real_in_range("eps_r_tolerance", self.eps_r_tolerance, 0.0, self.eps_r / 5.0)
+        v.real_in_range("height_tolerance", self.height_tolerance, 0.0, h / 5.0)
