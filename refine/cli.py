@@ -13,11 +13,12 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import os
 import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from . import __version__, export, job, outputs, plot, synthesis, tolerance
+from . import __version__, export, job, outputs, plot, study, synthesis, tolerance
 from .mask import MaskResult
 from .optimise import Stopping, Strategy
 from .problem import ProblemError, load_problem
@@ -437,6 +438,36 @@ def _cmd_yield(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_study(args: argparse.Namespace) -> int:
+    st = study.load_study(args.study, allow_many=args.yes)
+    if args.workers is not None and not 1 <= args.workers <= 1024:
+        raise UsageError(f"--workers = {args.workers} is outside the allowed range 1..1024")
+    client = study.check_scheduler(args.scheduler) if args.scheduler else None  # before any write
+    where = (
+        f"the Dask scheduler at {args.scheduler}"
+        if client
+        else f"{args.workers or os.cpu_count()} local worker(s)"
+    )
+    print(f"{st.name}: {len(st.designs)} designs over {', '.join(st.axes)} on {where}", flush=True)
+    try:
+        frame = study.run_study(
+            st, args.out, args.workers, client, args.resume, args.force, study.progress_printer()
+        )
+    finally:
+        if client is not None:
+            client.close()
+    counts = frame["status"].value_counts().to_dict()
+    print(
+        f"met {counts.get('met', 0)}, not met {counts.get('not met', 0)}, infeasible {counts.get('infeasible', 0)}"
+    )
+    written = plot.study_pngs(args.out, frame, st.name)
+    print(
+        f"wrote {Path(args.out) / 'results.parquet'}, results.csv, results.jsonl, "
+        + ", ".join(w.name for w in written)
+    )
+    return 0
+
+
 def _cmd_check(args: argparse.Namespace) -> int:
     problem = load_problem(args.problem)
     lay = export.read_layout(args.layout)
@@ -567,6 +598,25 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p.add_argument("--force", action="store_true", help="replace yield.csv and yield.png")
     p.set_defaults(run=_cmd_yield)
+    p = sub.add_parser(
+        "study",
+        help="run a design study: every combination of the axes through the full design path",
+        description="Run every combination of a study file's axes through seed, refine and "
+        "verify; one row per design in results.parquet and results.csv; each design is "
+        "appended to results.jsonl as it finishes, so --resume continues a killed study.",
+    )
+    p.add_argument("study", help="study file (TOML)")
+    p.add_argument("--out", required=True, metavar="DIR", help="folder for the results and plots")
+    p.add_argument("--workers", type=int, help="local worker processes (default: all cores)")
+    p.add_argument(
+        "--scheduler", metavar="ADDRESS", help="run on an existing Dask distributed cluster"
+    )
+    p.add_argument("--resume", action="store_true", help="skip the designs DIR already holds")
+    p.add_argument("--force", action="store_true", help="start again in a DIR that holds a study")
+    p.add_argument(
+        "--yes", action="store_true", help=f"allow more than {study.MAX_DESIGNS} designs"
+    )
+    p.set_defaults(run=_cmd_study)
     p = sub.add_parser(
         "check",
         help="evaluate a layout file against a problem's mask",

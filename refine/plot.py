@@ -207,3 +207,75 @@ def yield_png(
     fig.tight_layout()
 
     return _save(fig, path, 120)
+
+
+def study_pngs(out: str | Path, frame, title: str) -> list[Path]:
+    """The two study pictures.
+
+    ``study-return-loss.png``: worst passband return-loss margin of the closed-form seed (dashed)
+    and of the refined design (solid) against fractional bandwidth, one curve per order,
+    coupling and minimum gap: the narrow-band error of the closed form and what refining recovers.
+    ``study-feasibility.png``: the largest fractional bandwidth that meets the mask under the fab
+    rules, against the minimum gap, for gap and tapped coupling (one line per order).
+    """
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    out = Path(out)
+    written = []
+    fig, ax = plt.subplots(figsize=(8, 4.6))
+    keys = ["order", "external", "min_gap_m"]
+    for i, (grp, rows) in enumerate(frame.groupby(keys, dropna=False)):
+        rows = rows.sort_values("fbw")
+        order, ext, gap = grp
+        lab = f"N={order}, {ext}" + (
+            "" if gap != gap or gap is None else f", min gap {gap * 1e6:g} um"
+        )
+        color = f"C{i % 10}"
+        ax.plot(rows["fbw"] * 100, rows["seed_return_loss_margin_db"], "--", color=color, lw=1)
+        ax.plot(
+            rows["fbw"] * 100,
+            rows["refined_return_loss_margin_db"],
+            "-o",
+            color=color,
+            ms=3,
+            label=lab,
+        )
+    ax.axhline(0, color="black", lw=0.8)
+    ax.set_xlabel("fractional bandwidth (%)")
+    ax.set_ylabel("worst passband return-loss margin (dB)")
+    ax.set_title(f"{title}: closed-form seed (dashed) vs refined (solid)", fontsize=10)
+    ax.grid(True, alpha=0.3)
+    ax.legend(fontsize=7)
+    fig.tight_layout()
+    written.append(_save(fig, out / "study-return-loss.png", 120))
+
+    fig, ax = plt.subplots(figsize=(8, 4.6))
+    met = frame[frame["status"] == "met"]
+    for i, ((order, ext), rows) in enumerate(frame.groupby(["order", "external"])):
+        gaps = sorted(rows["min_gap_m"].dropna().unique())
+        best = []
+        for g in gaps:
+            ok = met[(met["order"] == order) & (met["external"] == ext) & (met["min_gap_m"] == g)]
+            best.append(ok["fbw"].max() * 100 if len(ok) else 0.0)
+        # thicker, fainter lines first, so that series lying on top of each other stay visible
+        ax.plot(
+            [g * 1e6 for g in gaps],
+            best,
+            "-o" if ext == "gap" else "--s",
+            color=f"C{i % 10}",
+            lw=5 - 1.2 * min(i, 3),
+            ms=9 - 2 * min(i, 3),
+            alpha=0.55 + 0.15 * min(i, 3),
+            label=f"N={order}, {ext} coupling",
+        )
+    ax.set_xlabel("minimum gap of the shop (um)")
+    ax.set_ylabel("largest fractional bandwidth met (%)")
+    ax.set_title(f"{title}: feasibility under the fab rules", fontsize=10)
+    ax.grid(True, alpha=0.3)
+    ax.legend(fontsize=7)
+    fig.tight_layout()
+    written.append(_save(fig, out / "study-feasibility.png", 120))
+    return written
