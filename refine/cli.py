@@ -287,7 +287,9 @@ def _centre(problem, r: RefineResult, args: argparse.Namespace) -> RefineResult:
         )
         return r
     print("centring for yield ...", flush=True)
-    c = tolerance.centre_for_yield(problem, r.layout, correlated=args.correlated)
+    c = tolerance.centre_for_yield(
+        problem, r.layout, correlated=args.correlated, free_widths=not args.fixed_widths
+    )
     b, a = c.yield_before, c.yield_after
     print(
         f"yield {100 * b.yield_fraction:.1f} % -> {100 * a.yield_fraction:.1f} % "
@@ -323,7 +325,9 @@ def _cmd_design(args: argparse.Namespace) -> int:
     _print_seed(sd)
     print()
     print(f"refining ({args.strategy}) ...", flush=True)
-    r = refine_problem(problem, Strategy(args.strategy), stopping, sd, _progress_printer())
+    r = refine_problem(
+        problem, Strategy(args.strategy), stopping, sd, _progress_printer(), not args.fixed_widths
+    )
     print()
     print(
         f"status: {r.status.value.upper()} — worst margin {r.worst_margin:+.2f} dB on the "
@@ -552,6 +556,11 @@ def build_parser() -> argparse.ArgumentParser:
         "layout.json, response.s2p, layout.dxf, layout.svg, response.png, layout.png, report.md)",
     )
     p.add_argument("--force", action="store_true", help="replace output files already in DIR")
+    p.add_argument(
+        "--fixed-widths",
+        action="store_true",
+        help="keep every resonator at the feed (z_ref) width; refine gaps, lengths and taps only",
+    )
     p.add_argument(
         "--centre-yield",
         action="store_true",

@@ -178,10 +178,12 @@ def refine_problem(
     stopping: Stopping | None = None,
     seed: job.Seed | None = None,
     progress: Callable[[int, float], None] | None = None,
+    free_widths: bool = True,
 ) -> RefineResult:
     """Refine a problem's closed-form seed until the mask is met under the fab rules.
 
-    ``progress(evaluations, best_worst_margin_db)`` is called after every model evaluation."""
+    ``progress(evaluations, best_worst_margin_db)`` is called after every model evaluation.
+    With ``free_widths`` False the resonators keep the seed's width (the z_ref line width)."""
     stopping = stopping or Stopping()
     t0 = time.perf_counter()
     sd = seed or job.seed(problem)
@@ -201,7 +203,7 @@ def refine_problem(
     diag = diagnose(
         d, medium, problem.fab, problem.gap_model, seed_layout.feed_width, problem.external
     )
-    free_widths = True  # resonator widths are refinable dimensions (bounded by the fab rules)
+    # resonator widths are refinable dimensions (bounded by the fab rules) unless held fixed
 
     def factory(f: NDArray, fw: bool = free_widths) -> StripFilterModel:
         return strip_model_for(medium, problem.gap_model, problem.z_ref, seed_layout, f, fw)

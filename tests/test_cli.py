@@ -76,3 +76,11 @@ def test_tapped_problem_shows_a_tapped_seed(capsys):
     seed_part = out[out.index("realised seed") : out.index("refining")]
     assert "tap in" in seed_part and "tap out" in seed_part and "gap 1" in seed_part
     assert "gap 0" not in seed_part and "none works" not in seed_part  # no end gaps with a tap
+
+
+def test_fixed_widths_keeps_every_resonator_at_the_feed_width(tmp_path):
+    out = tmp_path / "fw"
+    prob = str(ROOT / "problems/microstrip-x-band-alumina-n3.toml")
+    assert main(["design", prob, "--fixed-widths", "--centre-yield", "--out", str(out)]) == 0
+    lay = json.loads((out / "layout.json").read_text())
+    assert all(w == lay["feed_width"] for w in lay["widths"])
