@@ -14,7 +14,6 @@ with its best margin, the binding constraints, and quantified remedies:
 
 from __future__ import annotations
 
-import math
 import warnings
 from dataclasses import dataclass, replace
 
@@ -179,7 +178,3 @@ def diagnose(
         if ends_fail and not inner_fail and external == "tap":
             remedies.append("the tapped feed removes the end gaps; the inner ones are reachable")
     return Diagnosis(tuple(checks), tuple(remedies))
-
-
-def sensible_fbw(fbw: float) -> str:
-    return f"{100 * fbw:.3g} %" if math.isfinite(fbw) else "n/a"

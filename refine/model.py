@@ -39,7 +39,7 @@ from . import cascade, validity
 from .circuit import StripMedium, check_gap_model, gap_capacitances, medium_kind
 from .discontinuities import kirschning_jansen_koster_open_end, stripline_open_end
 from .layout import Layout
-from .media.microstrip import Microstrip, hammerstad_jensen
+from .media.microstrip import hammerstad_jensen
 from .media.stripline import Stripline
 
 _CSTEP = 1e-30  # complex-step size relative to the gap width
@@ -383,7 +383,6 @@ def strip_model_for(
 
 __all__ = [
     "IdealFilterModel",
-    "Microstrip",
     "Response",
     "StripFilterModel",
     "open_end_extension",
