@@ -4,6 +4,7 @@ Verbs
 -----
 ``refine synth PROBLEM``   closed-form design only (g, J/Y0, B/Y0, C, θ) and its ideal response.
 ``refine design PROBLEM``  the main job (see ``refine design --help``).
+``refine fullwave LAYOUT --problem PROBLEM``  full-wave check of a layout (needs openEMS).
 
 Exit codes: 0 mask met; 1 completed but the mask is not met; 2 bad input (message, no traceback).
 """
@@ -320,6 +321,8 @@ def _cmd_design(args: argparse.Namespace) -> int:
         raise UsageError(f"--power = {args.power:g} W is outside the allowed range (0, inf)")
     if args.out is not None:
         outputs.prepare_folder(args.out, args.force)  # refuse before any work or any write
+    if args.fullwave is not None:
+        _fullwave_ready(problem, args)
     stopping = Stopping(max_evaluations=args.max_evaluations, target_margin_db=args.margin)
     sd = job.seed(problem)
     _print_seed(sd)
@@ -370,7 +373,34 @@ def _cmd_design(args: argparse.Namespace) -> int:
         print(f"wrote {len(written)} files to {args.out}: " + ", ".join(w.name for w in written))
         if r.status is not Status.MET:
             print("  (they describe the best design found, which does NOT meet the mask)")
+        if args.fullwave is not None:
+            from .fullwave import handover, verify
+
+            print()
+            print(f"field solver check (mesh {args.fullwave}) ...", flush=True)
+            check = verify.check_layout(problem, r.layout, args.fullwave)
+            written = handover.write_check(check, args.out, force=True)
+            print(
+                f"{check.runs} engine runs, {check.seconds:.0f} s: {check.comparison.summary_line()}"
+            )
+            print("wrote " + ", ".join(w.name for w in written))
     return 0 if r.status is Status.MET else 1
+
+
+def _fullwave_ready(problem, args: argparse.Namespace) -> None:
+    """Refuse --fullwave before any work when it cannot run."""
+    from .fullwave import engine
+
+    if args.out is None:
+        raise UsageError("--fullwave needs --out DIR for its files")
+    if problem.medium != "microstrip":
+        raise UsageError(
+            f"--fullwave: medium.kind = {problem.medium!r}; the field check handles microstrip only"
+        )
+    try:
+        engine.find_engine()
+    except engine.EngineMissing as e:
+        raise UsageError(str(e)) from None
 
 
 def _cmd_yield(args: argparse.Namespace) -> int:
@@ -506,6 +536,56 @@ def _cmd_check(args: argparse.Namespace) -> int:
     return 0 if res.passed else 1
 
 
+def spacemap_files() -> tuple[str, ...]:
+    from .fullwave import spacemap
+
+    return spacemap.FILES
+
+
+def _cmd_fullwave(args: argparse.Namespace) -> int:
+    from .fullwave import engine, handover, verify
+
+    problem = load_problem(args.problem)
+    lay = export.read_layout(args.layout)
+    if isinstance(lay, dict):
+        raise UsageError(
+            f"{args.layout}: the field check needs a physical layout, not an electrical one"
+        )
+    out = Path(args.out) if args.out is not None else Path(args.layout).parent
+    names = handover.FILES + (spacemap_files() if args.correct else ())
+    clash = [n for n in names if (out / n).exists()]
+    if clash and not args.force:
+        raise UsageError(
+            f"--out {out}: already holds {', '.join(clash)}; use --force to replace them"
+        )
+    try:
+        eng = engine.find_engine()
+    except engine.EngineMissing as e:
+        raise UsageError(str(e)) from None
+    print(f"field solver: {eng.version} under {eng.python}; mesh {args.mesh}", flush=True)
+    print(
+        "solving: a thru line for the port calibration, then the layout (minutes) ...", flush=True
+    )
+    if args.correct:
+        from .fullwave import spacemap
+
+        sm = spacemap.correct(
+            problem, lay, args.mesh, args.max_runs, progress=print, method=args.method
+        )
+        print(sm.summary())
+        check = sm.checks[-1]
+        written = handover.write_check(check, out, args.force)
+        written += spacemap.write_corrected(sm, out, args.force)
+    else:
+        check = verify.check_layout(problem, lay, args.mesh)
+        written = handover.write_check(check, out, args.force)
+    print(f"{check.runs} engine runs, {check.seconds:.0f} s")
+    print(_table(["figure", "field solver", "circuit model"], check.comparison.rows()))
+    print(check.comparison.summary_line())
+    print(f"wrote {len(written)} files to {out}: " + ", ".join(w.name for w in written))
+    return 0 if check.comparison.em_mask.passed else 1
+
+
 def build_parser() -> argparse.ArgumentParser:
     ap = argparse.ArgumentParser(
         prog="refine",
@@ -578,6 +658,12 @@ def build_parser() -> argparse.ArgumentParser:
         default=1.0,
         help="input power in W for the peak gap voltage in the report (default: %(default)s)",
     )
+    p.add_argument(
+        "--fullwave",
+        choices=["coarse", "fine", "converged"],
+        help="after writing the outputs, check the layout with the field solver (openEMS) on "
+        "this mesh and add the comparison to the report (minutes per run)",
+    )
     p.set_defaults(run=_cmd_design)
     p = sub.add_parser(
         "yield",
@@ -635,6 +721,46 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("layout", help="layout file (JSON)")
     p.add_argument("--problem", required=True, help="problem file (TOML)")
     p.set_defaults(run=_cmd_check)
+    p = sub.add_parser(
+        "fullwave",
+        help="check a layout with the full-wave field solver (openEMS)",
+        description="Field-solve a layout.json on its problem's substrate with the open FDTD "
+        "engine openEMS and compare with the circuit model: writes fullwave.s2p, fullwave.png "
+        "(overlay with the mask), fullwave.json and fullwave.md, and adds the comparison to "
+        "report.md and summary.json when DIR holds a design. Exit code 0 when the field-solver "
+        "response meets the mask, 1 when not, 2 on bad input or a missing engine.",
+    )
+    p.add_argument("layout", help="layout file (JSON)")
+    p.add_argument("--problem", required=True, help="problem file (TOML)")
+    p.add_argument(
+        "--mesh",
+        choices=["coarse", "fine", "converged"],
+        default="coarse",
+        help="coarse (50 um edge cells), fine (25 um), or converged (three meshes, "
+        "extrapolated); default: %(default)s",
+    )
+    p.add_argument(
+        "--correct",
+        action="store_true",
+        help="EM-corrected refinement: map the field-solver response back onto the circuit "
+        "model and move the layout until the field-solver response meets the mask",
+    )
+    p.add_argument(
+        "--max-runs",
+        type=int,
+        default=3,
+        help="with --correct: field solves allowed, the first included (default: %(default)s)",
+    )
+    p.add_argument(
+        "--method",
+        choices=["implicit", "aggressive"],
+        default="implicit",
+        help="with --correct: implicit space mapping (extract model corrections, re-refine) or "
+        "aggressive space mapping (input-space map); default: %(default)s",
+    )
+    p.add_argument("--out", metavar="DIR", help="output folder (default: the layout's folder)")
+    p.add_argument("--force", action="store_true", help="replace the field-check files in DIR")
+    p.set_defaults(run=_cmd_fullwave)
     return ap
 
 

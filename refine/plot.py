@@ -71,8 +71,13 @@ def response_png(
     mask: Mask,
     title: str,
     status: str,
+    labels: tuple[str, str] = ("refined", "closed-form seed"),
 ) -> Path:
-    """|S21|, |S11| in dB with the mask; seed dashed, refined solid; second panel on the passband."""
+    """|S21|, |S11| in dB with the mask; seed dashed, refined solid; second panel on the passband.
+
+    labels names the solid and the dashed curves (the field-solver overlay passes
+    ("field solver", "circuit model")).
+    """
     import matplotlib
 
     matplotlib.use("Agg")
@@ -93,7 +98,7 @@ def response_png(
                 "--",
                 color="tab:blue",
                 lw=1,
-                label="|S21| closed-form seed",
+                label=f"|S21| {labels[1]}",
             )
             ax.plot(
                 ghz[sel],
@@ -101,13 +106,21 @@ def response_png(
                 "--",
                 color="tab:orange",
                 lw=1,
-                label="|S11| closed-form seed",
+                label=f"|S11| {labels[1]}",
             )
         ax.plot(
-            ghz[sel], _db(s_refined[sel, 1, 0]), color="tab:blue", lw=1.8, label="|S21| refined"
+            ghz[sel],
+            _db(s_refined[sel, 1, 0]),
+            color="tab:blue",
+            lw=1.8,
+            label=f"|S21| {labels[0]}",
         )
         ax.plot(
-            ghz[sel], _db(s_refined[sel, 0, 0]), color="tab:orange", lw=1.8, label="|S11| refined"
+            ghz[sel],
+            _db(s_refined[sel, 0, 0]),
+            color="tab:orange",
+            lw=1.8,
+            label=f"|S11| {labels[0]}",
         )
         ax.set_ylim(bottom, 2)
         ax.set_xlim(ghz[sel][0], ghz[sel][-1])

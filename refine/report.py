@@ -115,6 +115,9 @@ def summary(
         },
         "fab_violations": list(r.fab_violations),
         "gap_model_spread_db": {m: res.worst for m, res in spread.items()},
+        "gap_models_vs_field_solver": [
+            {k: v for k, v in d.items() if k != "sentence"} for d in field_verdicts(r)
+        ],
         "peak_gap_voltage_v": volts,
         "input_power_w": power_w,
         "diagnosis": None
@@ -148,6 +151,16 @@ CAUTIONS = """## Cautions
 - Transmitters must meet local radio regulations and RF-exposure limits. Defer to local codes and
   licensed practice.
 """
+
+
+def field_verdicts(r: RefineResult) -> list[dict]:
+    """Per distinct gap of a microstrip layout: which closed-form gap model the bundled
+    field-solver calibration favours there (empty for other media)."""
+    if r.layout is None or r.problem.medium != "microstrip":
+        return []
+    from .fullwave import calibration
+
+    return calibration.layout_verdicts(r.layout, r.problem.substrate)
 
 
 def report_md(
@@ -269,6 +282,15 @@ def report_md(
         lines += ["| gap model | " + " | ".join(names) + " |", "|---" * (len(names) + 1) + "|"]
         for mname, res in spread.items():
             lines.append(f"| {mname} | " + " | ".join(f"{res.worst[n]:+.2f}" for n in names) + " |")
+    verdicts = field_verdicts(r)
+    if verdicts:
+        lines += ["", "## Gap models against the field solver", ""]
+        lines += [f"- gap {d['gap']}: {d['sentence']}" for d in verdicts]
+        lines += [
+            "",
+            "From the bundled calibration set (mesh-extrapolated openEMS solutions of single "
+            "gaps); a distance above about 0.7 means no calibrated gap is close.",
+        ]
     if warnings_:
         lines += ["", "## Model-range warnings", ""] + [f"- {w}" for w in warnings_]
     if r.notes:

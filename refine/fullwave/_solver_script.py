@@ -1,0 +1,119 @@
+"""Field-solve worker: runs under the interpreter that has the openEMS bindings.
+
+This file is executed as a script (``python3 _solver_script.py job.json result.npz``), never
+imported by refine: it needs only numpy and the engine's own CSXCAD/openEMS modules, so refine's
+environment and the engine's can differ. The job file holds everything, already decided on the
+refine side (mesh lines, copper, ports, excitation, time cap), all lengths in metres; this script
+only turns it into engine calls, runs the engine, and writes the port voltages and currents in
+the frequency domain.
+"""
+
+import json
+import os
+import sys
+import time
+
+import numpy as np
+
+# The engine's port code (2019 snapshot) uses aliases that numpy 1.24 removed.
+for _alias, _builtin in (("float", float), ("int", int)):
+    if not hasattr(np, _alias):
+        setattr(np, _alias, _builtin)
+
+from CSXCAD import ContinuousStructure  # noqa: E402
+from openEMS import openEMS  # noqa: E402
+from openEMS.physical_constants import EPS0  # noqa: E402
+
+UNIT = 1e-6  # drawing unit handed to the engine: micrometres
+
+
+def um(x):
+    return [float(v) / UNIT for v in x]
+
+
+def main(job_path, out_path):
+    with open(job_path) as fh:
+        job = json.load(fh)
+    work = os.path.dirname(os.path.abspath(out_path))
+    sim_path = os.path.join(work, "engine-run")
+
+    fdtd = openEMS(NrTS=int(job["max_steps"]), EndCriteria=float(job["end_criterion"]))
+    fdtd.SetMaxTime(float(job["max_time"]))
+    exc = job["excitation"]
+    fdtd.SetGaussExcite(float(exc["f0"]), float(exc["fc"]))
+    fdtd.SetBoundaryCond(job["boundaries"])
+
+    csx = ContinuousStructure()
+    fdtd.SetCSX(csx)
+    grid = csx.GetGrid()
+    grid.SetDeltaUnit(UNIT)
+    for axis in ("x", "y", "z"):
+        grid.SetLines(axis, um(job["mesh"][axis]))
+
+    sub = job["substrate"]
+    f0 = float(exc["f0"])
+    kappa = 2 * np.pi * f0 * EPS0 * float(sub["eps_r"]) * float(sub["loss_tangent"])
+    diel = csx.AddMaterial("substrate", epsilon=float(sub["eps_r"]), kappa=kappa)
+    xs, ys = job["mesh"]["x"], job["mesh"]["y"]
+    diel.AddBox(um([xs[0], ys[0], 0.0]), um([xs[-1], ys[-1], sub["height"]]), priority=0)
+
+    metal = job["metal"]
+    if metal.get("conductivity"):
+        cu = csx.AddConductingSheet(
+            "copper", conductivity=float(metal["conductivity"]), thickness=float(metal["thickness"])
+        )
+    else:
+        cu = csx.AddMetal("copper")
+    h = float(sub["height"])
+    for x0, y0, x1, y1 in job["strips"]:
+        cu.AddBox(um([x0, y0, h]), um([x1, y1, h]), priority=10)
+
+    ports = []
+    for p in job["ports"]:
+        kw = {"MeasPlaneShift": float(p["meas_shift"]) / UNIT, "priority": 10}
+        if p["excite"]:
+            kw["FeedShift"] = float(p["feed_shift"]) / UNIT
+        ports.append(
+            fdtd.AddMSLPort(
+                int(p["number"]),
+                cu,
+                um(p["start"]),
+                um(p["stop"]),
+                p["direction"],
+                "z",
+                excite=1 if p["excite"] else 0,
+                **kw,
+            )
+        )
+
+    t0 = time.time()
+    fdtd.Run(sim_path, cleanup=True, verbose=0, numThreads=int(job.get("threads", 0)))
+    elapsed = time.time() - t0
+
+    freq = np.asarray(job["frequencies"], float)
+    out = {"f": freq, "elapsed": np.array(elapsed)}
+    for p, port in zip(job["ports"], ports, strict=True):
+        port.ReadUIData(sim_path, freq)
+        n = int(p["number"])
+        axis = {"x": 0, "y": 1, "z": 2}[p["direction"]]
+        start = float(p["start"][axis])
+        meas = start + port.direction * port.measplane_shift * UNIT
+        out[f"v{n}"] = np.asarray(port.uf_tot, complex)
+        out[f"i{n}"] = np.asarray(port.if_tot, complex)
+        out[f"beta{n}"] = np.asarray(port.beta, complex)  # already per metre
+        out[f"zc{n}"] = np.asarray(port.Z_ref, complex)
+        out[f"meas{n}"] = np.array(meas)
+        t = np.asarray(port.u_data.ui_time[1], float)
+        out["sim_time"] = np.array(t[-1] if len(t) else 0.0)
+        tail = np.abs(np.asarray(port.u_data.ui_val[1], float))
+        peak = float(tail.max()) if tail.size else 0.0
+        out[f"tail{n}"] = np.array(
+            float(tail[-max(1, tail.size // 20) :].max()) / peak if peak else 0.0
+        )
+    tmp = out_path + ".part.npz"
+    np.savez(tmp, **out)
+    os.replace(tmp, out_path)
+
+
+if __name__ == "__main__":
+    main(sys.argv[1], sys.argv[2])

@@ -1,0 +1,135 @@
+"""Finding and running the open FDTD engine (openEMS with CSXCAD) in a subprocess.
+
+The engine's Python bindings are usually a system package (Debian/Ubuntu: ``python3-openems``)
+that imports under the system interpreter only, so refine never imports them: it writes a job
+file, runs :mod:`refine.fullwave._solver_script` under an interpreter that has the bindings, and
+reads the result file back. The interpreter is, in order: ``$REFINE_OPENEMS_PYTHON``, this
+interpreter, ``/usr/bin/python3``.
+"""
+
+from __future__ import annotations
+
+import functools
+import json
+import os
+import subprocess
+import sys
+import tempfile
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+SCRIPT = Path(__file__).with_name("_solver_script.py")
+
+INSTALL_HINT = (
+    "the field solver needs the openEMS FDTD engine with its Python bindings. On Debian or "
+    "Ubuntu: 'sudo apt-get install python3-openems' (about 700 MB); elsewhere build openEMS and "
+    "CSXCAD with their Python bindings, then point REFINE_OPENEMS_PYTHON at a Python interpreter "
+    "that can 'import openEMS'. The rest of refine works without it."
+)
+
+
+class EngineMissing(RuntimeError):
+    """No interpreter with the openEMS bindings was found."""
+
+
+class EngineFailed(RuntimeError):
+    """The engine ran but did not produce a result."""
+
+
+@dataclass(frozen=True)
+class Engine:
+    python: str
+    version: str
+
+
+def _probe(python: str) -> str | None:
+    code = (
+        "import numpy as np\n"
+        "np.float = float; np.int = int\n"
+        "import openEMS, CSXCAD, subprocess\n"
+        "print(getattr(openEMS, '__version__', ''))\n"
+    )
+    try:
+        out = subprocess.run(
+            [python, "-c", code], capture_output=True, text=True, timeout=60, check=False
+        )
+    except (OSError, subprocess.TimeoutExpired):
+        return None
+    return out.stdout.strip() if out.returncode == 0 else None
+
+
+def _engine_version() -> str:
+    try:
+        out = subprocess.run(
+            ["openEMS", "--help"], capture_output=True, text=True, timeout=30, check=False
+        )
+    except (OSError, subprocess.TimeoutExpired):
+        return "openEMS (version unknown)"
+    for line in (out.stdout + out.stderr).splitlines():
+        if "version" in line:
+            return "openEMS " + line.split("version", 1)[1].strip()
+    return "openEMS (version unknown)"
+
+
+@functools.cache
+def find_engine() -> Engine:
+    """The interpreter that runs the field solve, or :class:`EngineMissing` saying what to
+    install."""
+    candidates = []
+    env = os.environ.get("REFINE_OPENEMS_PYTHON")
+    if env:
+        candidates.append(env)
+    candidates += [sys.executable, "/usr/bin/python3"]
+    for py in dict.fromkeys(candidates):
+        if _probe(py) is not None:
+            return Engine(py, _engine_version())
+    tried = ", ".join(dict.fromkeys(candidates))
+    raise EngineMissing(f"{INSTALL_HINT} (tried: {tried})")
+
+
+def available() -> bool:
+    try:
+        find_engine()
+    except EngineMissing:
+        return False
+    return True
+
+
+def run(job: dict, workdir: str | Path | None = None, timeout: float = 6 * 3600) -> dict:
+    """Run one job; returns the result arrays (see the solver script) plus ``seconds``.
+
+    workdir : keep the engine's files there (a fresh temporary folder otherwise, removed after).
+    """
+    engine = find_engine()
+    with tempfile.TemporaryDirectory(prefix="refine-fdtd-") as tmp:
+        work = Path(workdir) if workdir is not None else Path(tmp)
+        work.mkdir(parents=True, exist_ok=True)
+        job_path = work / "job.json"
+        out_path = work / "result.npz"
+        job_path.write_text(json.dumps(job))
+        out_path.unlink(missing_ok=True)
+        t0 = time.perf_counter()
+        try:
+            proc = subprocess.run(
+                [engine.python, str(SCRIPT), str(job_path), str(out_path)],
+                capture_output=True,
+                text=True,
+                timeout=timeout,
+                check=False,
+                cwd=work,
+            )
+        except subprocess.TimeoutExpired as exc:
+            raise EngineFailed(f"the field solve took longer than {timeout:.0f} s") from exc
+        seconds = time.perf_counter() - t0
+        (work / "engine.log").write_text(proc.stdout + proc.stderr)
+        if proc.returncode != 0 or not out_path.exists():
+            tail = "\n".join((proc.stdout + proc.stderr).strip().splitlines()[-15:])
+            raise EngineFailed(f"the field solve failed (exit {proc.returncode}):\n{tail}")
+        with np.load(out_path) as data:
+            result = {k: data[k] for k in data.files}
+    result["seconds"] = seconds
+    result["engine"] = engine.version
+    return result

@@ -1,0 +1,324 @@
+"""Copper, substrate, mesh, ports and excitation of one field-solver run, as a plain job.
+
+The copper comes from :func:`refine.export.copper`, the same rectangles the DXF and SVG
+drawings are made of, so the field solver sees exactly the drawing that is handed over. Strips
+are zero-thickness sheets on the substrate top (z = h); the ground is the PEC floor of the box.
+
+Ports are microstrip ports on the feeds: the wave is launched ``feed_shift`` in from the box edge
+(past the absorbing layer), voltages and currents are probed at a measurement plane a distance
+``D_ref`` short of the filter's reference plane, and the waves are moved to the reference plane
+afterwards with the propagation constant from a thru run on the same mesh (see
+:mod:`refine.fullwave.waves`). Reference planes: the feed ends at the outer edges of the end
+gaps (gap coupling, as in :mod:`refine.circuit`), or the end resonator's centre line for a tapped
+feed, where the circuit model joins it (the last half resonator width is de-embedded as feed
+line, the usual junction-centre convention; the tee itself is not in the circuit model, so its
+parasitics show up as EM-vs-model difference).
+Microstrip only: the port probes assume a strip over one ground plane.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .. import _validate as v
+from ..export import Strip, copper
+from ..layout import Layout
+from ..media.substrate import Substrate
+from . import mesh as meshing
+
+PML_CELLS = 8
+FEED_SHIFT_CELLS = 10  # launch past the absorbing layer (PML_CELLS) with two cells to spare
+
+
+@dataclass(frozen=True)
+class Resolution:
+    """A mesh preset. edge_cell: the cell at strip and gap edges (m), never more than half the
+    smallest gap; cells_per_wavelength: in the substrate at the top of the band; ratio: the
+    largest growth between neighbouring cells."""
+
+    name: str
+    edge_cell: float
+    cells_per_wavelength: int = 20
+    ratio: float = 1.3
+
+    def __post_init__(self) -> None:
+        v.positive("mesh edge_cell", self.edge_cell)
+        v.integer_in_range("mesh cells_per_wavelength", self.cells_per_wavelength, 10, 80)
+        v.real_in_range("mesh ratio", self.ratio, 1.05, 1.6)
+
+    def halved(self, times: int = 1) -> Resolution:
+        return replace(self, name=f"{self.name}/{2**times}", edge_cell=self.edge_cell / 2**times)
+
+
+MESHES: dict[str, Resolution] = {
+    "coarse": Resolution("coarse", 50e-6),
+    "fine": Resolution("fine", 25e-6),
+}
+
+
+@dataclass(frozen=True)
+class Feed:
+    """A microstrip feed of the field model. axis: "x" or "y", the feed's direction;
+    outward: +1 or -1, from the filter towards the box edge; ref: the reference-plane
+    coordinate on that axis; edge: where the feed meets the box edge; centre: the feed's centre
+    line on the other axis; width: strip width."""
+
+    axis: str
+    outward: int
+    ref: float
+    edge: float
+    centre: float
+    width: float
+
+    @property
+    def length(self) -> float:
+        return abs(self.edge - self.ref)
+
+
+@dataclass(frozen=True)
+class Structure:
+    """Copper of a two-port on a substrate, with its two feeds and the gaps to mesh finely.
+
+    openings : (axis, lo, hi) of every gap between strips, along the coupling axis.
+    symmetric : True when the copper is its own mirror image across the middle between the two
+        reference planes (then one excitation gives the whole S-matrix).
+    """
+
+    strips: tuple[Strip, ...]
+    feeds: tuple[Feed, Feed]
+    openings: tuple[tuple[str, float, float], ...]
+    symmetric: bool
+
+    def thru(self, far_edge: float | None = None) -> Structure:
+        """A straight line of the first feed's width along its axis from box edge to box edge,
+        with the same feeds: the calibration run for the ports' line impedance and
+        propagation constant. far_edge: for tapped feeds, the box edge the line runs to."""
+        f1, f2 = self.feeds
+        half = f1.width / 2
+        if f1.axis == "x":
+            lo, hi = min(f1.edge, f2.edge), max(f1.edge, f2.edge)
+            st = Strip(lo, f1.centre - half, hi, f1.centre + half, "thru")
+        else:  # tapped feeds: the first feed's line carried straight across the box
+            top = far_edge if far_edge is not None else max(s.y1 for s in self.strips)
+            st = Strip(f1.centre - half, f1.edge, f1.centre + half, top, "thru")
+        return Structure((st,), self.feeds, (), self.symmetric)
+
+
+def feed_length(substrate: Substrate, feed_width: float, f_max: float, res: Resolution) -> float:
+    """Feed line inside the box: the launch past the absorbing layer, then ``D_ref`` of settled
+    line before the measurement plane and ``D_ref`` from it to the reference plane, where
+    ``D_ref = max(4 h, 3 W)`` lets the discontinuity's evanescent fields die out (common
+    practice, no source)."""
+    d_max = meshing.max_cell(f_max, substrate.eps_r, res.cells_per_wavelength)
+    return FEED_SHIFT_CELLS * d_max + 2.0 * reference_distance(substrate, feed_width)
+
+
+def reference_distance(substrate: Substrate, feed_width: float) -> float:
+    return max(4.0 * substrate.height, 3.0 * feed_width)
+
+
+def _is_mirror(layout: Layout) -> bool:
+    def same(a, b):
+        return all(
+            math.isclose(x, y, rel_tol=1e-12, abs_tol=1e-12) for x, y in zip(a, b, strict=True)
+        )
+
+    sym = (
+        same(layout.widths, layout.widths[::-1])
+        and same(layout.gaps, layout.gaps[::-1])
+        and same(layout.lengths, layout.lengths[::-1])
+    )
+    if layout.external == "tap":
+        sym = sym and math.isclose(layout.taps[0], layout.taps[1], rel_tol=1e-12)
+    return sym
+
+
+def layout_structure(layout: Layout, substrate: Substrate, length: float) -> Structure:
+    """The field model's copper for a layout, feeds ``length`` long (see :func:`feed_length`)."""
+    v.positive("feed length", length)
+    strips = copper(layout, feed_length=length)
+    wf = layout.feed_width
+    if layout.external == "gap":
+        fin = next(s for s in strips if s.name == "feed in")
+        fout = next(s for s in strips if s.name == "feed out")
+        feeds = (
+            Feed("x", -1, fin.x1, fin.x0, 0.0, wf),
+            Feed("x", +1, fout.x0, fout.x1, 0.0, wf),
+        )
+        res = [s for s in strips if s.name.startswith("resonator")]
+        edges = [fin.x1, *[e for r in res for e in (r.x0, r.x1)], fout.x0]
+        openings = tuple(("x", a, b) for a, b in zip(edges[0::2], edges[1::2], strict=True))
+        return Structure(tuple(strips), feeds, openings, _is_mirror(layout))
+    # tapped feeds arrive from -y; bring both to one box edge
+    y_edge = min(s.y0 for s in strips)
+    out = []
+    feeds = []
+    for s in strips:
+        if s.name.startswith("feed"):
+            s = Strip(s.x0, y_edge, s.x1, s.y1, s.name)
+            feeds.append(Feed("y", -1, 0.0, y_edge, 0.5 * (s.x0 + s.x1), wf))
+        out.append(s)
+    res = [s for s in out if s.name.startswith("resonator")]
+    openings = tuple(("x", a.x1, b.x0) for a, b in itertools.pairwise(res))
+    return Structure(tuple(out), (feeds[0], feeds[1]), openings, _is_mirror(layout))
+
+
+def gap_structure(width: float, gap: float, length: float) -> Structure:
+    """A single symmetric gap of width ``gap`` between two strips of ``width``; reference
+    planes at the two strip ends (x = 0 and x = gap)."""
+    v.positive("gap width", width)
+    v.positive("gap", gap)
+    v.positive("feed length", length)
+    strips = (
+        Strip(-length, -width / 2, 0.0, width / 2, "feed in"),
+        Strip(gap, -width / 2, gap + length, width / 2, "feed out"),
+    )
+    feeds = (Feed("x", -1, 0.0, -length, 0.0, width), Feed("x", +1, gap, gap + length, 0.0, width))
+    return Structure(strips, feeds, (("x", 0.0, gap),), True)
+
+
+@dataclass(frozen=True)
+class Mesh:
+    x: NDArray[np.float64]
+    y: NDArray[np.float64]
+    z: NDArray[np.float64]
+    edge_cell: float
+    d_max: float
+
+    @property
+    def cells(self) -> int:
+        return (len(self.x) - 1) * (len(self.y) - 1) * (len(self.z) - 1)
+
+    @property
+    def smallest(self) -> float:
+        return float(min(np.diff(a).min() for a in (self.x, self.y, self.z)))
+
+
+def build_mesh(st: Structure, substrate: Substrate, f_max: float, res: Resolution) -> Mesh:
+    """Graded mesh: ``edge_cell`` (at most half the gap) at every strip edge, growing to the
+    wavelength limit in open regions; the box reaches ``max(6 h, W)`` beyond the copper on the
+    open sides and ``8 h`` of air above the substrate (common practice, no source)."""
+    h = substrate.height
+    d_max = meshing.max_cell(f_max, substrate.eps_r, res.cells_per_wavelength)
+    edge = min(res.edge_cell, d_max)
+    wmax = max(max(s.x1 - s.x0, s.y1 - s.y0) for s in st.strips)
+    margin = max(6.0 * h, min(wmax, 6.0 * h))
+    pts = {"x": [], "y": []}
+    for s in st.strips:
+        pts["x"] += [(s.x0, edge), (s.x1, edge)]
+        pts["y"] += [(s.y0, edge), (s.y1, edge)]
+    for axis, a, b in st.openings:
+        cell = min(edge, 0.5 * (b - a))
+        pts[axis] += [(a, cell), (b, cell)]
+    box = {
+        "x": [min(s.x0 for s in st.strips), max(s.x1 for s in st.strips)],
+        "y": [min(s.y0 for s in st.strips), max(s.y1 for s in st.strips)],
+    }
+    feed_axes = {f.axis for f in st.feeds}
+    lines = {}
+    for axis in ("x", "y"):
+        lo, hi = box[axis]
+        if axis in feed_axes:
+            out = {f.outward for f in st.feeds if f.axis == axis}
+            lo = lo if -1 in out else lo - margin
+            hi = hi if +1 in out else hi + margin
+        else:
+            lo, hi = lo - margin, hi + margin
+        lines[axis] = meshing.graded_lines(pts[axis], lo, hi, d_max, res.ratio)
+    if st.symmetric:
+        f1, f2 = st.feeds
+        if f1.axis == f2.axis == "x":
+            lines["x"] = meshing.symmetric(lines["x"], 0.5 * (f1.ref + f2.ref))
+        elif f1.axis == f2.axis == "y":
+            lines["x"] = meshing.symmetric(lines["x"], 0.5 * (f1.centre + f2.centre))
+    if "y" not in feed_axes:
+        lines["y"] = meshing.symmetric(lines["y"], 0.0)
+    z_pts = [(0.0, min(h / 4.0, d_max)), (h, edge)]
+    lines["z"] = meshing.graded_lines(z_pts, 0.0, h + 8.0 * h, d_max, res.ratio)
+    # guarantee a line exactly at the substrate top
+    assert np.any(lines["z"] == h)
+    return Mesh(lines["x"], lines["y"], lines["z"], edge, d_max)
+
+
+def boundaries(st: Structure) -> list[str]:
+    """Absorbing layers where the feeds leave the box, first-order absorbing walls elsewhere,
+    PEC floor as the ground plane."""
+    pml = f"PML_{PML_CELLS}"
+    axes = {f.axis for f in st.feeds}
+    bx = [pml, pml] if "x" in axes else ["MUR", "MUR"]
+    by = [pml, pml] if "y" in axes else ["MUR", "MUR"]
+    return [*bx, *by, "PEC", "MUR"]
+
+
+def job(
+    st: Structure,
+    mesh: Mesh,
+    substrate: Substrate,
+    band: tuple[float, float],
+    f: NDArray,
+    max_time: float,
+    excite: int,
+    threads: int = 0,
+    lossy: bool = True,
+) -> dict:
+    """The plain-data job the solver script runs (all lengths in metres)."""
+    f_lo, f_hi = band
+    f0 = 0.5 * (f_lo + f_hi)
+    fc = min(0.55 * (f_hi - f_lo), 0.8 * f0)  # keep DC out of the pulse: floating strips
+    h = substrate.height
+    ports = []
+    for k, fd in enumerate(st.feeds, start=1):
+        lines = {"x": mesh.x, "y": mesh.y}[fd.axis]
+        cell = float(np.max(np.diff(lines)))
+        if fd.axis == "x":
+            start = [fd.edge, fd.centre - fd.width / 2, h]
+            stop = [fd.ref, fd.centre + fd.width / 2, 0.0]
+        else:
+            start = [fd.centre - fd.width / 2, fd.edge, h]
+            stop = [fd.centre + fd.width / 2, fd.ref, 0.0]
+        d_ref = reference_distance(substrate, fd.width)
+        ports.append(
+            {
+                "number": k,
+                "start": start,
+                "stop": stop,
+                "direction": fd.axis,
+                "excite": k == excite,
+                "feed_shift": FEED_SHIFT_CELLS * cell,
+                "meas_shift": fd.length - d_ref,
+            }
+        )
+    metal = {"conductivity": None, "thickness": 0.0}
+    if lossy and substrate.conductivity is not None and substrate.metal_thickness > 0:
+        metal = {"conductivity": substrate.conductivity, "thickness": substrate.metal_thickness}
+    return {
+        "substrate": {
+            "eps_r": substrate.eps_r,
+            "height": h,
+            "loss_tangent": substrate.loss_tangent if lossy else 0.0,
+        },
+        "metal": metal,
+        "mesh": {"x": mesh.x.tolist(), "y": mesh.y.tolist(), "z": mesh.z.tolist()},
+        "strips": [[s.x0, s.y0, s.x1, s.y1] for s in st.strips],
+        "ports": ports,
+        "boundaries": boundaries(st),
+        "excitation": {"f0": f0, "fc": fc},
+        "frequencies": np.asarray(f, float).tolist(),
+        "max_time": float(max_time),
+        "max_steps": 50_000_000,
+        "end_criterion": 1e-5,
+        "threads": int(threads),
+    }
+
+
+def pulse_length(band: tuple[float, float]) -> float:
+    """Duration of the engine's Gaussian pulse for this band (its 9/(2π fc) delay, twice)."""
+    f_lo, f_hi = band
+    f0 = 0.5 * (f_lo + f_hi)
+    fc = min(0.55 * (f_hi - f_lo), 0.8 * f0)
+    return 2.0 * 9.0 / (2.0 * math.pi * fc)

@@ -1,0 +1,146 @@
+"""Files of a field-solver check: EM Touchstone, overlay plot, comparison (JSON and Markdown),
+and the field-solver section of a design's report.md / summary.json when the check is written
+into a design's output folder. Every file is written atomically."""
+
+from __future__ import annotations
+
+import json
+import re
+from pathlib import Path
+
+from .. import export, plot
+from .verify import FieldCheck
+
+FILES = ("fullwave.s2p", "fullwave.png", "fullwave.json", "fullwave.md")
+SECTION = "## Field-solver check"
+
+
+def check_dict(c: FieldCheck) -> dict:
+    comp = c.comparison
+    sol = c.solves[-1]
+    return {
+        "engine": sol.engine,
+        "mesh": c.mesh,
+        "edge_cells_m": [s.resolution.edge_cell for s in c.solves],
+        "cells": [s.mesh.cells for s in c.solves],
+        "engine_runs": c.runs,
+        "engine_seconds": c.seconds,
+        "late_time_residual": max(s.tail for s in c.solves),
+        "centre_hz": {"field_solver": comp.em.centre, "circuit_model": comp.model.centre},
+        "centre_shift_hz": comp.centre_shift,
+        "bandwidth_3db_hz": {
+            "field_solver": comp.em.bandwidth,
+            "circuit_model": comp.model.bandwidth,
+        },
+        "bandwidth_ratio": comp.bandwidth_ratio,
+        "worst_inband_return_loss_db": {
+            "field_solver": comp.em.worst_return_loss,
+            "circuit_model": comp.model.worst_return_loss,
+        },
+        "stopband_edge_loss_db": [
+            {"stopband": lab, "edge_hz": e, "field_solver": a, "circuit_model": b}
+            for (lab, e, a), (_, _, b) in zip(comp.em.rejection, comp.model.rejection, strict=True)
+        ],
+        "mask": {
+            "field_solver": {"passed": comp.em_mask.passed, "worst": comp.em_mask.worst},
+            "circuit_model": {"passed": comp.model_mask.passed, "worst": comp.model_mask.worst},
+        },
+        "extrapolated": c.extrapolated,
+    }
+
+
+def section_md(c: FieldCheck) -> str:
+    """The report section: what was solved, how long it took, and the comparison table."""
+    comp = c.comparison
+    sol = c.solves[-1]
+    cells = ", ".join(f"{s.resolution.edge_cell * 1e6:g}" for s in c.solves)
+    lines = [
+        SECTION,
+        "",
+        f"{sol.engine} (FDTD), mesh `{c.mesh}` (edge cells {cells} um, {sol.mesh.cells} cells on "
+        f"the finest), {c.runs} engine runs in {c.seconds:.0f} s. Strips are zero-thickness "
+        "sheets; dielectric loss at the band centre; reference planes as in the circuit model.",
+        "",
+        f"**{comp.summary_line()}.**",
+        "",
+        "| figure | field solver | circuit model |",
+        "|---|---|---|",
+    ]
+    lines += [f"| {a} | {b} | {m} |" for a, b, m in comp.rows()]
+    if c.extrapolated:
+        lines += [
+            "",
+            "Extrapolated to zero cell size (three meshes, Richardson): centre "
+            f"{c.extrapolated['centre'] / 1e9:.4f} GHz, 3 dB bandwidth "
+            f"{c.extrapolated['bandwidth'] / 1e6:.1f} MHz, worst in-band return loss "
+            f"{c.extrapolated['worst_return_loss']:.2f} dB.",
+        ]
+    tail = max(s.tail for s in c.solves)
+    if tail > 1e-2:
+        lines += [
+            "",
+            f"Caution: the port voltage had only decayed to {tail:.1e} of its peak when the "
+            "simulated time ran out; the sharpest features may carry truncation ripple.",
+        ]
+    lines += [
+        "",
+        "The circuit model and the field solver are both models: build and measure a prototype "
+        "before production.",
+        "",
+    ]
+    return "\n".join(lines)
+
+
+def write_check(c: FieldCheck, out: str | Path, force: bool = False) -> list[Path]:
+    """Write the check's files into ``out``; refresh report.md and summary.json there if a
+    design was written to the same folder."""
+    out = Path(out)
+    if out.exists() and not out.is_dir():
+        raise ValueError(f"--out {out}: exists and is not a folder")
+    if not force:
+        clash = [n for n in FILES if (out / n).exists()]
+        if clash:
+            raise ValueError(
+                f"--out {out}: already holds {', '.join(clash)}; use --force to replace them"
+            )
+    out.mkdir(parents=True, exist_ok=True)
+    p = c.problem
+    comp = c.comparison
+    status = (
+        "mask met on the field solver"
+        if comp.em_mask.passed
+        else "mask NOT met on the field solver"
+    )
+    comments = [
+        f"{export.GENERATOR}: {p.name}",
+        f"field solver: {c.solves[-1].engine}, mesh {c.mesh}",
+        f"status: {status}",
+    ]
+    written = [
+        export.write_touchstone(out / "fullwave.s2p", c.f, c.s_em, p.z_ref, comments),
+        plot.response_png(
+            out / "fullwave.png",
+            c.f,
+            c.s_em,
+            c.s_model,
+            p.mask,
+            f"{p.name}: field solver vs circuit model",
+            status,
+            ("field solver", "circuit model"),
+        ),
+        export.write_json(out / "fullwave.json", check_dict(c)),
+    ]
+    md = section_md(c)
+    written.append(export.write_text_atomic(out / "fullwave.md", f"# {p.name}\n\n{md}"))
+    report = out / "report.md"
+    if report.exists():
+        text = report.read_text()
+        pattern = re.compile(rf"^{re.escape(SECTION)}\n.*?(?=^## |\Z)", re.S | re.M)
+        text = pattern.sub("", text).rstrip("\n") + "\n\n" + md
+        written.append(export.write_text_atomic(report, text))
+    summary = out / "summary.json"
+    if summary.exists():
+        data = json.loads(summary.read_text())
+        data["field_solver"] = check_dict(c)
+        written.append(export.write_json(summary, data))
+    return written

@@ -1,0 +1,140 @@
+"""Field-solver check of a layout against its problem: EM response, circuit-model response on
+the same frequencies, and the comparison figures.
+
+Mesh choices: "coarse" (50 µm edge cells, or half the smallest gap), "fine" (25 µm), or
+"converged": three meshes halving from the coarse one, the comparison figures extrapolated to
+zero cell size (Richardson) and the S-parameters those of the finest mesh.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .. import _validate as v
+from .. import circuit, job, validity
+from ..layout import Layout
+from ..problem import Problem
+from . import compare, geometry, solve, waves
+
+MESH_CHOICES = ("coarse", "fine", "converged")
+
+
+class FieldCheckError(ValueError):
+    """A layout or problem the field solver cannot take."""
+
+
+def em_band(problem: Problem) -> tuple[float, float]:
+    """The excitation band: the mask's span (2 % beyond its top), from at least 0.25 f0 (a
+    stopband reaching lower is judged there by the circuit model alone)."""
+    m = problem.mask
+    lo = min([m.passband_start, *(sb.start for sb in m.stopbands)])
+    hi = max([m.passband_stop, *(sb.stop for sb in m.stopbands)])
+    return max(0.98 * lo, 0.25 * problem.f0), 1.02 * hi
+
+
+def em_frequencies(problem: Problem, n: int = 401) -> NDArray[np.float64]:
+    lo, hi = em_band(problem)
+    m = problem.mask
+    edges = [m.passband_start, m.passband_stop, m.midband]
+    edges += [x for sb in m.stopbands for x in (sb.start, sb.stop) if lo <= x <= hi]
+    return np.unique(np.concatenate([np.linspace(lo, hi, n), edges]))
+
+
+def ringing_time(s21: NDArray, f: NDArray) -> float:
+    """Eight times the circuit model's largest group delay where |S21| > -10 dB: long enough
+    for a Chebyshev filter's slowest pole to ring down by about 60 dB (common practice, no
+    source)."""
+    phase = np.unwrap(np.angle(s21))
+    gd = -np.gradient(phase, 2.0 * np.pi * f)
+    passing = np.abs(s21) > 10 ** (-10 / 20)
+    return 8.0 * float(gd[passing].max()) if passing.any() else 0.0
+
+
+def model_response(problem: Problem, layout: Layout, f: NDArray) -> NDArray[np.complex128]:
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        return circuit.layout_response(
+            layout, job.medium_for(problem), problem.gap_model, f, problem.z_ref
+        )
+
+
+@dataclass(frozen=True)
+class FieldCheck:
+    """A layout's field-solver check. solves: one per mesh (three for "converged");
+    extrapolated: the mesh-extrapolated figures for "converged" (name -> value), else None."""
+
+    problem: Problem
+    layout: Layout
+    mesh: str
+    f: NDArray[np.float64]
+    s_em: NDArray[np.complex128]
+    s_model: NDArray[np.complex128]
+    comparison: compare.Comparison
+    solves: tuple[solve.FieldSolve, ...]
+    extrapolated: dict[str, float] | None
+
+    @property
+    def seconds(self) -> float:
+        return sum(s.seconds for s in self.solves)
+
+    @property
+    def runs(self) -> int:
+        return sum(s.runs for s in self.solves)
+
+
+def resolutions(mesh: str, layout: Layout) -> list[geometry.Resolution]:
+    v.one_of("mesh", mesh, MESH_CHOICES)
+    if mesh == "converged":
+        d = min(geometry.MESHES["coarse"].edge_cell, 0.5 * min(layout.gaps))
+        base = geometry.Resolution("converged", d)
+        return [base, base.halved(1), base.halved(2)]
+    return [geometry.MESHES[mesh]]
+
+
+def check_layout(
+    problem: Problem,
+    layout: Layout,
+    mesh: str = "coarse",
+    workdir: str | Path | None = None,
+    threads: int = 0,
+    lossy: bool = True,
+) -> FieldCheck:
+    """Field-solve a layout on its problem's substrate and compare with the circuit model.
+
+    lossy False: PEC strips on a lossless substrate in the field solver (a diagnostic: the
+    circuit model keeps its losses)."""
+    if problem.medium != "microstrip":
+        raise FieldCheckError(
+            f"medium.kind = {problem.medium!r}: the field check handles microstrip only "
+            "(its ports assume a strip over one ground plane)"
+        )
+    f = em_frequencies(problem)
+    s_model = model_response(problem, layout, f)
+    ring = ringing_time(s_model[:, 1, 0], f)
+    sub = problem.substrate
+    band = em_band(problem)
+    solves = []
+    for k, res in enumerate(resolutions(mesh, layout)):
+        length = geometry.feed_length(sub, layout.feed_width, band[1], res)
+        st = geometry.layout_structure(layout, sub, length)
+        wd = Path(workdir) / f"mesh-{k}" if workdir is not None else None
+        solves.append(solve.solve(st, sub, f, problem.z_ref, res, ring, band, wd, threads, lossy))
+    s_em = solves[-1].s
+    comp = compare.compare(f, s_em, s_model, problem.mask)
+    extra = None
+    if len(solves) == 3:
+        figs = [compare.compare(f, s.s, s_model, problem.mask) for s in solves]
+        cells = [s.resolution.edge_cell for s in solves]
+        extra = {
+            "centre": waves.richardson(cells, [c.em.centre for c in figs]).value,
+            "bandwidth": waves.richardson(cells, [c.em.bandwidth for c in figs]).value,
+            "worst_return_loss": waves.richardson(
+                cells, [c.em.worst_return_loss for c in figs]
+            ).value,
+        }
+    return FieldCheck(problem, layout, mesh, f, s_em, s_model, comp, tuple(solves), extra)
