@@ -52,6 +52,7 @@ def main() -> int:
     ap = argparse.ArgumentParser()
     ap.add_argument("--mesh", choices=["coarse", "fine"], default="coarse")
     ap.add_argument("--docs", action="store_true")
+    ap.add_argument("--method", choices=spacemap.METHODS, default="aggressive")
     args = ap.parse_args()
     warnings.simplefilter("ignore", ModelRangeWarning)
     eng = engine.find_engine()
@@ -73,7 +74,7 @@ def main() -> int:
         f"circuit-model refinement: {r.status.value}, worst margin {r.worst_margin:+.2f} dB, "
         f"{r.evaluations} evaluations, {t_refine:.2f} s"
     )
-    sm = spacemap.correct(problem, r.layout, args.mesh, 3, progress=print)
+    sm = spacemap.correct(problem, r.layout, args.mesh, 3, progress=print, method=args.method)
     first = sm.checks[0]
     print()
     print(

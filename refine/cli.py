@@ -753,10 +753,10 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p.add_argument(
         "--method",
-        choices=["implicit", "aggressive"],
-        default="implicit",
-        help="with --correct: implicit space mapping (extract model corrections, re-refine) or "
-        "aggressive space mapping (input-space map); default: %(default)s",
+        choices=["aggressive", "implicit"],
+        default="aggressive",
+        help="with --correct: aggressive space mapping (input-space map) or implicit space "
+        "mapping (extract model corrections, re-refine); default: %(default)s",
     )
     p.add_argument("--out", metavar="DIR", help="output folder (default: the layout's folder)")
     p.add_argument("--force", action="store_true", help="replace the field-check files in DIR")

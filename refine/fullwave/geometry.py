@@ -39,12 +39,15 @@ FEED_SHIFT_CELLS = 10  # launch past the absorbing layer (PML_CELLS) with two ce
 class Resolution:
     """A mesh preset. edge_cell: the cell at strip and gap edges (m), never more than half the
     smallest gap; cells_per_wavelength: in the substrate at the top of the band; ratio: the
-    largest growth between neighbouring cells."""
+    largest growth between neighbouring cells; side_margin, air_above: the box beyond the copper
+    on its open sides and above the substrate, in substrate heights."""
 
     name: str
     edge_cell: float
     cells_per_wavelength: int = 20
     ratio: float = 1.3
+    side_margin: float = 6.0
+    air_above: float = 8.0
 
     def __post_init__(self) -> None:
         v.positive("mesh edge_cell", self.edge_cell)
@@ -201,13 +204,13 @@ class Mesh:
 
 def build_mesh(st: Structure, substrate: Substrate, f_max: float, res: Resolution) -> Mesh:
     """Graded mesh: ``edge_cell`` (at most half the gap) at every strip edge, growing to the
-    wavelength limit in open regions; the box reaches ``max(6 h, W)`` beyond the copper on the
-    open sides and ``8 h`` of air above the substrate (common practice, no source)."""
+    wavelength limit in open regions; the box reaches ``side_margin`` (6) substrate heights
+    beyond the copper on its open sides and ``air_above`` (8) above the substrate (common
+    practice, no source)."""
     h = substrate.height
     d_max = meshing.max_cell(f_max, substrate.eps_r, res.cells_per_wavelength)
     edge = min(res.edge_cell, d_max)
-    wmax = max(max(s.x1 - s.x0, s.y1 - s.y0) for s in st.strips)
-    margin = max(6.0 * h, min(wmax, 6.0 * h))
+    margin = res.side_margin * h
     pts = {"x": [], "y": []}
     for s in st.strips:
         pts["x"] += [(s.x0, edge), (s.x1, edge)]
@@ -239,7 +242,7 @@ def build_mesh(st: Structure, substrate: Substrate, f_max: float, res: Resolutio
     if "y" not in feed_axes:
         lines["y"] = meshing.symmetric(lines["y"], 0.0)
     z_pts = [(0.0, min(h / 4.0, d_max)), (h, edge)]
-    lines["z"] = meshing.graded_lines(z_pts, 0.0, h + 8.0 * h, d_max, res.ratio)
+    lines["z"] = meshing.graded_lines(z_pts, 0.0, h + res.air_above * h, d_max, res.ratio)
     # guarantee a line exactly at the substrate top
     assert np.any(lines["z"] == h)
     return Mesh(lines["x"], lines["y"], lines["z"], edge, d_max)

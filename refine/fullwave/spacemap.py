@@ -4,7 +4,7 @@ solver the fine one.
 Two methods; each round starts with one field solve of the current layout and stops as soon as
 its response meets the mask.
 
-**implicit** (default; Bandler, Cheng, Nikolova and Ismail, "Implicit space mapping
+**implicit** (Bandler, Cheng, Nikolova and Ismail, "Implicit space mapping
 optimization exploiting preassigned parameters", IEEE Trans. MTT 52(1), 378-385, 2004): the
 circuit model gets preassigned parameters it otherwise lacks (:class:`ModelCorrection`: a factor
 on each gap's series capacitance, an offset on each resonator's length and each tap position,
@@ -13,13 +13,14 @@ the corrected circuit model reproduces the field solve (least squares on |S11| a
 around the passband); then the layout is re-refined on the corrected model for the largest
 worst margin, the shop's minimum gap and grid applied, and solved again.
 
-**aggressive** (Bandler, Biernacki, Chen, Grobelny and Hemmers, "Space mapping technique for
+**aggressive** (the default; Bandler, Biernacki, Chen, Grobelny and Hemmers, "Space mapping technique for
 electromagnetic optimization", IEEE Trans. MTT 42(12), 2536-2544, 1994; Bandler, Biernacki,
 Chen, Hemmers and Madsen, "Electromagnetic optimization exploiting aggressive space mapping",
 IEEE Trans. MTT 43(12), 2874-2882, 1995): with x* the circuit-model optimum, extract the
 layout x_c whose circuit-model response best matches the field solve of x_f, and move
-x_f <- x_f - B⁻¹ (x_c - x*), B started at the identity and improved by Broyden's rank-one
-update; gaps on a log scale, lengths and taps relative to x*.
+x_f <- x_f - (x_c - x*): the unit-Jacobian step of the 1995 paper (a Broyden update of the
+Jacobian was tried and, from a single noisy step, made the second move worse); gaps on a log
+scale, lengths and taps in metres.
 
 Gaps, resonator lengths and tap positions are what moves (mirror-tied when the layout is
 symmetric); widths stay as refined.
@@ -386,7 +387,7 @@ class Correction:
         return "\n".join(lines + [f"  note: {n}" for n in self.notes])
 
 
-METHODS = ("implicit", "aggressive")
+METHODS = ("aggressive", "implicit")
 
 
 def correct(
@@ -396,7 +397,7 @@ def correct(
     max_runs: int = 3,
     progress: Callable[[str], None] | None = None,
     workdir: str | Path | None = None,
-    method: str = "implicit",
+    method: str = "aggressive",
 ) -> Correction:
     """EM-corrected refinement from a circuit-model optimum ``layout`` (see the module doc).
 
@@ -410,11 +411,6 @@ def correct(
     say = progress or (lambda s: None)
     sp = _Space.of(layout)
     x_star = sp.vector(layout)
-    # aggressive: normalised coordinates for the Broyden update (log gaps as they are, lengths
-    # and taps relative to the target's)
-    norm = np.where([g == "gaps" for g, _ in sp.groups], 1.0, np.abs(x_star))
-    jac = np.eye(x_star.size)  # B of the 1995 paper, started at the identity
-    prev: tuple[NDArray, NDArray] | None = None  # (normalised step, mismatch before it)
     corr: ModelCorrection | None = None
     cur = layout
     layouts, checks, extracted, misfits, notes = [layout], [], [], [], []
@@ -436,16 +432,8 @@ def correct(
         else:
             xc = extract(problem, c, cur, (layout, *extracted[-1:]))
             extracted.append(xc)
-            mismatch = (sp.vector(xc) - x_star) / norm
-            if prev is not None:  # Broyden's rank-one update of the map's Jacobian
-                h, f_old = prev
-                jac = jac + np.outer(mismatch - f_old - jac @ h, h) / float(h @ h)
-            step = -np.linalg.solve(jac, mismatch)
-            cur_new = sp.layout_at(sp.vector(cur) + step * norm)
-        cur_new, fab_notes = _fab(problem, cur_new)
-        if method == "aggressive":
-            prev = ((sp.vector(cur_new) - sp.vector(cur)) / norm, mismatch)
-        cur = cur_new
+            cur_new = sp.layout_at(sp.vector(cur) - (sp.vector(xc) - x_star))
+        cur, fab_notes = _fab(problem, cur_new)
         notes += fab_notes
         layouts.append(cur)
     return Correction(
