@@ -570,7 +570,12 @@ def _cmd_fullwave(args: argparse.Namespace) -> int:
         from .fullwave import spacemap
 
         sm = spacemap.correct(
-            problem, lay, args.mesh, args.max_runs, progress=print, method=args.method
+            problem,
+            lay,
+            args.mesh,
+            args.max_runs,
+            progress=lambda s: print(s, flush=True),
+            method=args.method,
         )
         print(sm.summary())
         check = sm.checks[-1]

@@ -125,7 +125,7 @@ def reference_distance(substrate: Substrate, feed_width: float) -> float:
     return max(4.0 * substrate.height, 3.0 * feed_width)
 
 
-def _is_mirror(layout: Layout) -> bool:
+def is_mirror(layout: Layout) -> bool:
     def same(a, b):
         return all(
             math.isclose(x, y, rel_tol=1e-12, abs_tol=1e-12) for x, y in zip(a, b, strict=True)
@@ -156,7 +156,7 @@ def layout_structure(layout: Layout, substrate: Substrate, length: float) -> Str
         res = [s for s in strips if s.name.startswith("resonator")]
         edges = [fin.x1, *[e for r in res for e in (r.x0, r.x1)], fout.x0]
         openings = tuple(("x", a, b) for a, b in zip(edges[0::2], edges[1::2], strict=True))
-        return Structure(tuple(strips), feeds, openings, _is_mirror(layout))
+        return Structure(tuple(strips), feeds, openings, is_mirror(layout))
     # tapped feeds arrive from -y; bring both to one box edge
     y_edge = min(s.y0 for s in strips)
     out = []
@@ -168,7 +168,7 @@ def layout_structure(layout: Layout, substrate: Substrate, length: float) -> Str
         out.append(s)
     res = [s for s in out if s.name.startswith("resonator")]
     openings = tuple(("x", a.x1, b.x0) for a, b in itertools.pairwise(res))
-    return Structure(tuple(out), (feeds[0], feeds[1]), openings, _is_mirror(layout))
+    return Structure(tuple(out), (feeds[0], feeds[1]), openings, is_mirror(layout))
 
 
 def gap_structure(width: float, gap: float, length: float) -> Structure:

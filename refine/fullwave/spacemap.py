@@ -54,7 +54,7 @@ class _Space:
 
     @classmethod
     def of(cls, layout: Layout) -> _Space:
-        sym = geometry._is_mirror(layout)
+        sym = geometry.is_mirror(layout)
         groups = []
         for field in ("gaps", "lengths") + (("taps",) if layout.external == "tap" else ()):
             n = len(getattr(layout, field))
@@ -212,7 +212,7 @@ _Q_BOUNDS = {
 
 
 def _q_groups(layout: Layout) -> list[tuple[str, tuple[int, ...]]]:
-    sym = geometry._is_mirror(layout)
+    sym = geometry.is_mirror(layout)
     fields = ["gap_factors", "length_offsets"]
     if layout.external == "tap":
         fields += ["tap_offsets", "tee_capacitance"]
