@@ -88,8 +88,9 @@ def main() -> int:
     print(sm.summary())
     if args.docs:
         _overlay(ROOT / "docs/fullwave-first.png", first, "circuit-model optimum")
+        best = sm.checks[sm.best]
         _overlay(
-            ROOT / "docs/fullwave-corrected.png", sm.checks[-1], f"after {sm.runs} field solves"
+            ROOT / "docs/fullwave-corrected.png", best, f"field solve {sm.best + 1} of {sm.runs}"
         )
     return 0 if sm.met else 1
 

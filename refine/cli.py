@@ -578,7 +578,7 @@ def _cmd_fullwave(args: argparse.Namespace) -> int:
             method=args.method,
         )
         print(sm.summary())
-        check = sm.checks[-1]
+        check = sm.checks[sm.best]
         written = handover.write_check(check, out, args.force)
         written += spacemap.write_corrected(sm, out, args.force)
     else:

@@ -446,7 +446,7 @@ def test_fullwave_correct_meets_the_mask_on_the_stand_in(monkeypatch, tmp_path, 
     assert "meets the mask after 2 field solves" in capsys.readouterr().out
     corrected = export.read_layout(out / "fullwave-layout.json")
     rounds = json.loads((out / "fullwave-rounds.json").read_text())
-    assert rounds["met"] and rounds["runs"] == 2
+    assert rounds["met"] and rounds["runs"] == 2 and rounds["best_round"] == 2
     assert corrected.lengths != export.read_layout(out / "layout.json").lengths
 
 

@@ -18,9 +18,10 @@ electromagnetic optimization", IEEE Trans. MTT 42(12), 2536-2544, 1994; Bandler,
 Chen, Hemmers and Madsen, "Electromagnetic optimization exploiting aggressive space mapping",
 IEEE Trans. MTT 43(12), 2874-2882, 1995): with x* the circuit-model optimum, extract the
 layout x_c whose circuit-model response best matches the field solve of x_f, and move
-x_f <- x_f - (x_c - x*): the unit-Jacobian step of the 1995 paper (a Broyden update of the
-Jacobian was tried and, from a single noisy step, made the second move worse); gaps on a log
-scale, lengths and taps in metres.
+x_f <- x_f - (x_c - x*): the unit-Jacobian step of the 1995 paper; gaps on a log scale,
+lengths and taps in metres. Two Jacobian updates were tried on the field solver and dropped:
+the paper's Broyden rank-one update and a per-parameter secant of the diagonal. From one or two
+noisy extractions both made the next move worse than the unit step.
 
 Gaps, resonator lengths and tap positions are what moves (mirror-tied when the layout is
 symmetric); widths stay as refined.
@@ -362,8 +363,16 @@ class Correction:
     seconds: float
 
     @property
+    def best(self) -> int:
+        """Index of the round whose field-solver response has the largest worst margin (the
+        last round is not always the best when the map is poor)."""
+        return max(
+            range(len(self.checks)), key=lambda k: self.checks[k].comparison.em_mask.worst_margin
+        )
+
+    @property
     def met(self) -> bool:
-        return self.checks[-1].comparison.em_mask.passed
+        return self.checks[self.best].comparison.em_mask.passed
 
     @property
     def runs(self) -> int:
@@ -382,7 +391,8 @@ class Correction:
         verdict = "meets" if self.met else "does NOT meet"
         lines.append(
             f"EM-corrected refinement ({self.method} space mapping): the field-solver response "
-            f"{verdict} the mask after {self.runs} field solves, {self.seconds:.0f} s in all"
+            f"{verdict} the mask after {self.runs} field solves, {self.seconds:.0f} s in all; "
+            f"best: field solve {self.best + 1}"
         )
         return "\n".join(lines + [f"  note: {n}" for n in self.notes])
 
@@ -450,14 +460,15 @@ def correct(
 
 
 def write_corrected(sm: Correction, out: str | Path, force: bool = False) -> list[Path]:
-    """The corrected layout (JSON, DXF) and the history of the rounds."""
+    """The best layout found (JSON, DXF: the round with the largest field-solver margin) and
+    the history of the rounds."""
     out = Path(out)
     names = FILES
     if not force:
         clash = [n for n in names if (out / n).exists()]
         if clash:
             raise ValueError(f"--out {out}: already holds {', '.join(clash)}; use --force")
-    lay = sm.layouts[-1]
+    lay = sm.layouts[sm.best]
     rounds = [
         {
             "layout": export.layout_dict(ly),
@@ -472,6 +483,12 @@ def write_corrected(sm: Correction, out: str | Path, force: bool = False) -> lis
         export.write_dxf(out / names[1], lay, f"{sm.problem.name} (EM-corrected)"),
         export.write_json(
             out / names[2],
-            {"met": sm.met, "runs": sm.runs, "seconds": sm.seconds, "rounds": rounds},
+            {
+                "met": sm.met,
+                "runs": sm.runs,
+                "best_round": sm.best + 1,
+                "seconds": sm.seconds,
+                "rounds": rounds,
+            },
         ),
     ]
