@@ -21,7 +21,7 @@ import time
 import warnings
 from pathlib import Path
 
-from refine import job, plot
+from refine import job, outputs, plot
 from refine.fullwave import engine, spacemap, verify
 from refine.optimise import Stopping
 from refine.problem import load_problem
@@ -66,7 +66,7 @@ def main() -> int:
     times = []
     for _ in range(20):
         t0 = time.perf_counter()
-        verify.model_response(problem, r.layout, f)
+        outputs.evaluate_layout(problem, r.layout, f)
         times.append(time.perf_counter() - t0)
     t_model = statistics.median(times)
     print(f"{eng.version}; problem {problem.name}; mesh {args.mesh}; {f.size} frequencies")

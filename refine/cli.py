@@ -389,16 +389,21 @@ def _cmd_design(args: argparse.Namespace) -> int:
 
 def _fullwave_ready(problem, args: argparse.Namespace) -> None:
     """Refuse --fullwave before any work when it cannot run."""
-    from .fullwave import engine
-
     if args.out is None:
         raise UsageError("--fullwave needs --out DIR for its files")
     if problem.medium != "microstrip":
         raise UsageError(
             f"--fullwave: medium.kind = {problem.medium!r}; the field check handles microstrip only"
         )
+    _field_engine()
+
+
+def _field_engine():
+    """The field-solver engine, or a UsageError saying what to install."""
+    from .fullwave import engine
+
     try:
-        engine.find_engine()
+        return engine.find_engine()
     except engine.EngineMissing as e:
         raise UsageError(str(e)) from None
 
@@ -536,14 +541,8 @@ def _cmd_check(args: argparse.Namespace) -> int:
     return 0 if res.passed else 1
 
 
-def spacemap_files() -> tuple[str, ...]:
-    from .fullwave import spacemap
-
-    return spacemap.FILES
-
-
 def _cmd_fullwave(args: argparse.Namespace) -> int:
-    from .fullwave import engine, handover, verify
+    from .fullwave import handover, spacemap, verify
 
     problem = load_problem(args.problem)
     lay = export.read_layout(args.layout)
@@ -552,23 +551,14 @@ def _cmd_fullwave(args: argparse.Namespace) -> int:
             f"{args.layout}: the field check needs a physical layout, not an electrical one"
         )
     out = Path(args.out) if args.out is not None else Path(args.layout).parent
-    names = handover.FILES + (spacemap_files() if args.correct else ())
-    clash = [n for n in names if (out / n).exists()]
-    if clash and not args.force:
-        raise UsageError(
-            f"--out {out}: already holds {', '.join(clash)}; use --force to replace them"
-        )
-    try:
-        eng = engine.find_engine()
-    except engine.EngineMissing as e:
-        raise UsageError(str(e)) from None
+    names = handover.FILES + (spacemap.FILES if args.correct else ())
+    outputs.prepare_folder(out, args.force, names)  # refuse before any work
+    eng = _field_engine()
     print(f"field solver: {eng.version} under {eng.python}; mesh {args.mesh}", flush=True)
     print(
         "solving: a thru line for the port calibration, then the layout (minutes) ...", flush=True
     )
     if args.correct:
-        from .fullwave import spacemap
-
         sm = spacemap.correct(
             problem,
             lay,

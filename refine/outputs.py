@@ -35,13 +35,14 @@ class OutputError(ValueError):
     """The output folder cannot be used as asked."""
 
 
-def prepare_folder(out: str | Path, force: bool) -> Path:
-    """Check (before anything is computed or written) that ``out`` may receive the outputs."""
+def prepare_folder(out: str | Path, force: bool, names: tuple[str, ...] = OUTPUT_FILES) -> Path:
+    """Check (before anything is computed or written) that ``out`` may receive the files
+    ``names`` (the design's outputs by default)."""
     out = Path(out)
     if out.exists() and not out.is_dir():
         raise OutputError(f"--out {out}: exists and is not a folder")
     if out.is_dir() and not force:
-        clash = [n for n in OUTPUT_FILES if (out / n).exists()]
+        clash = [n for n in names if (out / n).exists()]
         if clash:
             raise OutputError(
                 f"--out {out}: already holds {', '.join(clash)}; use --force to replace them"

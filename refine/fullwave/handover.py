@@ -9,6 +9,7 @@ import re
 from pathlib import Path
 
 from .. import export, plot
+from ..outputs import prepare_folder
 from .verify import FieldCheck
 
 FILES = ("fullwave.s2p", "fullwave.png", "fullwave.json", "fullwave.md")
@@ -94,15 +95,7 @@ def section_md(c: FieldCheck) -> str:
 def write_check(c: FieldCheck, out: str | Path, force: bool = False) -> list[Path]:
     """Write the check's files into ``out``; refresh report.md and summary.json there if a
     design was written to the same folder."""
-    out = Path(out)
-    if out.exists() and not out.is_dir():
-        raise ValueError(f"--out {out}: exists and is not a folder")
-    if not force:
-        clash = [n for n in FILES if (out / n).exists()]
-        if clash:
-            raise ValueError(
-                f"--out {out}: already holds {', '.join(clash)}; use --force to replace them"
-            )
+    out = prepare_folder(out, force, FILES)
     out.mkdir(parents=True, exist_ok=True)
     p = c.problem
     comp = c.comparison

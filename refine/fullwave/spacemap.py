@@ -38,12 +38,24 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy.optimize import least_squares
 
-from .. import export
+from .. import export, outputs
 from ..layout import Layout
 from ..problem import Problem
 from . import geometry, verify
 
 FILES = ("fullwave-layout.json", "fullwave-layout.dxf", "fullwave-rounds.json")
+
+
+def _mirror_groups(
+    fields: list[tuple[str, int]], symmetric: bool
+) -> tuple[tuple[str, tuple[int, ...]], ...]:
+    """(field, tied indices) for each free entry of each (field, length): entry i and its
+    mirror n-1-i share one entry when the layout is symmetric."""
+    groups = []
+    for field, n in fields:
+        for i in range((n + 1) // 2 if symmetric else n):
+            groups.append((field, tuple(sorted({i, n - 1 - i})) if symmetric else (i,)))
+    return tuple(groups)
 
 
 @dataclass(frozen=True)
@@ -55,18 +67,10 @@ class _Space:
 
     @classmethod
     def of(cls, layout: Layout) -> _Space:
-        sym = geometry.is_mirror(layout)
-        groups = []
-        for field in ("gaps", "lengths") + (("taps",) if layout.external == "tap" else ()):
-            n = len(getattr(layout, field))
-            done = set()
-            for i in range(n):
-                if i in done:
-                    continue
-                tie = tuple(sorted({i, n - 1 - i})) if sym else (i,)
-                done.update(tie)
-                groups.append((field, tie))
-        return cls(layout, tuple(groups))
+        fields = [("gaps", len(layout.gaps)), ("lengths", layout.order)]
+        if layout.external == "tap":
+            fields.append(("taps", 2))
+        return cls(layout, _mirror_groups(fields, geometry.is_mirror(layout)))
 
     def vector(self, lay: Layout) -> NDArray:
         """Gaps as log, lengths and taps in metres."""
@@ -108,7 +112,7 @@ def extract(
     scale = np.where([g == "gaps" for g, _ in sp.groups], 1.0, x0)
 
     def resid(u: NDArray) -> NDArray:
-        s = verify.model_response(problem, sp.layout_at(x0 + u * scale), f)
+        s = outputs.evaluate_layout(problem, sp.layout_at(x0 + u * scale), f)
         return np.concatenate([np.abs(s[:, 0, 0]), np.abs(s[:, 1, 0])]) - target
 
     lo = np.where([g == "gaps" for g, _ in sp.groups], -1.5, -0.25)
@@ -213,22 +217,11 @@ _Q_BOUNDS = {
 
 
 def _q_groups(layout: Layout) -> list[tuple[str, tuple[int, ...]]]:
-    sym = geometry.is_mirror(layout)
-    fields = ["gap_factors", "length_offsets"]
+    fields = [("gap_factors", len(layout.gaps)), ("length_offsets", layout.order)]
     if layout.external == "tap":
-        fields += ["tap_offsets", "tee_capacitance"]
-    fields.append("loss_factor")
-    sizes = {"gap_factors": len(layout.gaps), "length_offsets": layout.order, "loss_factor": 1}
-    groups = []
-    for field in fields:
-        n = sizes.get(field, 2)
-        done: set[int] = set()
-        for i in range(n):
-            if i not in done:
-                tie = tuple(sorted({i, n - 1 - i})) if sym else (i,)
-                done.update(tie)
-                groups.append((field, tie))
-    return groups
+        fields += [("tap_offsets", 2), ("tee_capacitance", 2)]
+    fields.append(("loss_factor", 1))
+    return _mirror_groups(fields, geometry.is_mirror(layout))
 
 
 def _q_to_correction(layout: Layout, groups, q: NDArray) -> ModelCorrection:
@@ -462,12 +455,8 @@ def correct(
 def write_corrected(sm: Correction, out: str | Path, force: bool = False) -> list[Path]:
     """The best layout found (JSON, DXF: the round with the largest field-solver margin) and
     the history of the rounds."""
-    out = Path(out)
+    out = outputs.prepare_folder(out, force, FILES)
     names = FILES
-    if not force:
-        clash = [n for n in names if (out / n).exists()]
-        if clash:
-            raise ValueError(f"--out {out}: already holds {', '.join(clash)}; use --force")
     lay = sm.layouts[sm.best]
     rounds = [
         {

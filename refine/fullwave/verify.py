@@ -8,7 +8,6 @@ zero cell size (Richardson) and the S-parameters those of the finest mesh.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -16,8 +15,8 @@ import numpy as np
 from numpy.typing import NDArray
 
 from .. import _validate as v
-from .. import circuit, job, validity
 from ..layout import Layout
+from ..outputs import evaluate_layout
 from ..problem import Problem
 from . import compare, geometry, solve, waves
 
@@ -53,14 +52,6 @@ def ringing_time(s21: NDArray, f: NDArray) -> float:
     gd = -np.gradient(phase, 2.0 * np.pi * f)
     passing = np.abs(s21) > 10 ** (-10 / 20)
     return 8.0 * float(gd[passing].max()) if passing.any() else 0.0
-
-
-def model_response(problem: Problem, layout: Layout, f: NDArray) -> NDArray[np.complex128]:
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", validity.ModelRangeWarning)
-        return circuit.layout_response(
-            layout, job.medium_for(problem), problem.gap_model, f, problem.z_ref
-        )
 
 
 @dataclass(frozen=True)
@@ -114,7 +105,7 @@ def check_layout(
             "(its ports assume a strip over one ground plane)"
         )
     f = em_frequencies(problem)
-    s_model = model_response(problem, layout, f)
+    s_model = evaluate_layout(problem, layout, f)
     ring = ringing_time(s_model[:, 1, 0], f)
     sub = problem.substrate
     band = em_band(problem)
