@@ -289,7 +289,7 @@ def _centre(problem, r: RefineResult, args: argparse.Namespace) -> RefineResult:
         return r
     print("centring for yield ...", flush=True)
     c = tolerance.centre_for_yield(
-        problem, r.layout, correlated=args.correlated, free_widths=not args.fixed_widths
+        problem, r.layout, correlated=args.correlated, free_widths=_free_widths(args)
     )
     b, a = c.yield_before, c.yield_after
     print(
@@ -329,7 +329,7 @@ def _cmd_design(args: argparse.Namespace) -> int:
     print()
     print(f"refining ({args.strategy}) ...", flush=True)
     r = refine_problem(
-        problem, Strategy(args.strategy), stopping, sd, _progress_printer(), not args.fixed_widths
+        problem, Strategy(args.strategy), stopping, sd, _progress_printer(), _free_widths(args)
     )
     print()
     print(
@@ -541,6 +541,11 @@ def _cmd_check(args: argparse.Namespace) -> int:
     return 0 if res.passed else 1
 
 
+def _free_widths(args: argparse.Namespace) -> bool | None:
+    """--fixed-widths holds the widths; otherwise the problem file's [resonators] width."""
+    return False if args.fixed_widths else None
+
+
 def _cmd_fullwave(args: argparse.Namespace) -> int:
     from .fullwave import handover, spacemap, verify
 
@@ -634,7 +639,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument(
         "--fixed-widths",
         action="store_true",
-        help="keep every resonator at the feed (z_ref) width; refine gaps, lengths and taps only",
+        help="keep every resonator at the feed (z_ref) width; refine gaps, lengths and taps "
+        'only (as [resonators] width = "feed" in the problem file)',
     )
     p.add_argument(
         "--centre-yield",
@@ -748,10 +754,11 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p.add_argument(
         "--method",
-        choices=["aggressive", "implicit"],
-        default="aggressive",
-        help="with --correct: aggressive space mapping (input-space map) or implicit space "
-        "mapping (extract model corrections, re-refine); default: %(default)s",
+        choices=["implicit", "aggressive"],
+        default="implicit",
+        help="with --correct: implicit space mapping (extract model corrections from all "
+        "field solves so far, re-refine) or aggressive space mapping (input-space map); "
+        "default: %(default)s",
     )
     p.add_argument("--out", metavar="DIR", help="output folder (default: the layout's folder)")
     p.add_argument("--force", action="store_true", help="replace the field-check files in DIR")

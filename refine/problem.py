@@ -22,6 +22,8 @@ Schema (keys marked * are required)::
     [fab]                                    * for microstrip and stripline
     min_gap *, min_width, grid, gap_tolerance, width_tolerance, max_total_length
     [coupling]  external = "gap" | "tap"     (default "gap")
+    [resonators] width = "free" | "feed"     (default "free": the refiner may widen them;
+                                              "feed": every resonator at the feed line width)
     [models]    gap = microstrip: "garg-bahl" (default) | "kirschning-jansen-koster";
                       stripline: "altschuler-oliner" (default); not for "ideal"
     [mask]                                   *
@@ -46,6 +48,7 @@ from .media.substrate import Substrate
 
 MEDIUM_KINDS = ("microstrip", "stripline", "ideal")
 EXTERNAL_KINDS = ("gap", "tap")
+RESONATOR_WIDTHS = ("free", "feed")
 GAP_MODELS = {
     "microstrip": ("garg-bahl", "kirschning-jansen-koster"),
     "stripline": ("altschuler-oliner",),
@@ -75,6 +78,12 @@ class Problem:
     gap_model: str
     mask: Mask
     source: str = "<memory>"
+    resonator_width: str = "free"  # "free": refinable; "feed": held at the z_ref line width
+
+    @property
+    def free_widths(self) -> bool:
+        """Whether the refiner may change the resonator widths (strip media)."""
+        return self.resonator_width == "free"
 
     @property
     def band_edges(self) -> tuple[float, float]:
@@ -216,7 +225,7 @@ class _Reader:
 def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
     """Validate a problem given as a dict (the parsed TOML) and return a :class:`Problem`."""
     r = _Reader(source)
-    top = {"name", "response", "medium", "fab", "coupling", "models", "mask"}
+    top = {"name", "response", "medium", "fab", "coupling", "resonators", "models", "mask"}
     for k in data:
         if k not in top:
             raise r.fail(k, data[k], f"unknown key; allowed keys are {', '.join(sorted(top))}")
@@ -334,6 +343,10 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         raise r.fail(
             "coupling.external", "tap", "tapped coupling needs a strip medium, not 'ideal'"
         )
+    res_t = r.table(data, "resonators", {"width"}, required=False)
+    resonator_width = r.choice(res_t, "resonators", "width", RESONATOR_WIDTHS, default="free")
+    if kind == "ideal" and "width" in res_t:
+        raise r.fail("resonators.width", res_t["width"], "does not apply to medium kind 'ideal'")
     models = r.table(data, "models", {"gap"}, required=False)
     if kind == "ideal":
         if "gap" in models:
@@ -400,6 +413,7 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         gap_model,
         mask,
         source,
+        resonator_width,
     )
 
 

@@ -178,12 +178,15 @@ def refine_problem(
     stopping: Stopping | None = None,
     seed: job.Seed | None = None,
     progress: Callable[[int, float], None] | None = None,
-    free_widths: bool = True,
+    free_widths: bool | None = None,
 ) -> RefineResult:
     """Refine a problem's closed-form seed until the mask is met under the fab rules.
 
     ``progress(evaluations, best_worst_margin_db)`` is called after every model evaluation.
-    With ``free_widths`` False the resonators keep the seed's width (the z_ref line width)."""
+    With ``free_widths`` False the resonators keep the seed's width (the z_ref line width);
+    None follows the problem's ``[resonators] width``."""
+    if free_widths is None:
+        free_widths = problem.free_widths
     stopping = stopping or Stopping()
     t0 = time.perf_counter()
     sd = seed or job.seed(problem)
@@ -216,7 +219,7 @@ def refine_problem(
     p_seed = model.vector(seed_layout)
     seed_res, _ = _verify(problem, factory, p_seed)
     extra = _length_constraint(problem, model, space)
-    z = space.to_free(np.array([v.value for v in space.variables]))
+    z = z_seed = space.to_free(np.array([v.value for v in space.variables]))
     stopping = _aim(stopping, seed_res)
     rounds = _refine_rounds(
         problem,
@@ -246,6 +249,42 @@ def refine_problem(
     if problem.fab.grid is not None:
         q = _snap(p, model, problem.fab.grid, problem.fab.min_gap)
         res_q, _ = _verify(problem, factory, q)
+        if res.passed and not res_q.passed:
+            # aim for enough margin to survive the grid (twice what snapping cost), from the
+            # seed again (the first run stopped at its target, often a point that cannot
+            # climb further), then snap
+            lost = res.worst_margin - res_q.worst_margin
+            aim = Stopping(
+                stopping.max_evaluations,
+                stopping.max_seconds,
+                max(stopping.target_margin_db, res.worst_margin) + 2.0 * lost,
+                stopping.xtol_rel,
+            )
+            again = _refine_rounds(
+                problem,
+                factory,
+                space,
+                f_opt,
+                z_seed,
+                seed_res,
+                strategy,
+                aim,
+                extra,
+                diag.couplings_reachable,
+                _offset(progress, evaluations),
+            )
+            evaluations += again.evaluations
+            history += again.history
+            p2 = space.to_physical(again.z)
+            q2 = _snap(p2, model, problem.fab.grid, problem.fab.min_gap)
+            res_q2, _ = _verify(problem, factory, q2)
+            if res_q2.worst_margin > res_q.worst_margin:
+                p, z, q, res, res_q = p2, again.z, q2, again.res, res_q2
+                unsnapped = res.worst_margin
+            notes.append(
+                f"snapping to the shop's grid cost {lost:.2f} dB of margin; refined again for "
+                f"{aim.target_margin_db:+.2f} dB before snapping"
+            )
         if res.passed and not res_q.passed:  # re-refine lengths with the gaps held at the grid
             fixed = [
                 Variable(v_.name, float(qq), v_.lower, v_.upper, free=not v_.name.startswith("gap"))

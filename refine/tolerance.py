@@ -338,7 +338,7 @@ def centre_for_yield(
     seed: int = 0,
     correlated: bool = False,
     max_evaluations: int = 150,
-    free_widths: bool = True,
+    free_widths: bool | None = None,
 ) -> CentringResult:
     """Move a layout that meets the mask so that it keeps meeting it under the etch errors.
 
@@ -357,6 +357,8 @@ def centre_for_yield(
     before = estimate_yield(problem, layout, check_samples, seed + 1, correlated)
     medium = job.medium_for(problem)
     f = yield_grid(problem, 41)
+    if free_widths is None:
+        free_widths = problem.free_widths
     model = strip_model_for(medium, problem.gap_model, problem.z_ref, layout, f, free_widths)
     space = strip_space(problem, model, layout)
     p0 = model.vector(layout)

@@ -360,6 +360,52 @@ def test_space_mapping_meets_the_mask_on_a_stand_in_fine_model(monkeypatch, meth
     assert all(abs(g / p.fab.grid - round(g / p.fab.grid)) < 1e-6 for g in final.gaps)
 
 
+def _stand_in_check(problem, layout, corr):
+    """A 'field solve' that is the circuit model under a known correction."""
+    f = verify.em_frequencies(problem, 201)
+    s_f = spacemap.corrected_response(problem, layout, corr, f)
+    s_c = outputs.evaluate_layout(problem, layout, f)
+    comp = compare.compare(f, s_f, s_c, problem.mask)
+    return verify.FieldCheck(problem, layout, "coarse", f, s_f, s_c, comp, (), None)
+
+
+def test_multipoint_extraction_recovers_a_known_gap_offset():
+    """One solve cannot tell a gap factor from a gap offset, so only the factor is fitted; two
+    solves with different gaps recover both (the known correction is invented for the test)."""
+    p = load_problem(TAP_PROBLEM)
+    lay = _tap_layout()
+    truth = spacemap.ModelCorrection(
+        (1.1, 1.1), (20e-6, -10e-6, 20e-6), (15e-6, 15e-6), (2.0,), (25e-6, 25e-6)
+    )
+    wide = replace(lay, gaps=tuple(1.5 * g for g in lay.gaps))
+    one, misfit_one = spacemap.extract_correction(p, [_stand_in_check(p, lay, truth)])
+    assert one.gap_offsets == (0.0, 0.0) and misfit_one < 0.02
+    two, misfit_two = spacemap.extract_correction(
+        p, [_stand_in_check(p, lay, truth), _stand_in_check(p, wide, truth)]
+    )
+    assert two.gap_offsets == pytest.approx(truth.gap_offsets, rel=0.1)
+    assert two.gap_factors == pytest.approx(truth.gap_factors, rel=0.03)
+    assert two.length_offsets == pytest.approx(truth.length_offsets, abs=3e-6)
+    assert misfit_two < 1e-3
+    # the single-solve fit matches its own solve but not the wider layout's
+    s = spacemap.corrected_response(p, wide, one, verify.em_frequencies(p, 201))
+    s_true = _stand_in_check(p, wide, truth).s_em
+    assert np.sqrt(np.mean((np.abs(s) - np.abs(s_true)) ** 2)) > 10 * misfit_two
+
+
+def test_rerefine_stays_inside_its_step_bound():
+    p = load_problem(TAP_PROBLEM)
+    lay = _tap_layout()
+    big = spacemap.ModelCorrection((1.6, 1.6), (-300e-6,) * 3, (0.0, 0.0), (1.0,), (0.0, 0.0))
+    step = spacemap.IMPLICIT_STEP
+    new = spacemap.rerefine(p, lay, big, step)
+    for a, b in zip(new.gaps, lay.gaps, strict=True):
+        assert abs(math.log(a / b)) <= step[0] + 1e-9
+    for a, b in zip(new.lengths + new.taps, lay.lengths + lay.taps, strict=True):
+        assert abs(a / b - 1) <= step[1] + 1e-9
+    assert new != lay  # a correction this large must move the layout
+
+
 # ------------------------------------------------------------------ the engine, end to end
 
 needs_engine = pytest.mark.skipif(

@@ -199,3 +199,20 @@ def test_unreadable_files(tmp_path):
     bad.write_text("name = \n")
     with pytest.raises(ProblemError, match="is not valid TOML"):
         load_problem(bad)
+
+
+def test_resonator_width_defaults_to_free_and_takes_feed():
+    assert parse_problem(BASE, "x.toml").free_widths
+    d = copy.deepcopy(BASE)
+    d["resonators"] = {"width": "feed"}
+    p = parse_problem(d, "x.toml")
+    assert p.resonator_width == "feed" and not p.free_widths
+
+
+def test_resonator_width_refused_for_the_ideal_medium():
+    d = copy.deepcopy(BASE)
+    d["medium"] = {"kind": "ideal"}
+    del d["fab"], d["models"]
+    d["resonators"] = {"width": "feed"}
+    with pytest.raises(ProblemError, match=r"resonators.width = 'feed': does not apply"):
+        parse_problem(d, "x.toml")

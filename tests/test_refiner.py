@@ -235,3 +235,15 @@ def test_adapter_clips_start_into_bounds_and_returns_best():
 
 def test_strategies_are_our_names():
     assert [s.value for s in Strategy] == ["gradient", "derivative-free", "multistart"]
+
+
+def test_problem_file_can_hold_the_resonators_at_the_feed_width():
+    """[resonators] width = "feed": the refiner moves gaps, lengths and taps only."""
+    from dataclasses import replace
+
+    p = load_problem(Path(__file__).parent.parent / "problems/ms-alumina-tap-10g-n3-10pct.toml")
+    r = refine_problem(replace(p, resonator_width="feed"))
+    assert r.status == Status.MET
+    assert all(w == r.layout.feed_width for w in r.layout.widths)
+    free = refine_problem(p, stopping=Stopping(target_margin_db=1.0))
+    assert any(w > 1.2 * free.layout.feed_width for w in free.layout.widths)
