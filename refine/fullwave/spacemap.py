@@ -251,7 +251,7 @@ def _q_to_correction(layout: Layout, groups, q: NDArray) -> ModelCorrection:
 def _correction_to_q(groups, corr: ModelCorrection) -> NDArray:
     out = []
     for field, idx in groups:
-        x = (getattr(corr, field) or (0.0,) * (max(idx) + 1))[idx[0]]
+        x = getattr(corr, field)[idx[0]]
         out.append(np.log(x) if field in _Q_LOG else x / _Q_SCALE[field])
     return np.array(out)
 
@@ -294,11 +294,16 @@ def extract_correction(
     return _q_to_correction(lay, groups, best.x), rms
 
 
+# the most one round of implicit space mapping moves: 0.3 in log gap (35 %), 2 % in length and
+# tap; the extracted correction holds near the solves it came from, not across the whole space
+IMPLICIT_STEP = (0.3, 0.02)
+
+
 def rerefine(
     problem: Problem,
     layout: Layout,
     corr: ModelCorrection,
-    step: tuple[float, float] = (1.0, 0.2),
+    step: tuple[float, float] = IMPLICIT_STEP,
 ) -> Layout:
     """The layout with the largest worst margin on the corrected circuit model, from
     ``layout``: an epigraph minimax (SLSQP, finite-difference gradients) over the gaps (log,
@@ -415,9 +420,6 @@ class Correction:
 
 
 METHODS = ("implicit", "aggressive")
-# the most one round of implicit space mapping moves: 0.3 in log gap (35 %), 2 % in length and
-# tap; the extracted correction holds near the solves it came from, not across the whole space
-IMPLICIT_STEP = (0.3, 0.02)
 
 
 def correct(
@@ -458,7 +460,7 @@ def correct(
             corr, misfit = extract_correction(problem, checks, corr)
             extracted.append(corr)
             misfits.append(misfit)
-            cur_new = rerefine(problem, cur, corr, IMPLICIT_STEP)
+            cur_new = rerefine(problem, cur, corr)
         else:
             xc = extract(problem, c, cur, (layout, *extracted[-1:]))
             extracted.append(xc)
