@@ -8,11 +8,11 @@ with per-coupling "needs / can give" figures and at least one quantified remedy.
 
 import re
 import warnings
-from functools import cache
 from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import PROBLEMS, expected_outcome, refined
 
 from refine import job
 from refine.media.microstrip import Microstrip
@@ -24,18 +24,8 @@ from refine.problem import load_problem
 from refine.refiner import Status, refine_problem
 from refine.validity import ModelRangeWarning
 
-PROBLEMS = sorted((Path(__file__).parent.parent / "problems").glob("*.toml"))
-
-
-def _expected(path: Path) -> str:
-    return re.search(r"Expected outcome: (\w+)", path.read_text()).group(1)
-
-
-@cache
-def _result(path: Path):
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ModelRangeWarning)  # listed in the report instead
-        return refine_problem(load_problem(path))
+_expected = expected_outcome
+_result = refined
 
 
 def test_problem_set_is_large_and_varied():

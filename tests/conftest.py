@@ -1,0 +1,40 @@
+"""Shared paths and fixtures of the test suite.
+
+``PROBLEMS`` is every bundled problem file; :func:`refined` refines one of them once per test
+session (the problem-set tests and the golden-output test share the result). Tests that take
+more than a few seconds carry the ``slow`` marker: ``pytest -m "not slow"`` is the quick run.
+"""
+
+from __future__ import annotations
+
+import re
+import warnings
+from functools import cache
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+DATA = ROOT / "tests" / "data"
+PROBLEMS = sorted((ROOT / "problems").glob("*.toml"))
+
+
+def problem_path(stem: str) -> Path:
+    """The bundled problem file called ``stem``."""
+    return ROOT / "problems" / f"{stem}.toml"
+
+
+def expected_outcome(path: Path) -> str:
+    """The outcome a bundled problem file promises in its header ("feasible" or "infeasible")."""
+    m = re.search(r"Expected outcome: (\w+)", path.read_text())
+    assert m is not None, f"{path.name} states no expected outcome"
+    return m.group(1)
+
+
+@cache
+def refined(path: Path):
+    """The refiner's result for a bundled problem file (computed once per session)."""
+    from refine import design, load_problem
+    from refine.validity import ModelRangeWarning
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)  # listed in the report instead
+        return design(load_problem(path))

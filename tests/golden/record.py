@@ -1,0 +1,100 @@
+"""Record the golden outputs of every bundled problem (status, margins, evaluations, layout).
+
+Run from the project folder: ``python tests/golden/record.py``. The file it writes,
+``tests/data/golden-outputs.json``, is what ``tests/test_golden.py`` compares against: it was
+recorded before the one-circuit-layer restructuring and must not change unless a change of
+behaviour is intended and said in the commit.
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+import warnings
+from pathlib import Path
+
+import refine
+from refine.validity import ModelRangeWarning
+
+ROOT = Path(__file__).resolve().parents[2]
+OUT = ROOT / "tests" / "data" / "golden-outputs.json"
+
+
+def outcome(path: Path) -> dict:
+    """What the golden test pins for one problem file."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        r = refine.design(refine.load_problem(path))
+    lay = r.layout
+    return {
+        "status": r.status.value,
+        "worst_db": r.worst,
+        "seed_worst_db": r.seed_worst,
+        "unsnapped_db": r.unsnapped_margin,
+        "snapped_db": r.snapped_margin,
+        "evaluations": r.evaluations,
+        "binding": list(r.binding),
+        "notes": list(r.notes),
+        "layout": None
+        if lay is None
+        else {
+            "external": str(lay.external),
+            "feed_width": lay.feed_width,
+            "widths": list(lay.widths),
+            "gaps": list(lay.gaps),
+            "lengths": list(lay.lengths),
+            "taps": None if lay.taps is None else list(lay.taps),
+        },
+        "capacitances": None if r.capacitances is None else list(r.capacitances),
+        "thetas": None if r.thetas is None else list(r.thetas),
+    }
+
+
+def main() -> None:
+    paths = sorted((ROOT / "problems").glob("*.toml"))
+    data = {}
+    for p in paths:
+        data[p.stem] = outcome(p)
+        print(p.stem, data[p.stem]["status"], data[p.stem]["evaluations"], file=sys.stderr)
+    OUT.write_text(json.dumps(data, indent=1, sort_keys=True) + "\n")
+
+
+if __name__ == "__main__" and "--circuits" not in sys.argv:
+    main()
+
+
+def circuits() -> dict[str, object]:
+    """S and the exact gradient of each strip problem's seed layout on a 31-point grid through
+    the single-design path (free and fixed widths), and S through the batched path."""
+    import numpy as np
+
+    from refine import job
+    from refine.circuit import layout_response
+    from refine.model import strip_model_for
+
+    out: dict[str, object] = {}
+    for path in sorted((ROOT / "problems").glob("*.toml")):
+        problem = refine.load_problem(path)
+        if problem.medium == "ideal":
+            continue
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ModelRangeWarning)
+            lay = refine.seed(problem).realisation.layout
+            medium = job.medium_for(problem)
+            f = np.linspace(problem.mask.passband_start * 0.9, problem.mask.passband_stop * 1.1, 11)
+            out[f"{path.stem}/batched"] = layout_response(
+                lay, medium, problem.gap_model, f, problem.z_ref
+            )
+            for free in (False, True):
+                m = strip_model_for(medium, problem.gap_model, problem.z_ref, lay, f, free)
+                r = m.response(m.vector(lay), True)
+                tag = f"{path.stem}/{'free' if free else 'fixed'}"
+                out[f"{tag}/s11"], out[f"{tag}/s21"] = r.s11, r.s21
+                out[f"{tag}/ds11"], out[f"{tag}/ds21"] = r.ds11, r.ds21
+    return out
+
+
+if __name__ == "__main__" and "--circuits" in sys.argv:
+    import numpy as np
+
+    np.savez_compressed(ROOT / "tests" / "data" / "golden-circuits.npz", **circuits())
