@@ -24,12 +24,13 @@ from collections.abc import Callable
 import numpy as np
 from scipy.constants import c as C0
 
-from refine import cascade, synthesis
-from refine.circuit import layout_response
-from refine.discontinuities import garg_bahl_gap
-from refine.media.microstrip import Microstrip
-from refine.media.substrate import Substrate
-from refine.realise import realise
+from refine.circuit import cascade
+from refine.circuit.builder import layout_response
+from refine.physics.discontinuities import garg_bahl_gap
+from refine.physics.microstrip import Microstrip
+from refine.physics.substrate import Substrate
+from refine.synthesis import inverters as synthesis
+from refine.synthesis.realise import realise
 
 
 def median_time(fn: Callable[[], object], repeats: int, inner: int = 1) -> float:

@@ -22,11 +22,13 @@ import time
 import warnings
 from pathlib import Path
 
-from refine import job, outputs, plot
 from refine.fullwave import engine, spacemap, verify
-from refine.optimise import Stopping
-from refine.problem import load_problem
-from refine.refiner import refine_problem
+from refine.optimise import seed as job
+from refine.optimise.minimax import Stopping
+from refine.optimise.refiner import refine_problem
+from refine.outputs import files as outputs
+from refine.outputs import plot
+from refine.spec.problem import load_problem
 from refine.validity import ModelRangeWarning
 
 ROOT = Path(__file__).resolve().parent.parent

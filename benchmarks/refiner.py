@@ -22,9 +22,9 @@ import sys
 import warnings
 from pathlib import Path
 
-from refine.optimise import Stopping, Strategy
-from refine.problem import load_problem
-from refine.refiner import Status, refine_problem
+from refine.optimise.minimax import Stopping, Strategy
+from refine.optimise.refiner import Status, refine_problem
+from refine.spec.problem import load_problem
 from refine.validity import ModelRangeWarning
 
 ROOT = Path(__file__).resolve().parent.parent

@@ -4,7 +4,7 @@
 
 The bundled X-band thin-film problem's refined layout (written by ``refine design``; recomputed
 here if absent), 10,000 samples of the fab tolerances on the yield grid. The batched path
-evaluates ``refine.tolerance.CHUNK`` samples per cascade call; the baseline calls the same
+evaluates ``refine.tolerance.montecarlo.CHUNK`` samples per cascade call; the baseline calls the same
 engine once per sample (timed on 300 samples). Prints the per-sample cost of each and the ratio.
 """
 
@@ -16,9 +16,9 @@ import time
 import warnings
 from pathlib import Path
 
-from refine import tolerance
-from refine.problem import load_problem
-from refine.refiner import refine_problem
+from refine.optimise.refiner import refine_problem
+from refine.spec.problem import load_problem
+from refine.tolerance import montecarlo as tolerance
 from refine.validity import ModelRangeWarning
 
 ROOT = Path(__file__).resolve().parent.parent

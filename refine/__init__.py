@@ -15,11 +15,11 @@ Python API (what the ``refine`` command does, as plain calls)::
 
 __version__ = "0.1.0"
 
-from .job import seed
-from .outputs import write_outputs
-from .problem import Problem, ProblemError, load_problem
-from .refiner import RefineResult, Status
-from .refiner import refine_problem as design
+from refine.optimise.refiner import RefineResult, Status
+from refine.optimise.refiner import refine_problem as design
+from refine.optimise.seed import seed
+from refine.outputs.files import write_outputs
+from refine.spec.problem import Problem, ProblemError, load_problem
 
 __all__ = [
     "Problem",

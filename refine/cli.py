@@ -19,12 +19,17 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from . import __version__, export, job, outputs, plot, study, synthesis, tolerance
-from .mask import MaskResult
-from .optimise import Stopping, Strategy
-from .problem import ProblemError, load_problem
-from .refiner import RefineResult, Status, refine_problem
-from .refiner import fab_violations as refiner_fab_violations
+from refine import __version__, study
+from refine.optimise import seed as job
+from refine.optimise.minimax import Stopping, Strategy
+from refine.optimise.refiner import RefineResult, Status, refine_problem
+from refine.optimise.refiner import fab_violations as refiner_fab_violations
+from refine.outputs import export, plot
+from refine.outputs import files as outputs
+from refine.spec.mask import MaskResult
+from refine.spec.problem import ProblemError, load_problem
+from refine.synthesis import inverters as synthesis
+from refine.tolerance import montecarlo as tolerance
 
 
 class UsageError(Exception):
@@ -272,7 +277,7 @@ def _progress_printer():
 
 
 def _centre(problem, r: RefineResult, args: argparse.Namespace) -> RefineResult:
-    """Yield-centred refinement after the mask is met (see refine.tolerance.centre_for_yield)."""
+    """Yield-centred refinement after the mask is met (see refine.tolerance.montecarlo.centre_for_yield)."""
     from dataclasses import replace
 
     print()
@@ -374,7 +379,7 @@ def _cmd_design(args: argparse.Namespace) -> int:
         if r.status is not Status.MET:
             print("  (they describe the best design found, which does NOT meet the mask)")
         if args.fullwave is not None:
-            from .fullwave import handover, verify
+            from refine.fullwave import handover, verify
 
             print()
             print(f"field solver check (mesh {args.fullwave}) ...", flush=True)
@@ -400,7 +405,7 @@ def _fullwave_ready(problem, args: argparse.Namespace) -> None:
 
 def _field_engine():
     """The field-solver engine, or a UsageError saying what to install."""
-    from .fullwave import engine
+    from refine.fullwave import engine
 
     try:
         return engine.find_engine()
@@ -547,7 +552,7 @@ def _free_widths(args: argparse.Namespace) -> bool | None:
 
 
 def _cmd_fullwave(args: argparse.Namespace) -> int:
-    from .fullwave import handover, spacemap, verify
+    from refine.fullwave import handover, spacemap, verify
 
     problem = load_problem(args.problem)
     lay = export.read_layout(args.layout)

@@ -8,8 +8,9 @@ from scipy.constants import c as C0
 from skrf import Frequency
 from skrf.media import DefinedGammaZ0
 
-from refine import cascade, synthesis
-from refine.media import IdealTEM
+from refine.circuit import cascade
+from refine.physics import IdealTEM
+from refine.synthesis import inverters as synthesis
 
 
 def _skrf_chain(d, f):

@@ -5,8 +5,8 @@ import warnings
 import numpy as np
 import pytest
 
-from refine import discontinuities as dc
-from refine.media.microstrip import hammerstad_jensen
+from refine.physics import discontinuities as dc
+from refine.physics.microstrip import hammerstad_jensen
 from refine.validity import ModelRangeWarning
 
 

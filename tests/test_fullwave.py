@@ -15,13 +15,17 @@ import pytest
 from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
-from refine import cascade, circuit, export, outputs, synthesis
+from refine.circuit import builder as circuit
+from refine.circuit import cascade
+from refine.circuit.layout import Layout
 from refine.cli import main
 from refine.fullwave import calibration, compare, engine, geometry, mesh, spacemap, verify, waves
-from refine.layout import Layout
-from refine.mask import Mask, Stopband
-from refine.media.substrate import Substrate
-from refine.problem import load_problem
+from refine.outputs import export
+from refine.outputs import files as outputs
+from refine.physics.substrate import Substrate
+from refine.spec.mask import Mask, Stopband
+from refine.spec.problem import load_problem
+from refine.synthesis import inverters as synthesis
 
 ROOT = Path(__file__).parent.parent
 TAP_PROBLEM = ROOT / "problems/ms-alumina-tap-10g-n3-10pct.toml"
@@ -331,8 +335,8 @@ def test_space_mapping_meets_the_mask_on_a_stand_in_fine_model(monkeypatch, meth
     (about a 1.5 % frequency shift, invented for the test), so the map has a known error to
     remove; it must not touch the fab rules."""
     p = load_problem(TAP_PROBLEM)
-    from refine import job
-    from refine.refiner import refine_problem
+    from refine.optimise import seed as job
+    from refine.optimise.refiner import refine_problem
 
     r = refine_problem(p, seed=job.seed(p))
     assert r.status.value == "met"

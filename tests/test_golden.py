@@ -64,9 +64,9 @@ STRIP = [p for p in PROBLEMS if refine.load_problem(p).medium != "ideal"]
 
 @pytest.mark.parametrize("path", STRIP, ids=lambda p: p.stem)
 def test_batched_and_single_design_paths_match_the_record(path):
-    from refine import job
-    from refine.circuit import layout_response
-    from refine.model import strip_model_for
+    from refine.circuit.builder import layout_response
+    from refine.circuit.model import strip_model_for
+    from refine.optimise import seed as job
 
     problem = refine.load_problem(path)
     with warnings.catch_warnings():

@@ -3,8 +3,10 @@
 import numpy as np
 import pytest
 
-from refine import cascade, prototype, synthesis
-from refine.mask import Mask, Stopband
+from refine.circuit import cascade
+from refine.spec.mask import Mask, Stopband
+from refine.synthesis import inverters as synthesis
+from refine.synthesis import prototype
 
 
 @pytest.fixture(scope="module")

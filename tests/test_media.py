@@ -8,16 +8,16 @@ import pytest
 from skrf import Frequency
 from skrf.media import MLine
 
-from refine import cascade
-from refine.media.microstrip import (
+from refine.circuit import cascade
+from refine.physics.microstrip import (
     Microstrip,
     hammerstad_jensen,
     hammerstad_jensen_z01,
     hammerstad_roughness_factor,
     surface_resistance,
 )
-from refine.media.stripline import Stripline, cohn_z0, pozar_stripline_conductor_loss, wheeler_z0
-from refine.media.substrate import Substrate
+from refine.physics.stripline import Stripline, cohn_z0, pozar_stripline_conductor_loss, wheeler_z0
+from refine.physics.substrate import Substrate
 from refine.validity import ModelRangeWarning
 
 F_WIDE = np.linspace(1e9, 40e9, 157)
@@ -135,7 +135,7 @@ def test_loss_building_blocks():
         surface_resistance([2e9, 10e9], 5.813e7), [11.65e-3, 26.06e-3], atol=1e-5
     )
     # Hammerstad roughness factor: Δ/δ = 1 -> 1.6051, large Δ/δ -> 2 (recomputed, §8).
-    from refine.media.microstrip import skin_depth
+    from refine.physics.microstrip import skin_depth
 
     d = float(skin_depth(5e9, 5.8e7))
     assert hammerstad_roughness_factor(5e9, 5.8e7, d)[()] == pytest.approx(1.6051, abs=1e-4)

@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 from skrf import Network
 
-from refine import export
 from refine.cli import main
+from refine.outputs import export
 
 ROOT = Path(__file__).parent.parent
 ALUMINA = ROOT / "problems/microstrip-x-band-alumina-n3.toml"
@@ -62,8 +62,8 @@ def test_touchstone_reads_back_in_scikit_rf_identically(alumina_out):
         warnings.simplefilter("ignore")
         ntw = Network(str(alumina_out / "response.s2p"))
     lay = export.read_layout(alumina_out / "layout.json")
-    from refine.outputs import evaluate_layout, sweep
-    from refine.problem import load_problem
+    from refine.outputs.files import evaluate_layout, sweep
+    from refine.spec.problem import load_problem
 
     p = load_problem(ALUMINA)
     f = sweep(p)

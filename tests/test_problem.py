@@ -5,7 +5,7 @@ from pathlib import Path
 
 import pytest
 
-from refine.problem import ProblemError, load_problem, parse_problem
+from refine.spec.problem import ProblemError, load_problem, parse_problem
 
 PROBLEMS = sorted((Path(__file__).parent.parent / "problems").glob("*.toml"))
 

@@ -5,7 +5,7 @@ import math
 import numpy as np
 import pytest
 
-from refine import prototype as p
+from refine.synthesis import prototype as p
 
 # Chebyshev g-values. Matthaei, Young & Jones 1964, Table 4.05-2(a); the same values are in
 # Pozar, Microwave Engineering 4th ed., Table 8.4 and Hong & Lancaster 2001, Table 3.2.

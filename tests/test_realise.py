@@ -8,13 +8,14 @@ import pytest
 from skrf import Frequency
 from skrf.media import DefinedGammaZ0, MLine
 
-from refine import circuit, synthesis
-from refine.fab import FabRules
-from refine.layout import Layout
-from refine.media.microstrip import Microstrip
-from refine.media.stripline import Stripline
-from refine.media.substrate import Substrate
-from refine.realise import realise
+from refine.circuit import builder as circuit
+from refine.circuit.layout import Layout
+from refine.physics.microstrip import Microstrip
+from refine.physics.stripline import Stripline
+from refine.physics.substrate import Substrate
+from refine.spec.fab import FabRules
+from refine.synthesis import inverters as synthesis
+from refine.synthesis.realise import realise
 from refine.validity import ModelRangeWarning
 
 ALUMINA = Substrate(9.8, 0.635e-3)
@@ -158,7 +159,7 @@ def test_batched_layouts_equal_single():
     feed = 0.6e-3 + rng.normal(0, 5e-6, 4)
     w = _quiet()
     try:
-        from refine import cascade
+        from refine.circuit import cascade
 
         batch = cascade.s_parameters(
             circuit.filter_elements(med, "garg-bahl", feed, widths, gaps, lengths, f), f, 50.0

@@ -14,14 +14,21 @@ import numpy as np
 import pytest
 from conftest import PROBLEMS, expected_outcome, refined
 
-from refine import job
-from refine.media.microstrip import Microstrip
-from refine.media.stripline import Stripline
-from refine.media.substrate import Substrate
-from refine.model import IdealFilterModel, StripFilterModel
-from refine.optimise import DesignSpace, Stopping, Strategy, Variable, _run_nlopt, optimiser_grid
-from refine.problem import load_problem
-from refine.refiner import Status, refine_problem
+from refine.circuit.model import IdealFilterModel, StripFilterModel
+from refine.optimise import seed as job
+from refine.optimise.minimax import (
+    DesignSpace,
+    Stopping,
+    Strategy,
+    Variable,
+    _run_nlopt,
+    optimiser_grid,
+)
+from refine.optimise.refiner import Status, refine_problem
+from refine.physics.microstrip import Microstrip
+from refine.physics.stripline import Stripline
+from refine.physics.substrate import Substrate
+from refine.spec.problem import load_problem
 from refine.validity import ModelRangeWarning
 
 _expected = expected_outcome

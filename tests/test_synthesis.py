@@ -6,8 +6,9 @@ import math
 import numpy as np
 import pytest
 
-from refine import cascade, synthesis
-from refine.mask import Stopband
+from refine.circuit import cascade
+from refine.spec.mask import Stopband
+from refine.synthesis import inverters as synthesis
 
 
 @pytest.fixture(scope="module")

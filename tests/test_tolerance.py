@@ -7,10 +7,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from refine import tolerance
+from refine.circuit.layout import Layout
 from refine.cli import main
-from refine.layout import Layout
-from refine.problem import load_problem
+from refine.spec.problem import load_problem
+from refine.tolerance import montecarlo as tolerance
 from refine.validity import ModelRangeWarning
 
 ROOT = Path(__file__).parent.parent
@@ -121,7 +121,7 @@ def test_sensitivity_matches_finite_difference_of_the_worst_margin():
 )
 def test_yield_verb_bad_input(tmp_path, capsys, args, message):
     lay = tmp_path / "layout.json"
-    from refine.export import layout_dict, write_json
+    from refine.outputs.export import layout_dict, write_json
 
     write_json(lay, layout_dict(LAY))
     assert (
@@ -141,7 +141,7 @@ def test_yield_verb_bad_input(tmp_path, capsys, args, message):
 
 
 def test_yield_verb_writes_csv_and_histogram(tmp_path, capsys):
-    from refine.export import layout_dict, write_json
+    from refine.outputs.export import layout_dict, write_json
 
     lay = tmp_path / "layout.json"
     write_json(lay, layout_dict(LAY))
@@ -178,7 +178,7 @@ def test_yield_centring_raises_yield_on_independent_samples():
     assert c.layout is not LAY and c.yield_after.yield_fraction > c.yield_before.yield_fraction
     assert fresh_after > fresh_before + 0.05  # judged on samples neither step has seen
     assert c.yield_after.nominal_margin >= 0  # still meets the mask at nominal
-    from refine.refiner import fab_violations
+    from refine.optimise.refiner import fab_violations
 
     assert not fab_violations(ALUMINA, c.layout)
     steps = np.array([*c.layout.gaps, *c.layout.widths, *c.layout.lengths]) / ALUMINA.fab.grid
@@ -255,7 +255,7 @@ def test_substrate_tolerance_keys_in_problem_files(tmp_path):
         10e-6
     )
     f.write_text(text.replace("eps_r_tolerance = 0.05", "eps_r_tolerance = 5"))
-    from refine.problem import ProblemError
+    from refine.spec.problem import ProblemError
 
     with pytest.raises(
         ProblemError, match=r"medium.eps_r_tolerance = 5: outside the allowed range \[0, 1.96\]"

@@ -25,11 +25,12 @@ from pathlib import Path
 import numpy as np
 from numpy.typing import NDArray
 
-from .. import _validate as v
-from .. import circuit, validity
-from ..media.microstrip import Microstrip
-from ..media.substrate import Substrate
-from . import engine, geometry, solve, waves
+from refine import _validate as v
+from refine import validity
+from refine.circuit import builder as circuit
+from refine.fullwave import engine, geometry, solve, waves
+from refine.physics.microstrip import Microstrip
+from refine.physics.substrate import Substrate
 
 FIXTURE = Path(__file__).with_name("gap_calibration.json")
 
@@ -223,7 +224,7 @@ def verdict(w: float, s: float, substrate: Substrate, fx: Fixture | None = None)
 
 def regenerate(path: str | Path = FIXTURE, geometries=GEOMETRIES) -> Path:
     """Run the whole calibration and write the fixture (atomically)."""
-    from ..export import write_text_atomic
+    from refine.outputs.export import write_text_atomic
 
     eng = engine.find_engine()
     records = []

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from ..mask import Mask, MaskResult, Stopband
+from refine.spec.mask import Mask, MaskResult, Stopband
 
 
 def _db(x: NDArray) -> NDArray:

@@ -1,6 +1,6 @@
 """Copper, substrate, mesh, ports and excitation of one field-solver run, as a plain job.
 
-The copper comes from :func:`refine.export.copper`, the same rectangles the DXF and SVG
+The copper comes from :func:`refine.outputs.export.copper`, the same rectangles the DXF and SVG
 drawings are made of, so the field solver sees exactly the drawing that is handed over. Strips
 are zero-thickness sheets on the substrate top (z = h); the ground is the PEC floor of the box.
 
@@ -9,7 +9,7 @@ Ports are microstrip ports on the feeds: the wave is launched ``feed_shift`` in 
 ``D_ref`` short of the filter's reference plane, and the waves are moved to the reference plane
 afterwards with the propagation constant from a thru run on the same mesh (see
 :mod:`refine.fullwave.waves`). Reference planes: the feed ends at the outer edges of the end
-gaps (gap coupling, as in :mod:`refine.circuit`), or the end resonator's centre line for a tapped
+gaps (gap coupling, as in :mod:`refine.circuit.builder`), or the end resonator's centre line for a tapped
 feed, where the circuit model joins it (the last half resonator width is de-embedded as feed
 line, the usual junction-centre convention; the tee itself is not in the circuit model, so its
 parasitics show up as EM-vs-model difference).
@@ -25,11 +25,11 @@ from dataclasses import dataclass, replace
 import numpy as np
 from numpy.typing import NDArray
 
-from .. import _validate as v
-from ..export import Strip, copper
-from ..layout import Layout
-from ..media.substrate import Substrate
-from . import mesh as meshing
+from refine import _validate as v
+from refine.circuit.layout import Layout
+from refine.fullwave import mesh as meshing
+from refine.outputs.export import Strip, copper
+from refine.physics.substrate import Substrate
 
 PML_CELLS = 8
 FEED_SHIFT_CELLS = 10  # launch past the absorbing layer (PML_CELLS) with two cells to spare

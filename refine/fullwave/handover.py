@@ -8,9 +8,9 @@ import json
 import re
 from pathlib import Path
 
-from .. import export, plot
-from ..outputs import prepare_folder
-from .verify import FieldCheck
+from refine.fullwave.verify import FieldCheck
+from refine.outputs import export, plot
+from refine.outputs.files import prepare_folder
 
 FILES = ("fullwave.s2p", "fullwave.png", "fullwave.json", "fullwave.md")
 SECTION = "## Field-solver check"

@@ -15,7 +15,7 @@ from collections.abc import Sequence
 import numpy as np
 from numpy.typing import NDArray
 
-from .. import _validate as v
+from refine import _validate as v
 
 SPEED_OF_LIGHT = 299_792_458.0
 

@@ -10,11 +10,11 @@ from pathlib import Path
 import numpy as np
 from numpy.typing import NDArray
 
-from .. import _validate as v
-from ..cascade import Abcd, abcd_to_s
-from ..media.substrate import Substrate
-from . import engine, geometry, waves
-from .mesh import SPEED_OF_LIGHT
+from refine import _validate as v
+from refine.circuit.cascade import Abcd, abcd_to_s
+from refine.fullwave import engine, geometry, waves
+from refine.fullwave.mesh import SPEED_OF_LIGHT
+from refine.physics.substrate import Substrate
 
 
 class FieldSolveWarning(UserWarning):

@@ -45,10 +45,11 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy.optimize import least_squares
 
-from .. import export, outputs
-from ..layout import Layout
-from ..problem import Problem
-from . import geometry, verify
+from refine.circuit.layout import Layout
+from refine.fullwave import geometry, verify
+from refine.outputs import export
+from refine.outputs import files as outputs
+from refine.spec.problem import Problem
 
 FILES = ("fullwave-layout.json", "fullwave-layout.dxf", "fullwave-rounds.json")
 
@@ -176,7 +177,10 @@ def corrected_response(
     """S-matrix ``(nf, 2, 2)`` of the circuit model with a correction applied."""
     import warnings
 
-    from .. import cascade, circuit, job, validity
+    from refine import validity
+    from refine.circuit import builder as circuit
+    from refine.circuit import cascade
+    from refine.optimise import seed as job
 
     lengths = tuple(x + d for x, d in zip(layout.lengths, corr.length_offsets, strict=True))
     kw: dict = {"lengths": lengths}
@@ -311,7 +315,7 @@ def rerefine(
     ``step`` bounds the move either way: (log gap, relative length or tap)."""
     from scipy.optimize import minimize
 
-    from .. import job
+    from refine.optimise import seed as job
 
     sp = _Space.of(layout)
     f = job.verification_grid(problem, 201)

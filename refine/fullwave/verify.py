@@ -14,11 +14,11 @@ from pathlib import Path
 import numpy as np
 from numpy.typing import NDArray
 
-from .. import _validate as v
-from ..layout import Layout
-from ..outputs import evaluate_layout
-from ..problem import Problem
-from . import compare, geometry, solve, waves
+from refine import _validate as v
+from refine.circuit.layout import Layout
+from refine.fullwave import compare, geometry, solve, waves
+from refine.outputs.files import evaluate_layout
+from refine.spec.problem import Problem
 
 MESH_CHOICES = ("coarse", "fine", "converged")
 

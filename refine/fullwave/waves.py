@@ -24,7 +24,7 @@ from typing import NamedTuple
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from ..cascade import Abcd
+from refine.circuit.cascade import Abcd
 
 
 class PortState(NamedTuple):

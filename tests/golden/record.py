@@ -68,9 +68,9 @@ def circuits() -> dict[str, object]:
     the single-design path (free and fixed widths), and S through the batched path."""
     import numpy as np
 
-    from refine import job
-    from refine.circuit import layout_response
-    from refine.model import strip_model_for
+    from refine.circuit.builder import layout_response
+    from refine.circuit.model import strip_model_for
+    from refine.optimise import seed as job
 
     out: dict[str, object] = {}
     for path in sorted((ROOT / "problems").glob("*.toml")):

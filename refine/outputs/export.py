@@ -17,8 +17,8 @@ from pathlib import Path
 import numpy as np
 from numpy.typing import NDArray
 
-from . import __version__
-from .layout import Layout
+from refine import __version__
+from refine.circuit.layout import Layout
 
 
 def write_atomic(path: str | Path, writer: Callable[[Path], None]) -> Path:

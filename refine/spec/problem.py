@@ -41,10 +41,10 @@ from functools import lru_cache
 from pathlib import Path
 from typing import Any
 
-from . import prototype
-from .fab import FabRules
-from .mask import Mask, Stopband
-from .media.substrate import Substrate
+from refine.physics.substrate import Substrate
+from refine.spec.fab import FabRules
+from refine.spec.mask import Mask, Stopband
+from refine.synthesis import prototype
 
 MEDIUM_KINDS = ("microstrip", "stripline", "ideal")
 EXTERNAL_KINDS = ("gap", "tap")

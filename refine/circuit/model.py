@@ -35,12 +35,13 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy.constants import c as C0
 
-from . import cascade, validity
-from .circuit import StripMedium, check_gap_model, gap_capacitances, medium_kind
-from .discontinuities import kirschning_jansen_koster_open_end, stripline_open_end
-from .layout import Layout
-from .media.microstrip import hammerstad_jensen
-from .media.stripline import Stripline
+from refine import validity
+from refine.circuit import cascade
+from refine.circuit.builder import StripMedium, check_gap_model, gap_capacitances, medium_kind
+from refine.circuit.layout import Layout
+from refine.physics.discontinuities import kirschning_jansen_koster_open_end, stripline_open_end
+from refine.physics.microstrip import hammerstad_jensen
+from refine.physics.stripline import Stripline
 
 _CSTEP = 1e-30  # complex-step size relative to the gap width
 _FD = 1e-6  # relative central-difference step for widths
@@ -179,7 +180,7 @@ class StripFilterModel:
             j_in: int | None,
             j_out: int | None,
         ):
-            if strip_centre:  # half-gap lines on each side, see refine.circuit.gap_elements
+            if strip_centre:  # half-gap lines on each side, see refine.circuit.builder.gap_elements
                 g_in, z_in = line(w_in)
                 els.append(cascade.Line(g_in, z_in, 0.5 * s))
                 deps.append([(p_index, "length", 0.5)])
@@ -338,7 +339,7 @@ class IdealFilterModel:
         return p[: self.order + 1], p[self.order + 1 :]
 
     def response(self, p: NDArray, gradient: bool = False) -> Response:
-        from .synthesis import ideal_elements
+        from refine.synthesis.inverters import ideal_elements
 
         caps, th = self.split(np.asarray(p, float))
         els = ideal_elements(caps, th, self.f0, self.z_ref, self.f)

@@ -40,7 +40,7 @@ from typing import NamedTuple, Protocol, runtime_checkable
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from . import _validate as v
+from refine import _validate as v
 
 Array = NDArray[np.complex128]
 

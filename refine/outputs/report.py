@@ -14,9 +14,11 @@ from dataclasses import asdict
 
 import numpy as np
 
-from . import cascade, job, validity
-from .model import strip_model_for
-from .refiner import RefineResult, Status
+from refine import validity
+from refine.circuit import cascade
+from refine.circuit.model import strip_model_for
+from refine.optimise import seed as job
+from refine.optimise.refiner import RefineResult, Status
 
 BREAKDOWN_V_PER_M = 1.0e6  # conservative: 1 kV/mm
 
@@ -158,7 +160,7 @@ def field_verdicts(r: RefineResult) -> list[dict]:
     field-solver calibration favours there (empty for other media)."""
     if r.layout is None or r.problem.medium != "microstrip":
         return []
-    from .fullwave import calibration
+    from refine.fullwave import calibration
 
     return calibration.layout_verdicts(r.layout, r.problem.substrate)
 

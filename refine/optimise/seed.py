@@ -12,12 +12,14 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from . import circuit, synthesis, validity
-from .mask import MaskResult
-from .media.microstrip import Microstrip
-from .media.stripline import Stripline
-from .problem import Problem
-from .realise import Realisation, realise, realise_tapped
+from refine import validity
+from refine.circuit import builder as circuit
+from refine.physics.microstrip import Microstrip
+from refine.physics.stripline import Stripline
+from refine.spec.mask import MaskResult
+from refine.spec.problem import Problem
+from refine.synthesis import inverters as synthesis
+from refine.synthesis.realise import Realisation, realise, realise_tapped
 
 
 def medium_for(problem: Problem, loss: bool = True) -> circuit.StripMedium | None:

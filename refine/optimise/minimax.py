@@ -1,7 +1,7 @@
 """The refiner: minimax of mask violation under fab rules, on nlopt.
 
 Formulation (epigraph): with z the free variables (logarithms of the dimensions) and g_i(z)
-the mask constraint values in dB (g = -margin, see :mod:`refine.mask`)::
+the mask constraint values in dB (g = -margin, see :mod:`refine.spec.mask`)::
 
     minimise t   subject to   g_i(z) - t <= 0  for every mask sample i,   lower <= z <= upper
 
@@ -36,8 +36,8 @@ import nlopt
 import numpy as np
 from numpy.typing import NDArray
 
-from . import _validate as v
-from .mask import Mask
+from refine import _validate as v
+from refine.spec.mask import Mask
 
 
 class Strategy(enum.Enum):

@@ -28,11 +28,14 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from . import _validate as v
-from . import cascade, circuit, job, validity
-from .layout import Layout
-from .model import strip_model_for
-from .problem import Problem
+from refine import _validate as v
+from refine import validity
+from refine.circuit import builder as circuit
+from refine.circuit import cascade
+from refine.circuit.layout import Layout
+from refine.circuit.model import strip_model_for
+from refine.optimise import seed as job
+from refine.spec.problem import Problem
 
 MAX_SAMPLES = 10**6
 CHUNK = (
@@ -349,9 +352,9 @@ def centre_for_yield(
     snapped to the shop's grid, and it is kept only if its Monte Carlo yield (on samples
     independent of the design samples) is higher.
     """
-    from .model import strip_model_for
-    from .optimise import Stopping, Strategy, _run_nlopt
-    from .refiner import _snap, fab_violations, strip_space
+    from refine.circuit.model import strip_model_for
+    from refine.optimise.minimax import Stopping, Strategy, _run_nlopt
+    from refine.optimise.refiner import _snap, fab_violations, strip_space
 
     tol = Tolerances.from_problem(problem, correlated)
     before = estimate_yield(problem, layout, check_samples, seed + 1, correlated)

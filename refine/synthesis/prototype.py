@@ -23,7 +23,7 @@ b = Y0 π/2, so Ω(f) = tan(π f/f0) / (FBW π/2). Near f0 this is the narrow-ba
 MYJ §8.04, Ω ≈ 2 (f - f0)/(FBW f0); unlike the lumped mapping it is periodic, so it shows the
 spurious passband of the half-wave filter at 2 f0 (|Ω| < 1 again around f = 2 f0) instead of
 promising ever-growing rejection there. The real gap-coupled filter is additionally asymmetric
-(its couplings grow with frequency) — :func:`refine.synthesis.select_order` therefore confirms
+(its couplings grow with frequency) — :func:`refine.synthesis.inverters.select_order` therefore confirms
 the mapping's choice on the ideal-element circuit itself.
 """
 
@@ -35,7 +35,7 @@ from typing import Literal
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from . import _validate as v
+from refine import _validate as v
 
 Family = Literal["chebyshev", "butterworth"]
 FAMILIES: tuple[str, ...] = ("chebyshev", "butterworth")

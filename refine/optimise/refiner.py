@@ -18,14 +18,21 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import NDArray
 
-from . import job
-from .diagnose import Diagnosis, diagnose
-from .layout import Layout
-from .mask import MaskResult
-from .model import IdealFilterModel, StripFilterModel, strip_model_for
-from .optimise import DesignSpace, Stopping, Strategy, Variable, optimiser_grid, refine_once
-from .problem import Problem
-from .realise import Realisation, realise, realise_tapped
+from refine.circuit.layout import Layout
+from refine.circuit.model import IdealFilterModel, StripFilterModel, strip_model_for
+from refine.optimise import seed as job
+from refine.optimise.minimax import (
+    DesignSpace,
+    Stopping,
+    Strategy,
+    Variable,
+    optimiser_grid,
+    refine_once,
+)
+from refine.spec.mask import MaskResult
+from refine.spec.problem import Problem
+from refine.synthesis.diagnose import Diagnosis, diagnose
+from refine.synthesis.realise import Realisation, realise, realise_tapped
 
 
 class Status(enum.Enum):

@@ -9,7 +9,7 @@ At the centre frequency f0, on the dispersive line:
    on each side, and for centre-referenced models the half-gap lines — is an inverter of the
    designed J/Y0 (Y0 of the resonator line at f0). The two-port's series and shunt
    susceptances are read from its Y-parameters (Bg = -Im Y21, Bp = Im(Y11 + Y21)) and
-   converted with :func:`refine.synthesis.pi_to_inverter`.
+   converted with :func:`refine.synthesis.inverters.pi_to_inverter`.
 3. Each resonator's electrical length is θ_j = π + (φ_j-1,j + φ_j,j+1)/2 with the negative
    inverter phases φ of the actual gaps (this absorbs the shunt capacitances, i.e. the open-end
    fringing), and its physical length is θ_j/β(f0).
@@ -28,11 +28,12 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import brentq
 
-from . import cascade, validity
-from .circuit import StripMedium, check_gap_model, gap_elements, medium_kind
-from .fab import FabRules
-from .layout import Layout
-from .synthesis import ElectricalDesign, pi_to_inverter, resonator_angles
+from refine import validity
+from refine.circuit import cascade
+from refine.circuit.builder import StripMedium, check_gap_model, gap_elements, medium_kind
+from refine.circuit.layout import Layout
+from refine.spec.fab import FabRules
+from refine.synthesis.inverters import ElectricalDesign, pi_to_inverter, resonator_angles
 
 
 @dataclass(frozen=True)
@@ -249,7 +250,7 @@ def realise_tapped(
     """Layout with a tapped feed: the n - 1 inner gaps as in :func:`realise`, the end resonators
     open at their outer ends (length reduced by the open-end extension Δl) and tapped at the
     position :func:`tap_angle` gives. The T-junction's own parasitics are not modelled."""
-    from .model import open_end_extension
+    from refine.circuit.model import open_end_extension
 
     if design.order < 2:
         raise ValueError(

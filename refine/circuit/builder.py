@@ -18,11 +18,12 @@ from typing import Union
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from . import _validate as v
-from . import cascade, discontinuities
-from .layout import Layout
-from .media.microstrip import Microstrip
-from .media.stripline import Stripline
+from refine import _validate as v
+from refine.circuit import cascade
+from refine.circuit.layout import Layout
+from refine.physics import discontinuities
+from refine.physics.microstrip import Microstrip
+from refine.physics.stripline import Stripline
 
 StripMedium = Union[Microstrip, Stripline]  # noqa: UP007 (a runtime alias)
 
@@ -189,10 +190,10 @@ def tapped_filter_elements(
     taps: ArrayLike,
     f: ArrayLike,
 ) -> list[cascade.Element]:
-    """Elements of a tapped-feed filter (see :mod:`refine.model` for the circuit), batched like
+    """Elements of a tapped-feed filter (see :mod:`refine.circuit.model` for the circuit), batched like
     :func:`filter_elements`: ``widths``, ``lengths`` ``(..., n)``, ``gaps`` ``(..., n - 1)``,
     ``taps`` ``(..., 2)``."""
-    from .model import open_end_extensions
+    from refine.circuit.model import open_end_extensions
 
     check_gap_model(medium, model)
     f = v.frequencies("f", f)

@@ -25,10 +25,10 @@ from numpy.typing import ArrayLike, NDArray
 from scipy.constants import c as C0
 from scipy.special import ellipk
 
-from .. import _validate as v
-from .. import validity
-from .microstrip import ETA0, solve_log_width, surface_resistance
-from .substrate import Substrate
+from refine import _validate as v
+from refine import validity
+from refine.physics.microstrip import ETA0, solve_log_width, surface_resistance
+from refine.physics.substrate import Substrate
 
 
 def cohn_z0(w_b: ArrayLike, eps_r: ArrayLike) -> NDArray:

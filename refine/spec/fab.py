@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from . import _validate as v
+from refine import _validate as v
 
 
 @dataclass(frozen=True)

@@ -19,11 +19,11 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from . import validity
-from .circuit import StripMedium
-from .fab import FabRules
-from .realise import gap_inverter, tap_angle
-from .synthesis import ElectricalDesign, inverter_j
+from refine import validity
+from refine.circuit.builder import StripMedium
+from refine.spec.fab import FabRules
+from refine.synthesis.inverters import ElectricalDesign, inverter_j
+from refine.synthesis.realise import gap_inverter, tap_angle
 
 WIDTH_FACTORS = (1.0, 1.5, 2.0, 3.0)  # resonator widths tried, as multiples of the feed width
 

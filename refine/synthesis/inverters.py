@@ -32,10 +32,11 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from . import _validate as v
-from . import cascade, prototype
-from .mask import Stopband
-from .media.ideal import IdealTEM
+from refine import _validate as v
+from refine.circuit import cascade
+from refine.physics.ideal import IdealTEM
+from refine.spec.mask import Stopband
+from refine.synthesis import prototype
 
 
 @dataclass(frozen=True)
@@ -253,7 +254,7 @@ def select_order(
 ) -> OrderChoice:
     """Smallest order meeting the stopband rejections, judged on the ideal-element circuit.
 
-    First the half-wave reactance-slope mapping (:func:`refine.prototype.halfwave_omega`) gives
+    First the half-wave reactance-slope mapping (:func:`refine.synthesis.prototype.halfwave_omega`) gives
     a prediction from the prototype attenuation over each stopband; then the closed-form design
     of each order from 1 up is evaluated with ideal elements over every stopband, because the
     gap-coupled circuit's skirts are asymmetric and the mapping is only approximate. Spurious

@@ -20,7 +20,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from . import _validate as v
+from refine import _validate as v
 
 _DB = 20.0 / math.log(10.0)
 _TINY = 1e-30  # floor on |S|² so a perfect match or a transmission zero stays finite

@@ -40,8 +40,8 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.constants import c as C0
 
-from . import validity
-from .media.microstrip import hammerstad_jensen
+from refine import validity
+from refine.physics.microstrip import hammerstad_jensen
 
 PF = 1e-12
 
@@ -267,7 +267,7 @@ def stripline_gap(
                                                            strip length s/2 up to the centre)
     As s → ∞, C_shunt → Y0 (b ln 2/π)/v - Y0 (s/2)/v: the open end Δl = b ln2/π minus the line
     s/2 between the strip end and the centre plane. Circuits using it must add a line of length
-    s/2 on each side (see :mod:`refine.circuit`).
+    s/2 on each side (see :mod:`refine.circuit.builder`).
     """
     s = np.asarray(s)
     if w is not None:

@@ -45,9 +45,9 @@ from scipy.constants import c as C0
 from scipy.constants import mu_0 as MU0
 from scipy.optimize import brentq
 
-from .. import _validate as v
-from .. import validity
-from .substrate import Substrate
+from refine import _validate as v
+from refine import validity
+from refine.physics.substrate import Substrate
 
 ETA0 = math.sqrt(MU0 / 8.8541878128e-12)  # 376.73 ohm, free-space wave impedance
 

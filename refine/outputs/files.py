@@ -12,12 +12,16 @@ from pathlib import Path
 
 import numpy as np
 
-from . import circuit, export, job, plot, report, synthesis, validity
-from .layout import Layout
-from .mask import MaskResult
-from .problem import Problem
-from .realise import range_report
-from .refiner import RefineResult
+from refine import validity
+from refine.circuit import builder as circuit
+from refine.circuit.layout import Layout
+from refine.optimise import seed as job
+from refine.optimise.refiner import RefineResult
+from refine.outputs import export, plot, report
+from refine.spec.mask import MaskResult
+from refine.spec.problem import Problem
+from refine.synthesis import inverters as synthesis
+from refine.synthesis.realise import range_report
 
 OUTPUT_FILES = (
     "summary.json",
@@ -76,7 +80,7 @@ def evaluate_layout(problem: Problem, layout: Layout, f: np.ndarray) -> np.ndarr
 
 
 def evaluate_electrical(caps, thetas, f0: float, z_ref: float, f: np.ndarray) -> np.ndarray:
-    from . import cascade
+    from refine.circuit import cascade
 
     return cascade.s_parameters(synthesis.ideal_elements(caps, thetas, f0, z_ref, f), f, z_ref)
 

@@ -14,7 +14,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.constants import c as C0
 
-from .. import _validate as v
+from refine import _validate as v
 
 
 @dataclass(frozen=True)

@@ -12,9 +12,9 @@ from pathlib import Path
 import numpy as np
 from numpy.typing import NDArray
 
-from .export import copper, write_atomic
-from .layout import Layout
-from .mask import Mask
+from refine.circuit.layout import Layout
+from refine.outputs.export import copper, write_atomic
+from refine.spec.mask import Mask
 
 
 def _save(fig, path: str | Path, dpi: int) -> Path:

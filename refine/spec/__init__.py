@@ -1,0 +1,1 @@
+"""What the engineer asks for: the problem file and its parts (mask, fab rules)."""

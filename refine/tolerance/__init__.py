@@ -1,0 +1,1 @@
+"""Yield under the shop's tolerances (Monte Carlo, sensitivities) and yield centring."""
