@@ -24,8 +24,8 @@ from collections.abc import Callable
 import numpy as np
 from scipy.constants import c as C0
 
-from refine.circuit import cascade
-from refine.circuit.builder import layout_response
+from refine.circuit import builder, cascade
+from refine.circuit.response import layout_response
 from refine.physics.discontinuities import garg_bahl_gap
 from refine.physics.microstrip import Microstrip
 from refine.physics.substrate import Substrate
@@ -76,12 +76,12 @@ def ideal_section(repeats: int) -> list[str]:
 
         def ours(d=d):
             return cascade.s_parameters(
-                synthesis.ideal_elements(d.capacitance, d.theta, d.f0, 50.0, f), f, 50.0
+                builder.ideal_elements(d.capacitance, d.theta, d.f0, 50.0, f), f, 50.0
             )
 
         def mm(d=d):
             return matmul_chain(
-                synthesis.ideal_elements(d.capacitance, d.theta, d.f0, 50.0, f), f, 50.0
+                builder.ideal_elements(d.capacitance, d.theta, d.f0, 50.0, f), f, 50.0
             )
 
         np.testing.assert_allclose(ours(), mm(), atol=1e-9)
@@ -175,12 +175,12 @@ def batch_and_gradient_section(repeats: int) -> list[str]:
     caps = np.array(d.capacitance) * rng.uniform(0.9, 1.1, (1000, 6))
     th = np.array(d.theta) * rng.uniform(0.98, 1.02, (1000, 5))
     t_batch = median_time(
-        lambda: cascade.s11_s21(synthesis.ideal_elements(caps, th, d.f0, 50.0, f), f, 50.0),
+        lambda: cascade.s11_s21(builder.ideal_elements(caps, th, d.f0, 50.0, f), f, 50.0),
         max(3, repeats // 5),
     )
 
     def build():  # fresh elements every call: elements cache their cosh/sinh
-        return synthesis.ideal_elements(d.capacitance, d.theta, d.f0, 50.0, f)
+        return builder.ideal_elements(d.capacitance, d.theta, d.f0, 50.0, f)
 
     t_one = median_time(lambda: cascade.s11_s21(build(), f, 50.0), repeats, 20)
     wrt = {"length", "capacitance"}  # what the refiner moves

@@ -22,11 +22,11 @@ import time
 import warnings
 from pathlib import Path
 
+from refine.circuit.response import evaluate_layout
 from refine.fullwave import engine, spacemap, verify
 from refine.optimise import seed as job
 from refine.optimise.minimax import Stopping
 from refine.optimise.refiner import refine_problem
-from refine.outputs import files as outputs
 from refine.outputs import plot
 from refine.spec.problem import load_problem
 from refine.validity import ModelRangeWarning
@@ -70,7 +70,7 @@ def main() -> int:
     times = []
     for _ in range(20):
         t0 = time.perf_counter()
-        outputs.evaluate_layout(problem, r.layout, f)
+        evaluate_layout(problem, r.layout, f)
         times.append(time.perf_counter() - t0)
     t_model = statistics.median(times)
     print(f"{eng.version}; problem {problem.name}; mesh {args.mesh}; {f.size} frequencies")

@@ -20,15 +20,18 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from refine import __version__, study
+from refine.circuit.response import evaluate_electrical, evaluate_layout, verification_grid
 from refine.optimise import seed as job
 from refine.optimise.minimax import Stopping, Strategy
 from refine.optimise.refiner import RefineResult, Status, refine_problem
-from refine.optimise.refiner import fab_violations as refiner_fab_violations
+from refine.optimise.space import fab_violations
 from refine.outputs import export, plot
 from refine.outputs import files as outputs
+from refine.spec.coupling import Coupling
 from refine.spec.mask import MaskResult
 from refine.spec.problem import ProblemError, load_problem
 from refine.synthesis import inverters as synthesis
+from refine.tolerance import centring
 from refine.tolerance import montecarlo as tolerance
 
 
@@ -75,7 +78,7 @@ def layout_table(seed: job.Seed) -> str:
     if lay.taps is not None:
         rows.append(["tap in", f"{lay.taps[0] * 1e3:.4f} mm from the open end", "", "", "", ""])
     # gap j sits before resonator j + 1 (gap coupling has gaps 0..n, a tapped feed 1..n-1)
-    for j in range(lay.order + (1 if lay.external == "gap" else 0)):
+    for j in range(lay.order + (1 if lay.external is Coupling.GAP else 0)):
         if j in by_gap:
             g = by_gap[j]
             req = "none works" if g.gap_required is None else f"{g.gap_required * 1e6:.1f}"
@@ -153,7 +156,7 @@ def _print_seed(sd: job.Seed) -> None:
 def _cmd_synth(args: argparse.Namespace) -> int:
     problem = load_problem(args.problem)
     d, choice = job.electrical_design(problem)
-    f = job.verification_grid(problem)
+    f = verification_grid(problem)
     s = synthesis.ideal_response(d, f)
     res = problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
     if args.json:
@@ -232,7 +235,7 @@ def refined_table(r: RefineResult) -> str:
         return _table(["element", "refined", ""], rows)
     lay, seed = r.layout, r.seed_layout
     rows = []
-    first_gap = 0 if lay.external == "gap" else 1
+    first_gap = lay.external.first_gap
     for k, s in enumerate(lay.gaps):
         rows.append([f"gap {k + first_gap}", f"{s * 1e6:.2f} um", f"{seed.gaps[k] * 1e6:.2f} um"])
     for j, (ln, w) in enumerate(zip(lay.lengths, lay.widths, strict=True)):
@@ -277,7 +280,7 @@ def _progress_printer():
 
 
 def _centre(problem, r: RefineResult, args: argparse.Namespace) -> RefineResult:
-    """Yield-centred refinement after the mask is met (see refine.tolerance.montecarlo.centre_for_yield)."""
+    """Yield-centred refinement after the mask is met (see refine.tolerance.centring.centre_for_yield)."""
     from dataclasses import replace
 
     print()
@@ -293,7 +296,7 @@ def _centre(problem, r: RefineResult, args: argparse.Namespace) -> RefineResult:
         )
         return r
     print("centring for yield ...", flush=True)
-    c = tolerance.centre_for_yield(
+    c = centring.centre_for_yield(
         problem, r.layout, correlated=args.correlated, free_widths=_free_widths(args)
     )
     b, a = c.yield_before, c.yield_after
@@ -305,8 +308,8 @@ def _centre(problem, r: RefineResult, args: argparse.Namespace) -> RefineResult:
     if c.layout is r.layout:
         print("  the centred layout was no better; the refined layout is kept")
         return r
-    f = job.verification_grid(problem)
-    s = outputs.evaluate_layout(problem, c.layout, f)
+    f = verification_grid(problem)
+    s = evaluate_layout(problem, c.layout, f)
     res = problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
     if not res.passed:
         print("  the centred layout misses the mask at nominal; the refined layout is kept")
@@ -459,7 +462,7 @@ def _cmd_yield(args: argparse.Namespace) -> int:
         "meets_mask": res.margins >= 0,
         "feed_width_m": smp.feed,
     }
-    first = 0 if lay.external == "gap" else 1
+    first = lay.external.first_gap
     cols |= {f"gap_{k + first}_m": smp.gaps[:, k] for k in range(smp.gaps.shape[1])}
     cols |= {f"width_{j + 1}_m": smp.widths[:, j] for j in range(smp.widths.shape[1])}
     cols |= {f"length_{j + 1}_m": smp.lengths[:, j] for j in range(smp.lengths.shape[1])}
@@ -515,13 +518,13 @@ def _cmd_study(args: argparse.Namespace) -> int:
 def _cmd_check(args: argparse.Namespace) -> int:
     problem = load_problem(args.problem)
     lay = export.read_layout(args.layout)
-    f = job.verification_grid(problem)
+    f = verification_grid(problem)
     if isinstance(lay, dict):
         if problem.medium != "ideal":
             raise UsageError(
                 f"{args.layout}: an electrical (ideal-medium) layout, but the problem's medium is {problem.medium!r}"
             )
-        s = outputs.evaluate_electrical(
+        s = evaluate_electrical(
             lay["series_capacitances_farad"],
             lay["electrical_lengths_rad_at_f0"],
             float(lay["f0_hz"]),
@@ -533,9 +536,9 @@ def _cmd_check(args: argparse.Namespace) -> int:
             raise UsageError(
                 f"{args.layout}: a physical layout, but the problem's medium is 'ideal'"
             )
-        s = outputs.evaluate_layout(problem, lay, f)
+        s = evaluate_layout(problem, lay, f)
         if problem.fab is not None:
-            for v_ in refiner_fab_violations(problem, lay):
+            for v_ in fab_violations(problem.fab, lay):
                 print(f"fab rule: {v_}")
     res = problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
     print(f"{args.layout} against {problem.name} ({f.size} points, physical model with loss):")

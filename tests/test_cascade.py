@@ -8,7 +8,7 @@ from scipy.constants import c as C0
 from skrf import Frequency
 from skrf.media import DefinedGammaZ0
 
-from refine.circuit import cascade
+from refine.circuit import builder, cascade
 from refine.physics import IdealTEM
 from refine.synthesis import inverters as synthesis
 
@@ -59,11 +59,11 @@ def test_batched_evaluation_equals_loop():
     caps = np.array(d.capacitance) * rng.uniform(0.8, 1.2, (7, 6))
     thetas = np.array(d.theta) * rng.uniform(0.95, 1.05, (7, 5))
     f = np.linspace(1e9, 3e9, 301)
-    batched = cascade.s_parameters(synthesis.ideal_elements(caps, thetas, d.f0, 50.0, f), f, 50.0)
+    batched = cascade.s_parameters(builder.ideal_elements(caps, thetas, d.f0, 50.0, f), f, 50.0)
     assert batched.shape == (7, 301, 2, 2)
     for k in range(7):
         single = cascade.s_parameters(
-            synthesis.ideal_elements(caps[k], thetas[k], d.f0, 50.0, f), f, 50.0
+            builder.ideal_elements(caps[k], thetas[k], d.f0, 50.0, f), f, 50.0
         )
         np.testing.assert_allclose(batched[k], single, rtol=1e-13, atol=1e-15)
 
@@ -194,7 +194,7 @@ def test_gradient_with_respect_to_gamma_and_zc():
 def test_gradient_values_equal_plain_evaluation():
     d = synthesis.design("chebyshev", 4, 2e9, 0.1, 50.0, 0.5)
     f = np.linspace(1.5e9, 2.5e9, 31)
-    els = synthesis.ideal_elements(d.capacitance, d.theta, d.f0, 50.0, f)
+    els = builder.ideal_elements(d.capacitance, d.theta, d.f0, 50.0, f)
     g = cascade.s11_s21_gradient(els, f, 50.0)
     s = cascade.s_parameters(els, f, 50.0)
     np.testing.assert_allclose(g.s11, s[:, 0, 0], rtol=1e-12)
@@ -204,7 +204,7 @@ def test_gradient_values_equal_plain_evaluation():
 def test_element_matrices_chain_equals_engine():
     d = synthesis.design("chebyshev", 3, 2e9, 0.1, 50.0, 0.5)
     f = np.linspace(1.5e9, 2.5e9, 21)
-    els = synthesis.ideal_elements(d.capacitance, d.theta, d.f0, 50.0, f)
+    els = builder.ideal_elements(d.capacitance, d.theta, d.f0, 50.0, f)
     m = np.broadcast_to(np.eye(2, dtype=complex), (21, 2, 2))
     for e in els:
         m = m @ cascade.element_matrices(e, f)

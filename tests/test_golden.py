@@ -64,15 +64,14 @@ STRIP = [p for p in PROBLEMS if refine.load_problem(p).medium != "ideal"]
 
 @pytest.mark.parametrize("path", STRIP, ids=lambda p: p.stem)
 def test_batched_and_single_design_paths_match_the_record(path):
-    from refine.circuit.builder import layout_response
     from refine.circuit.model import strip_model_for
-    from refine.optimise import seed as job
+    from refine.circuit.response import layout_response, medium_for
 
     problem = refine.load_problem(path)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ModelRangeWarning)
         lay = refine.seed(problem).realisation.layout
-        medium = job.medium_for(problem)
+        medium = medium_for(problem)
         m = problem.mask
         f = np.linspace(m.passband_start * 0.9, m.passband_stop * 1.1, 11)
         batched = layout_response(lay, medium, problem.gap_model, f, problem.z_ref)

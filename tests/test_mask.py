@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from refine.circuit import cascade
+from refine.circuit import builder, cascade
 from refine.spec.mask import Mask, Stopband
 from refine.synthesis import inverters as synthesis
 from refine.synthesis import prototype
@@ -68,12 +68,12 @@ def test_constraint_jacobian_matches_finite_differences(n4):
     th = np.array(n4.theta) * 0.99
 
     def g_of(x):
-        els = synthesis.ideal_elements(x[:5], x[5:], n4.f0, 50.0, f)
+        els = builder.ideal_elements(x[:5], x[5:], n4.f0, 50.0, f)
         t = cascade.s11_s21(els, f, 50.0)
         return m.constraints(f, t.s11, t.s21)[0]
 
     x0 = np.concatenate([caps, th])
-    els = synthesis.ideal_elements(caps, th, n4.f0, 50.0, f)
+    els = builder.ideal_elements(caps, th, n4.f0, 50.0, f)
     gr = cascade.s11_s21_gradient(els, f, 50.0)
     # element order: C, line, C, line, ..., C; d/dθ = d/dlength · dlength/dθ
     dl_dth = 1.0 / (2 * np.pi * n4.f0 / 299792458.0)

@@ -62,7 +62,8 @@ def test_touchstone_reads_back_in_scikit_rf_identically(alumina_out):
         warnings.simplefilter("ignore")
         ntw = Network(str(alumina_out / "response.s2p"))
     lay = export.read_layout(alumina_out / "layout.json")
-    from refine.outputs.files import evaluate_layout, sweep
+    from refine.circuit.response import evaluate_layout
+    from refine.outputs.files import sweep
     from refine.spec.problem import load_problem
 
     p = load_problem(ALUMINA)

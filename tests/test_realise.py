@@ -8,9 +8,11 @@ import pytest
 from skrf import Frequency
 from skrf.media import DefinedGammaZ0, MLine
 
-from refine.circuit import builder as circuit
+from refine.circuit.builder import build
 from refine.circuit.layout import Layout
+from refine.circuit.response import layout_response
 from refine.physics.microstrip import Microstrip
+from refine.physics.strip import gap_capacitances
 from refine.physics.stripline import Stripline
 from refine.physics.substrate import Substrate
 from refine.spec.fab import FabRules
@@ -45,7 +47,7 @@ def test_realised_layout_is_exact_at_f0(medium, model, order):
     w = _quiet()
     try:
         r = realise(d, medium, None, model)
-        s = circuit.layout_response(r.layout, medium, model, np.array([10e9]), 50.0)
+        s = layout_response(r.layout, medium, model, np.array([10e9]), 50.0)
     finally:
         w.__exit__(None, None, None)
     if all(g.gap_required is not None for g in r.gaps):
@@ -115,8 +117,8 @@ def test_layout_circuit_equals_scikit_rf_chain():
     med = Microstrip(ALUMINA, loss=False)
     w = _quiet()
     try:
-        ours = circuit.layout_response(lay, med, "garg-bahl", f, 50.0)
-        caps = [circuit.gap_capacitances(med, "garg-bahl", 0.6e-3, 0.6e-3, s) for s in lay.gaps]
+        ours = layout_response(lay, med, "garg-bahl", f, 50.0)
+        caps = [gap_capacitances(med, "garg-bahl", 0.6e-3, 0.6e-3, s) for s in lay.gaps]
     finally:
         w.__exit__(None, None, None)
     freq = Frequency.from_f(f, unit="Hz")
@@ -162,13 +164,13 @@ def test_batched_layouts_equal_single():
         from refine.circuit import cascade
 
         batch = cascade.s_parameters(
-            circuit.filter_elements(med, "garg-bahl", feed, widths, gaps, lengths, f), f, 50.0
+            build("gap", med, "garg-bahl", feed, widths, gaps, lengths, None, f).elements, f, 50.0
         )
         for k in range(4):
             one = cascade.s_parameters(
-                circuit.filter_elements(
-                    med, "garg-bahl", feed[k], widths[k], gaps[k], lengths[k], f
-                ),
+                build(
+                    "gap", med, "garg-bahl", feed[k], widths[k], gaps[k], lengths[k], None, f
+                ).elements,
                 f,
                 50.0,
             )
@@ -183,7 +185,7 @@ def test_lossy_layout_is_passive_and_reciprocal():
     f = np.linspace(1e9, 15e9, 301)
     w = _quiet()
     try:
-        s = circuit.layout_response(lay, med, "garg-bahl", f, 50.0)
+        s = layout_response(lay, med, "garg-bahl", f, 50.0)
     finally:
         w.__exit__(None, None, None)
     np.testing.assert_allclose(s[:, 0, 1], s[:, 1, 0], rtol=1e-12)

@@ -15,16 +15,11 @@ import pytest
 from conftest import PROBLEMS, expected_outcome, refined
 
 from refine.circuit.model import IdealFilterModel, StripFilterModel
+from refine.circuit.response import verification_grid
 from refine.optimise import seed as job
-from refine.optimise.minimax import (
-    DesignSpace,
-    Stopping,
-    Strategy,
-    Variable,
-    _run_nlopt,
-    optimiser_grid,
-)
+from refine.optimise.minimax import Stopping, Strategy, minimax, optimiser_grid
 from refine.optimise.refiner import Status, refine_problem
+from refine.optimise.space import DesignSpace, Variable
 from refine.physics.microstrip import Microstrip
 from refine.physics.stripline import Stripline
 from refine.physics.substrate import Substrate
@@ -151,7 +146,7 @@ def test_stripline_and_ideal_gradients_match_finite_differences():
 
 def test_met_is_decided_on_a_denser_grid_with_exact_edges():
     p = load_problem(next(q for q in PROBLEMS if q.stem == "microstrip-x-band-alumina-n3"))
-    dense = job.verification_grid(p)
+    dense = verification_grid(p)
     coarse = optimiser_grid(p.mask, 3)
     assert dense.size > 3 * coarse.size
     for edge in (
@@ -224,7 +219,7 @@ def test_adapter_clips_start_into_bounds_and_returns_best():
         return r.s11, r.s21, r.ds11, r.ds21
 
     z0 = sp.to_free(np.array([v.value for v in vs])) + 5.0  # far outside every upper bound
-    rec = _run_nlopt(Strategy.GRADIENT, sp, p.mask, f, fn, z0, Stopping(200))
+    rec = minimax(sp, p.mask, f, fn, z0, Stopping(200), polish=False)
     assert np.all(rec.z <= sp.upper + 1e-12) and np.all(rec.z >= sp.lower - 1e-12)
     assert rec.evaluations >= 1 and np.isfinite(rec.worst_margin)
     assert rec.worst_margin == pytest.approx(max(rec.history), abs=1e-9)

@@ -1,19 +1,36 @@
-"""Layout + medium -> cascade elements -> S-parameters.
+"""The one element builder: copper dimensions + medium + gap model -> cascade elements.
+
+Every circuit refine evaluates is built here: the seed's check, the refiner's model and its
+gradient, Monte Carlo yield, yield centring, gap voltages, the report, the gap-model spread and
+the EM-corrected model. A new element kind is added in this one place.
 
 A gap-coupled filter is the chain::
 
     gap_0 · line_1 · gap_1 · line_2 · ... · line_n · gap_n
 
 with the port reference planes at the outer edges of the end gaps (the feed lines are matched
-to ``z_ref`` and not part of the two-port). Every array argument may carry leading batch axes:
-``widths`` and ``lengths`` are ``(..., n)``, ``gaps`` ``(..., n + 1)``; the elements then
-broadcast against ``(..., nf)`` and one cascade call evaluates the whole batch.
+to ``z_ref`` and not part of the two-port). A tapped filter is::
+
+    stub(t_in + Δl) ‖ line_1(l_1 - t_in) · gap_1 · ... · gap_(n-1) · line_n(l_n - t_out) ‖ stub(t_out + Δl)
+
+the feed joining the first resonator at distance t from its outer open end: seen from the feed
+the resonator is an open stub of length t (plus the open-end extension Δl of
+Kirschning–Jansen–Koster 1981) in shunt, followed by the rest of the resonator to the first
+gap; mirrored at the output (for one resonator, both taps on the same line). The T-junction's
+own parasitics are omitted (stated in the report); the port reference plane is at the tap.
+A gap model referenced to the gap centre (stripline) gets a half-gap line on each side.
+
+Shapes: ``widths`` and ``lengths`` are ``(..., n)``, ``gaps`` ``(..., n_gaps)``, ``taps``
+``(..., 2)``, ``feed`` ``(...)``; the elements broadcast against ``(..., nf)`` and one cascade
+call evaluates the whole batch. With ``track`` the builder also returns an :class:`ElementMap`:
+which dimension moves which element, for the exact gradient of :mod:`refine.circuit.model`.
 """
 
 from __future__ import annotations
 
+import enum
 from collections.abc import Sequence
-from typing import Union
+from dataclasses import dataclass, field
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -21,208 +38,322 @@ from numpy.typing import ArrayLike, NDArray
 from refine import _validate as v
 from refine.circuit import cascade
 from refine.circuit.layout import Layout
-from refine.physics import discontinuities
-from refine.physics.microstrip import Microstrip
-from refine.physics.stripline import Stripline
-
-StripMedium = Union[Microstrip, Stripline]  # noqa: UP007 (a runtime alias)
-
-GAP_MODELS: dict[str, tuple[str, ...]] = {
-    "microstrip": ("garg-bahl", "kirschning-jansen-koster"),
-    "stripline": ("altschuler-oliner",),
-}
-
-
-def medium_kind(medium: StripMedium) -> str:
-    if isinstance(medium, Microstrip):
-        return "microstrip"
-    if isinstance(medium, Stripline):
-        return "stripline"
-    raise ValueError(f"medium must be a Microstrip or Stripline, got {type(medium).__name__}")
+from refine.physics.ideal import IdealTEM
+from refine.physics.strip import (
+    CENTRE_REFERENCED,
+    StripMedium,
+    check_gap_model,
+    gap_capacitances,
+    open_end_extensions,
+)
+from refine.spec.coupling import Coupling
 
 
-def check_gap_model(medium: StripMedium, model: str) -> str:
-    kind = medium_kind(medium)
-    return v.one_of(f"gap model for {kind}", model, GAP_MODELS[kind])
+class Dim(enum.Enum):
+    """The kinds of copper dimension a layout has."""
+
+    GAP = "gap"
+    LENGTH = "length"
+    TAP = "tap"
+    WIDTH = "width"
 
 
-def gap_capacitances(
-    medium: StripMedium, model: str, w_in: ArrayLike, w_out: ArrayLike, s: ArrayLike
-) -> discontinuities.GapCapacitances:
-    """π-network capacitances of a gap of width ``s`` between strips ``w_in`` and ``w_out``.
+@dataclass(frozen=True)
+class Adjustments:
+    """Corrections applied to the circuit model on top of its closed forms: the preassigned
+    parameters of implicit space mapping (:mod:`refine.fullwave.spacemap`), and the place a
+    calibration enters.
 
-    Garg–Bahl is a symmetric-gap model: for unequal widths its series capacitance is taken at
-    the geometric-mean width and each shunt capacitance at its own side's width. For stripline
-    the reference planes are at the gap centre (see :func:`gap_elements`).
+    c_series_factors : multiply each gap's series capacitance (per gap position).
+    gap_offsets : metres taken off each drawn gap before the gap model sees it; the effective
+        gap never falls below a tenth of the drawn one.
+    length_offsets : metres added to each resonator's length; tap_offsets : to each tap.
+    loss_factor : multiplies every line's attenuation constant.
     """
-    sub = medium.substrate
-    if model == "garg-bahl":
-        w_in = np.asarray(w_in, float)
-        w_out = np.asarray(w_out, float)
-        mid = discontinuities.garg_bahl_gap(np.sqrt(w_in * w_out), s, sub.height, sub.eps_r)
-        if np.array_equal(w_in, w_out):
-            return mid
-        c_in = discontinuities.garg_bahl_gap(w_in, s, sub.height, sub.eps_r).c_shunt_in
-        c_out = discontinuities.garg_bahl_gap(w_out, s, sub.height, sub.eps_r).c_shunt_out
-        return discontinuities.GapCapacitances(mid.c_series, c_in, c_out)
-    if model == "kirschning-jansen-koster":
-        return discontinuities.kirschning_jansen_koster_gap(w_in, w_out, s, sub.height, sub.eps_r)
-    if model == "altschuler-oliner":
-        w_mean = np.sqrt(np.asarray(w_in, float) * np.asarray(w_out, float))
-        z0 = medium.z0(w_mean)
-        return discontinuities.stripline_gap(s, sub.height, sub.eps_r, z0, w_mean)
-    raise ValueError(f"gap model = {model!r} is not one of the allowed values {GAP_MODELS}")
+
+    c_series_factors: tuple[float, ...] | None = None
+    gap_offsets: tuple[float, ...] | None = None
+    length_offsets: tuple[float, ...] | None = None
+    tap_offsets: tuple[float, float] | None = None
+    loss_factor: float = 1.0
+
+
+@dataclass(frozen=True)
+class GapSlot:
+    """One series gap of a tracked build: its π-network element, its position in the gap list,
+    the strip widths on its two sides, the resonators there (None for a feed), the gap width the
+    model saw and d(that width)/d(drawn gap), and the factor on its series capacitance."""
+
+    element: int
+    position: int
+    w_in: float
+    w_out: float
+    resonators: tuple[int | None, int | None]
+    s_model: float
+    ds_model: float
+    c_series_factor: float
+
+
+@dataclass
+class ElementMap:
+    """Which dimension moves which element of a tracked build.
+
+    lengths : per element, ``(kind, index, d length / d dimension)`` for each dimension its
+        physical length follows.
+    gaps : one :class:`GapSlot` per series gap.
+    lines : ``(element, resonator)`` for every line or stub whose γ and z_c are those of the
+        resonator's width.
+    open_ends : ``(element, resonator)`` for every stub whose length includes the resonator's
+        open-end extension.
+    """
+
+    lengths: list[list[tuple[Dim, int, float]]] = field(default_factory=list)
+    gaps: list[GapSlot] = field(default_factory=list)
+    lines: list[tuple[int, int]] = field(default_factory=list)
+    open_ends: list[tuple[int, int]] = field(default_factory=list)
+
+
+@dataclass
+class Built:
+    """Elements of a circuit and, for a tracked build, its :class:`ElementMap`."""
+
+    elements: list[cascade.Element]
+    map: ElementMap | None = None
+
+
+def line_properties(
+    medium: StripMedium, width: ArrayLike, f: NDArray, loss_factor: float = 1.0
+) -> tuple[NDArray, NDArray]:
+    """γ(f), z_c(f) of a strip of ``width``, the attenuation scaled by ``loss_factor``."""
+    gamma, z_c = medium.line_properties(width, f)
+    if loss_factor != 1.0:
+        gamma = loss_factor * gamma.real + 1j * gamma.imag
+    return gamma, z_c
+
+
+def build(
+    coupling: Coupling | str,
+    medium: StripMedium,
+    gap_model: str,
+    feed: ArrayLike,
+    widths: ArrayLike,
+    gaps: ArrayLike,
+    lengths: ArrayLike,
+    taps: ArrayLike | None,
+    f: ArrayLike,
+    adjust: Adjustments | None = None,
+    track: bool = False,
+    validate: bool = True,
+) -> Built:
+    """The cascade elements of an end-coupled filter (see the module docstring for the circuit
+    and the shapes). ``track`` (one design only) also returns the :class:`ElementMap`;
+    ``validate`` False skips the argument checks for a caller that made them once."""
+    coupling = Coupling(coupling)
+    f = v.frequencies("f", f) if validate else np.asarray(f, float)
+    check_gap_model(medium, gap_model)
+    widths = v.positive_array("widths", widths) if validate else np.asarray(widths, float)
+    gaps = v.positive_array("gaps", gaps) if validate else np.asarray(gaps, float)
+    lengths = v.positive_array("lengths", lengths) if validate else np.asarray(lengths, float)
+    n = widths.shape[-1]
+    n_gaps = coupling.n_gaps(n)
+    if lengths.shape[-1] != n or gaps.shape[-1] != n_gaps:
+        raise ValueError(
+            f"a {coupling}-coupled filter with {n} resonators needs {n} lengths and {n_gaps} "
+            f"gaps, got {lengths.shape[-1]} and {gaps.shape[-1]}"
+        )
+    if coupling is Coupling.TAP:
+        if taps is None:
+            raise ValueError("a tapped filter needs two tap positions")
+        taps = v.positive_array("taps", taps) if validate else np.asarray(taps, float)
+        if taps.shape[-1] != 2:
+            raise ValueError(f"a tapped filter needs 2 taps, got {taps.shape[-1]}")
+    if track and widths.ndim != 1:
+        raise ValueError("a tracked build is for one design: widths must be 1-D")
+    adj = adjust or Adjustments()
+    if adj.length_offsets is not None:
+        lengths = lengths + np.asarray(adj.length_offsets, float)
+    if taps is not None and adj.tap_offsets is not None:
+        taps = taps + np.asarray(adj.tap_offsets, float)
+    s_model, ds_model = gaps, None
+    if adj.gap_offsets is not None:
+        shrunk = gaps - np.asarray(adj.gap_offsets, float)
+        floor = 0.1 * gaps
+        s_model = np.maximum(shrunk, floor)
+        ds_model = np.where(shrunk > floor, 1.0, 0.1)
+    kl = adj.loss_factor
+    # one design: scalars (the numbers of the optimiser's inner loop); a batch: (..., 1) columns
+    batched = widths.ndim > 1
+
+    def pick(x: NDArray, j: int) -> NDArray:
+        return x[..., j, None] if batched else x[j]
+
+    w = [pick(widths, j) for j in range(n)]
+    props = _line_properties_shared(medium, w, f, kl)
+    els: list[cascade.Element] = []
+    emap = ElementMap() if track else None
+
+    def add(e: cascade.Element, moves: list[tuple[Dim, int, float]], line_of: int | None) -> None:
+        els.append(e)
+        if emap is not None:
+            emap.lengths.append(moves)
+            if line_of is not None:
+                emap.lines.append((len(els) - 1, line_of))
+
+    def add_gap(pos: int, w_in: NDArray, w_out: NDArray, sides: tuple[int | None, int | None]):
+        s = pick(s_model, pos)
+        ds = 1.0 if ds_model is None else pick(ds_model, pos)
+        factor = 1.0 if adj.c_series_factors is None else adj.c_series_factors[pos]
+        line_in = props[sides[0]] if sides[0] is not None else None
+        line_out = props[sides[1]] if sides[1] is not None else None
+        parts = gap_elements(medium, gap_model, w_in, w_out, s, f, line_in, line_out, kl, factor)
+        if len(parts) == 3:  # half-gap lines on each side of the π-network
+            add(parts[0], [(Dim.GAP, pos, 0.5 * ds)], sides[0])
+        add(parts[len(parts) // 2], [], None)
+        if emap is not None:
+            emap.gaps.append(
+                GapSlot(
+                    len(els) - 1,
+                    pos,
+                    float(np.asarray(w_in).ravel()[0]),
+                    float(np.asarray(w_out).ravel()[0]),
+                    sides,
+                    float(np.asarray(s).ravel()[0]),
+                    float(np.asarray(ds).ravel()[0]),
+                    factor,
+                )
+            )
+        if len(parts) == 3:
+            add(parts[2], [(Dim.GAP, pos, 0.5 * ds)], sides[1])
+
+    def add_line(j: int, length: NDArray, moves: list[tuple[Dim, int, float]]) -> None:
+        add(cascade.Line(props[j][0], props[j][1], length), moves, j)
+
+    def add_stub(j: int, t: NDArray, i: int) -> None:
+        dl = open_end_extensions(medium, w[j])
+        add(cascade.ShuntOpenStub(props[j][0], props[j][1], t + dl), [(Dim.TAP, i, 1.0)], j)
+        if emap is not None:
+            emap.open_ends.append((len(els) - 1, j))
+
+    if coupling is Coupling.GAP:
+        feed_a = np.asarray(v.positive_array("feed_width", feed) if validate else feed, float)
+        feed_w = feed_a[..., None] if batched else float(feed_a)
+        sides_w = [feed_w, *w, feed_w]
+        for k in range(n + 1):
+            add_gap(k, sides_w[k], sides_w[k + 1], coupling.sides(k, n))
+            if k < n:
+                add_line(k, pick(lengths, k), [(Dim.LENGTH, k, 1.0)])
+    else:
+        assert taps is not None
+        t_in, t_out = pick(taps, 0), pick(taps, 1)
+        add_stub(0, t_in, 0)
+        for j in range(n):
+            ln = pick(lengths, j)
+            moves = [(Dim.LENGTH, j, 1.0)]
+            if j == 0:
+                ln = ln - t_in
+                moves.append((Dim.TAP, 0, -1.0))
+            if j == n - 1:
+                ln = ln - t_out
+                moves.append((Dim.TAP, 1, -1.0))
+            add_line(j, ln, moves)
+            if j < n - 1:
+                add_gap(j, w[j], w[j + 1], coupling.sides(j, n))
+        add_stub(n - 1, t_out, 1)
+    return Built(els, emap)
 
 
 def gap_elements(
     medium: StripMedium,
-    model: str,
+    gap_model: str,
     w_in: ArrayLike,
     w_out: ArrayLike,
     s: ArrayLike,
     f: NDArray,
     line_in: tuple[NDArray, NDArray] | None = None,
     line_out: tuple[NDArray, NDArray] | None = None,
+    loss_factor: float = 1.0,
+    c_series_factor: float = 1.0,
 ) -> list[cascade.Element]:
-    """Cascade elements of one series gap (reference planes at the two strip ends)."""
-    caps = gap_capacitances(medium, model, w_in, w_out, s)
-    pi = cascade.PiNetwork(caps.c_series, caps.c_shunt_in, caps.c_shunt_out)
-    if model != "altschuler-oliner":
+    """Cascade elements of one series gap, reference planes at the two strip ends: its
+    π-network, between half-gap lines for a model referenced to the gap centre. ``line_in``,
+    ``line_out`` are the strips' (γ, z_c) when the caller has them already."""
+    caps = gap_capacitances(medium, gap_model, w_in, w_out, s)
+    c_series = caps.c_series
+    if c_series_factor != 1.0:
+        c_series = np.asarray(c_series) * c_series_factor
+    pi = cascade.PiNetwork(c_series, caps.c_shunt_in, caps.c_shunt_out)
+    if gap_model not in CENTRE_REFERENCED:
         return [pi]
-    # centre-referenced model: add the half-gap line on each side to move the planes to the ends
-    g_in, z_in = line_in if line_in is not None else medium.line_properties(w_in, f)
-    g_out, z_out = line_out if line_out is not None else medium.line_properties(w_out, f)
+    g_in, z_in = line_in if line_in is not None else line_properties(medium, w_in, f, loss_factor)
+    g_out, z_out = (
+        line_out if line_out is not None else line_properties(medium, w_out, f, loss_factor)
+    )
     half = 0.5 * np.asarray(s)
     return [cascade.Line(g_in, z_in, half), pi, cascade.Line(g_out, z_out, half)]
 
 
-def filter_elements(
-    medium: StripMedium,
-    model: str,
-    feed_width: ArrayLike,
-    widths: ArrayLike,
-    gaps: ArrayLike,
-    lengths: ArrayLike,
-    f: ArrayLike,
-) -> list[cascade.Element]:
-    """Elements of a gap-coupled filter (see the module docstring for shapes)."""
-    check_gap_model(medium, model)
-    f = v.frequencies("f", f)
-    widths = v.positive_array("widths", widths)
-    gaps = v.positive_array("gaps", gaps)
-    lengths = v.positive_array("lengths", lengths)
-    n = widths.shape[-1]
-    if lengths.shape[-1] != n or gaps.shape[-1] != n + 1:
-        raise ValueError(
-            f"a gap-coupled filter with {n} resonators needs {n} lengths and {n + 1} gaps, got "
-            f"{lengths.shape[-1]} and {gaps.shape[-1]}"
-        )
-    feed = np.asarray(v.positive_array("feed_width", feed_width))[..., None]
-    w = [widths[..., j, None] for j in range(n)]
-    props = _line_properties_shared(medium, w, f)
-    out: list[cascade.Element] = []
-    sides = [feed, *w, feed]
-    for k in range(n + 1):
-        line_in = props[k - 1] if k > 0 else None
-        line_out = props[k] if k < n else None
-        out += gap_elements(
-            medium, model, sides[k], sides[k + 1], gaps[..., k, None], f, line_in, line_out
-        )
-        if k < n:
-            out.append(cascade.Line(props[k][0], props[k][1], lengths[..., k, None]))
-    return out
-
-
 def _line_properties_shared(
-    medium: StripMedium, widths: Sequence[NDArray], f: NDArray
+    medium: StripMedium, widths: Sequence[NDArray | np.floating], f: NDArray, loss_factor: float
 ) -> list[tuple[NDArray, NDArray]]:
     """Line properties per resonator, computed once per distinct width (the common case is one
     width for every resonator of an unbatched layout)."""
     out: list[tuple[NDArray, NDArray]] = []
     cache: dict[float, tuple[NDArray, NDArray]] = {}
     for w in widths:
-        if w.size == 1:
-            key = float(w.ravel()[0])
+        if np.size(w) == 1:
+            key = float(np.asarray(w).ravel()[0])
             if key not in cache:
-                cache[key] = medium.line_properties(w, f)
+                cache[key] = line_properties(medium, key, f, loss_factor)
             out.append(cache[key])
         else:
-            out.append(medium.line_properties(w, f))
+            out.append(line_properties(medium, w, f, loss_factor))
     return out
 
 
 def layout_elements(
-    layout: Layout, medium: StripMedium, model: str, f: ArrayLike
-) -> list[cascade.Element]:
-    """Elements of a :class:`Layout`, gap or tapped coupling."""
-    if layout.external == "tap":
-        return tapped_filter_elements(
-            medium, model, layout.widths, layout.gaps, layout.lengths, layout.taps, f
-        )
-    return filter_elements(
-        medium, model, layout.feed_width, layout.widths, layout.gaps, layout.lengths, f
-    )
-
-
-def layout_response(
-    layout: Layout, medium: StripMedium, model: str, f: ArrayLike, z_ref: float
-) -> NDArray[np.complex128]:
-    """S-matrix ``(nf, 2, 2)`` of a layout on a medium with a gap model."""
-    f = v.frequencies("f", f)
-    return cascade.s_parameters(layout_elements(layout, medium, model, f), f, z_ref)
-
-
-def model_spread(
-    layout: Layout, medium: StripMedium, f: ArrayLike, z_ref: float
-) -> dict[str, NDArray[np.complex128]]:
-    """The same layout's S-matrix under every gap model available for its medium."""
-    return {
-        m: layout_response(layout, medium, m, f, z_ref) for m in GAP_MODELS[medium_kind(medium)]
-    }
-
-
-def tapped_filter_elements(
+    layout: Layout,
     medium: StripMedium,
-    model: str,
-    widths: ArrayLike,
-    gaps: ArrayLike,
-    lengths: ArrayLike,
-    taps: ArrayLike,
+    gap_model: str,
     f: ArrayLike,
+    adjust: Adjustments | None = None,
 ) -> list[cascade.Element]:
-    """Elements of a tapped-feed filter (see :mod:`refine.circuit.model` for the circuit), batched like
-    :func:`filter_elements`: ``widths``, ``lengths`` ``(..., n)``, ``gaps`` ``(..., n - 1)``,
-    ``taps`` ``(..., 2)``."""
-    from refine.circuit.model import open_end_extensions
+    """Elements of a :class:`Layout`."""
+    return build(
+        layout.external,
+        medium,
+        gap_model,
+        layout.feed_width,
+        layout.widths,
+        layout.gaps,
+        layout.lengths,
+        layout.taps,
+        f,
+        adjust,
+    ).elements
 
-    check_gap_model(medium, model)
-    f = v.frequencies("f", f)
-    widths = v.positive_array("widths", widths)
-    gaps = v.positive_array("gaps", gaps)
-    lengths = v.positive_array("lengths", lengths)
-    taps = v.positive_array("taps", taps)
-    n = widths.shape[-1]
-    if lengths.shape[-1] != n or gaps.shape[-1] != n - 1 or taps.shape[-1] != 2:
+
+def ideal_elements(
+    capacitance: ArrayLike, theta: ArrayLike, f0: float, z_c: float, f: ArrayLike
+) -> list[cascade.Element]:
+    """Ideal-element chain C01 – line θ1 – C12 – ... – line θn – Cn,n+1 on an :class:`IdealTEM`.
+
+    ``capacitance`` is ``(..., n+1)`` and ``theta`` ``(..., n)`` (leading axes are designs); the
+    returned elements broadcast against ``(..., nf)``.
+    """
+    cap = v.positive_array("capacitance", capacitance)
+    th = v.positive_array("theta", theta)
+    if cap.shape[-1] != th.shape[-1] + 1:
         raise ValueError(
-            f"a tapped filter with {n} resonators needs {n} lengths, {n - 1} gaps and 2 taps, got "
-            f"{lengths.shape[-1]}, {gaps.shape[-1]} and {taps.shape[-1]}"
+            f"capacitance must have one more entry than theta on the last axis, got "
+            f"{cap.shape[-1]} and {th.shape[-1]}"
         )
-    w = [widths[..., j, None] for j in range(n)]
-    props = _line_properties_shared(medium, w, f)
-    dl_in = open_end_extensions(medium, w[0])
-    dl_out = open_end_extensions(medium, w[-1])
-    t_in, t_out = taps[..., 0, None], taps[..., 1, None]
-    out: list[cascade.Element] = [cascade.ShuntOpenStub(props[0][0], props[0][1], t_in + dl_in)]
-    for j in range(n):
-        ln = lengths[..., j, None]
-        if j == 0:
-            ln = ln - t_in
-        if j == n - 1:
-            ln = ln - t_out
-        out.append(cascade.Line(props[j][0], props[j][1], ln))
-        if j < n - 1:
-            out += gap_elements(
-                medium, model, w[j], w[j + 1], gaps[..., j, None], f, props[j], props[j + 1]
-            )
-    out.append(cascade.ShuntOpenStub(props[-1][0], props[-1][1], t_out + dl_out))
+    medium = IdealTEM(z_c)
+    gamma, zc = medium.line_properties(f)
+    lengths = medium.length_for_angle(th, f0)
+    out: list[cascade.Element] = []
+    n = th.shape[-1]
+    for i in range(n):
+        out.append(cascade.SeriesCapacitor(cap[..., i, None]))
+        out.append(cascade.Line(gamma, zc, lengths[..., i, None]))
+    out.append(cascade.SeriesCapacitor(cap[..., n, None]))
     return out

@@ -2,17 +2,19 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 from refine import _validate as v
+from refine.spec.coupling import Coupling
 
 
 @dataclass(frozen=True)
 class Layout:
     """Copper of an end-coupled half-wave filter, input to output.
 
-    external : "gap" (feed coupled through an end gap) or "tap" (feed joined to the end
-        resonators at a tap point).
+    external : :class:`Coupling` ``GAP`` (feed coupled through an end gap) or ``TAP`` (feed
+        joined to the end resonators at a tap point); the words "gap" and "tap" are accepted.
     feed_width : width of the input and output feed lines.
     widths : width of each of the n resonators.
     gaps : every series gap in order: n + 1 of them for gap coupling, n - 1 for tap coupling.
@@ -21,7 +23,7 @@ class Layout:
         resonator to the tap's centre line; None for gap coupling.
     """
 
-    external: str
+    external: Coupling
     feed_width: float
     widths: tuple[float, ...]
     gaps: tuple[float, ...]
@@ -29,7 +31,8 @@ class Layout:
     taps: tuple[float, float] | None = None
 
     def __post_init__(self) -> None:
-        v.one_of("layout.external", self.external, ("gap", "tap"))
+        v.one_of("layout.external", self.external, tuple(c.value for c in Coupling))
+        object.__setattr__(self, "external", Coupling(self.external))
         v.positive("layout.feed_width", self.feed_width)
         for name in ("widths", "gaps", "lengths"):
             vals = tuple(float(x) for x in getattr(self, name))
@@ -41,13 +44,13 @@ class Layout:
             raise ValueError(
                 f"layout needs one length per resonator: {n} widths and {len(self.lengths)} lengths"
             )
-        want = n + 1 if self.external == "gap" else n - 1
+        want = self.external.n_gaps(n)
         if len(self.gaps) != want:
             raise ValueError(
                 f"layout with {self.external} coupling and {n} resonators needs {want} gaps, "
                 f"got {len(self.gaps)}"
             )
-        if self.external == "tap":
+        if self.external is Coupling.TAP:
             if self.taps is None or len(self.taps) != 2:
                 raise ValueError("layout.taps must give two tap positions for tap coupling")
             taps = (float(self.taps[0]), float(self.taps[1]))
@@ -55,6 +58,12 @@ class Layout:
                 zip(taps, (self.lengths[0], self.lengths[-1]), strict=True)
             ):
                 v.real_in_range(f"layout.taps[{i}]", t, 0.0, ln, lo_open=True, hi_open=True)
+            if n == 1 and taps[0] + taps[1] >= self.lengths[0]:
+                raise ValueError(
+                    f"layout.taps = ({taps[0]:g}, {taps[1]:g}) m: on a single resonator of length "
+                    f"{self.lengths[0]:g} m the two taps must leave line between them "
+                    "(taps[0] + taps[1] < lengths[0])"
+                )
             object.__setattr__(self, "taps", taps)
         elif self.taps is not None:
             raise ValueError("layout.taps must be None for gap coupling")
@@ -62,6 +71,24 @@ class Layout:
     @property
     def order(self) -> int:
         return len(self.widths)
+
+    @property
+    def is_mirror(self) -> bool:
+        """Whether the layout is its own mirror image (widths, gaps, lengths, taps)."""
+
+        def same(a: tuple[float, ...], b: tuple[float, ...]) -> bool:
+            return all(
+                math.isclose(x, y, rel_tol=1e-12, abs_tol=1e-12) for x, y in zip(a, b, strict=True)
+            )
+
+        sym = (
+            same(self.widths, self.widths[::-1])
+            and same(self.gaps, self.gaps[::-1])
+            and same(self.lengths, self.lengths[::-1])
+        )
+        if self.taps is not None:
+            sym = sym and math.isclose(self.taps[0], self.taps[1], rel_tol=1e-12)
+        return sym
 
     @property
     def total_length(self) -> float:

@@ -30,6 +30,7 @@ from refine.circuit.layout import Layout
 from refine.fullwave import mesh as meshing
 from refine.outputs.export import Strip, copper
 from refine.physics.substrate import Substrate
+from refine.spec.coupling import Coupling
 
 PML_CELLS = 8
 FEED_SHIFT_CELLS = 10  # launch past the absorbing layer (PML_CELLS) with two cells to spare
@@ -125,28 +126,12 @@ def reference_distance(substrate: Substrate, feed_width: float) -> float:
     return max(4.0 * substrate.height, 3.0 * feed_width)
 
 
-def is_mirror(layout: Layout) -> bool:
-    def same(a, b):
-        return all(
-            math.isclose(x, y, rel_tol=1e-12, abs_tol=1e-12) for x, y in zip(a, b, strict=True)
-        )
-
-    sym = (
-        same(layout.widths, layout.widths[::-1])
-        and same(layout.gaps, layout.gaps[::-1])
-        and same(layout.lengths, layout.lengths[::-1])
-    )
-    if layout.external == "tap":
-        sym = sym and math.isclose(layout.taps[0], layout.taps[1], rel_tol=1e-12)
-    return sym
-
-
 def layout_structure(layout: Layout, substrate: Substrate, length: float) -> Structure:
     """The field model's copper for a layout, feeds ``length`` long (see :func:`feed_length`)."""
     v.positive("feed length", length)
     strips = copper(layout, feed_length=length)
     wf = layout.feed_width
-    if layout.external == "gap":
+    if layout.external is Coupling.GAP:
         fin = next(s for s in strips if s.name == "feed in")
         fout = next(s for s in strips if s.name == "feed out")
         feeds = (
@@ -156,7 +141,7 @@ def layout_structure(layout: Layout, substrate: Substrate, length: float) -> Str
         res = [s for s in strips if s.name.startswith("resonator")]
         edges = [fin.x1, *[e for r in res for e in (r.x0, r.x1)], fout.x0]
         openings = tuple(("x", a, b) for a, b in zip(edges[0::2], edges[1::2], strict=True))
-        return Structure(tuple(strips), feeds, openings, is_mirror(layout))
+        return Structure(tuple(strips), feeds, openings, layout.is_mirror)
     # tapped feeds arrive from -y; bring both to one box edge
     y_edge = min(s.y0 for s in strips)
     out = []
@@ -168,7 +153,7 @@ def layout_structure(layout: Layout, substrate: Substrate, length: float) -> Str
         out.append(s)
     res = [s for s in out if s.name.startswith("resonator")]
     openings = tuple(("x", a.x1, b.x0) for a, b in itertools.pairwise(res))
-    return Structure(tuple(out), (feeds[0], feeds[1]), openings, is_mirror(layout))
+    return Structure(tuple(out), (feeds[0], feeds[1]), openings, layout.is_mirror)
 
 
 def gap_structure(width: float, gap: float, length: float) -> Structure:

@@ -83,7 +83,11 @@ def graded_lines(
 
     lines = [pos[:1]]
     for a, b in itertools.pairwise(pos):
-        x = np.linspace(a, b, 801)
+        # uniform samples plus geometric ones towards both ends, so that the allowed size is
+        # resolved next to a fine fixed point even on a long interval
+        ends = (b - a) * np.geomspace(1e-4, 1.0, 200)
+        x = np.unique(np.concatenate([np.linspace(a, b, 801), a + ends, b - ends]))
+        x = x[(x >= a) & (x <= b)]
         dens = 1.0 / allowed(x)
         cum = np.concatenate(([0.0], np.cumsum(0.5 * (dens[1:] + dens[:-1]) * np.diff(x))))
         n = max(1, int(np.ceil(cum[-1] - 1e-6)))

@@ -38,67 +38,42 @@ from __future__ import annotations
 
 import time
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 from numpy.typing import NDArray
 from scipy.optimize import least_squares
 
+from refine.circuit.builder import Adjustments
 from refine.circuit.layout import Layout
-from refine.fullwave import geometry, verify
+from refine.circuit.model import StripFilterModel, strip_model_for
+from refine.circuit.response import evaluate_layout, strip_medium_for, verification_grid
+from refine.fullwave import verify
+from refine.optimise.minimax import Stopping, minimax
+from refine.optimise.space import DesignSpace, mirror_ties, snap_layout, step_space
 from refine.outputs import export
-from refine.outputs import files as outputs
+from refine.outputs.files import prepare_folder
+from refine.spec.coupling import Coupling
 from refine.spec.problem import Problem
 
 FILES = ("fullwave-layout.json", "fullwave-layout.dxf", "fullwave-rounds.json")
 
 
-def _mirror_groups(
-    fields: list[tuple[str, int]], symmetric: bool
-) -> tuple[tuple[str, tuple[int, ...]], ...]:
-    """(field, tied indices) for each free entry of each (field, length): entry i and its
-    mirror n-1-i share one entry when the layout is symmetric."""
-    groups = []
-    for field, n in fields:
-        for i in range((n + 1) // 2 if symmetric else n):
-            groups.append((field, tuple(sorted({i, n - 1 - i})) if symmetric else (i,)))
-    return tuple(groups)
+def _model(
+    problem: Problem, layout: Layout, f: NDArray, adjust: Adjustments | None = None
+) -> StripFilterModel:
+    """The circuit model the map moves: gaps, lengths and taps free, widths as drawn."""
+    return strip_model_for(
+        strip_medium_for(problem), problem.gap_model, problem.z_ref, layout, f, False, adjust
+    )
 
 
-@dataclass(frozen=True)
-class _Space:
-    """The mapped parameters of a layout: which entries are free and which are mirror copies."""
-
-    layout: Layout
-    groups: tuple[tuple[str, tuple[int, ...]], ...]  # (field, indices tied together)
-
-    @classmethod
-    def of(cls, layout: Layout) -> _Space:
-        fields = [("gaps", len(layout.gaps)), ("lengths", layout.order)]
-        if layout.external == "tap":
-            fields.append(("taps", 2))
-        return cls(layout, _mirror_groups(fields, geometry.is_mirror(layout)))
-
-    def vector(self, lay: Layout) -> NDArray:
-        """Gaps as log, lengths and taps in metres."""
-        out = []
-        for field, idx in self.groups:
-            x = getattr(lay, field)[idx[0]]
-            out.append(np.log(x) if field == "gaps" else x)
-        return np.array(out)
-
-    def layout_at(self, x: NDArray) -> Layout:
-        vals = {f: list(getattr(self.layout, f)) for f in ("gaps", "lengths")}
-        if self.layout.external == "tap":
-            vals["taps"] = list(self.layout.taps)
-        for (field, idx), xi in zip(self.groups, x, strict=True):
-            for i in idx:
-                vals[field][i] = float(np.exp(xi)) if field == "gaps" else float(xi)
-        kw = {"gaps": tuple(vals["gaps"]), "lengths": tuple(vals["lengths"])}
-        if "taps" in vals:
-            kw["taps"] = tuple(vals["taps"])
-        return replace(self.layout, **kw)
+def _mapped(model: StripFilterModel, layout: Layout) -> DesignSpace:
+    """The mapped parameters of a layout in the one design space (gaps, lengths and taps as
+    logarithms, mirror-tied when the layout is symmetric) with wide bounds: the map's own step
+    bounds apply where it moves."""
+    return step_space(model, layout, 3.0, 0.9, None)
 
 
 def _fit_band(problem: Problem, f: NDArray) -> NDArray[np.bool_]:
@@ -111,27 +86,27 @@ def extract(
     problem: Problem, check: verify.FieldCheck, start: Layout, others: tuple[Layout, ...] = ()
 ) -> Layout:
     """The layout whose circuit-model response best matches the field-solver response: a
-    bounded least-squares fit from ``start`` and from each of ``others`` (the best one wins)."""
-    sp = _Space.of(start)
+    bounded least-squares fit from ``start`` and from each of ``others`` (the best one wins),
+    within exp(±1.5) in each gap and ±25 % in each length and tap."""
     sel = _fit_band(problem, check.f)
     f = check.f[sel]
+    model = _model(problem, start, f)
+    sp = step_space(model, start, 1.5, 0.25, None)
     target = np.concatenate([np.abs(check.s_em[sel, 0, 0]), np.abs(check.s_em[sel, 1, 0])])
-    x0 = sp.vector(start)
-    scale = np.where([g == "gaps" for g, _ in sp.groups], 1.0, x0)
 
-    def resid(u: NDArray) -> NDArray:
-        s = outputs.evaluate_layout(problem, sp.layout_at(x0 + u * scale), f)
-        return np.concatenate([np.abs(s[:, 0, 0]), np.abs(s[:, 1, 0])]) - target
+    def resid(z: NDArray) -> NDArray:
+        r = model.response(sp.to_physical(z))
+        return np.concatenate([np.abs(r.s11), np.abs(r.s21)]) - target
 
-    lo = np.where([g == "gaps" for g, _ in sp.groups], -1.5, -0.25)
-    hi = np.where([g == "gaps" for g, _ in sp.groups], 1.5, 0.25)
+    lo, hi = sp.lower + 1e-9, sp.upper - 1e-9
     best = None
     for other in (start, *others):
-        u0 = np.clip((sp.vector(other) - x0) / scale, lo + 1e-9, hi - 1e-9)
-        sol = least_squares(resid, u0, bounds=(lo, hi), x_scale=0.01, diff_step=1e-4)
+        z0 = np.clip(sp.to_free(sp.clip(model.vector(other))), lo, hi)
+        sol = least_squares(resid, z0, bounds=(sp.lower, sp.upper), x_scale=0.01, diff_step=1e-4)
         if best is None or sol.cost < best.cost:
             best = sol
-    return sp.layout_at(x0 + best.x * scale)
+    assert best is not None
+    return model.layout(sp.to_physical(best.x))
 
 
 # --------------------------------------------------------------------------------------------
@@ -159,9 +134,19 @@ class ModelCorrection:
     loss_factor: tuple[float] = (1.0,)
     gap_offsets: tuple[float, ...] | None = None
 
+    def adjustments(self) -> Adjustments:
+        """The correction as the circuit builder's :class:`Adjustments`."""
+        return Adjustments(
+            self.gap_factors,
+            self.gap_offsets,
+            self.length_offsets,
+            self.tap_offsets,
+            self.loss_factor[0],
+        )
+
     @classmethod
     def none(cls, layout: Layout) -> ModelCorrection:
-        tap = layout.external == "tap"
+        tap = layout.external is Coupling.TAP
         return cls(
             (1.0,) * len(layout.gaps),
             (0.0,) * layout.order,
@@ -175,38 +160,7 @@ def corrected_response(
     problem: Problem, layout: Layout, corr: ModelCorrection, f: NDArray
 ) -> NDArray[np.complex128]:
     """S-matrix ``(nf, 2, 2)`` of the circuit model with a correction applied."""
-    import warnings
-
-    from refine import validity
-    from refine.circuit import builder as circuit
-    from refine.circuit import cascade
-    from refine.optimise import seed as job
-
-    lengths = tuple(x + d for x, d in zip(layout.lengths, corr.length_offsets, strict=True))
-    kw: dict = {"lengths": lengths}
-    if layout.taps is not None:
-        kw["taps"] = tuple(t + d for t, d in zip(layout.taps, corr.tap_offsets, strict=True))
-    if corr.gap_offsets is not None:
-        # the effective gap never closes: at least a tenth of the drawn one
-        kw["gaps"] = tuple(
-            max(s - d, 0.1 * s) for s, d in zip(layout.gaps, corr.gap_offsets, strict=True)
-        )
-    lay = replace(layout, **kw)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", validity.ModelRangeWarning)
-        els = circuit.layout_elements(lay, job.medium_for(problem), problem.gap_model, f)
-    out: list = []
-    k = 0
-    kl = corr.loss_factor[0]
-    for e in els:
-        if isinstance(e, cascade.PiNetwork):
-            e = replace(e, c_series=np.asarray(e.c_series) * corr.gap_factors[k])
-            k += 1
-        elif isinstance(e, cascade.Line | cascade.ShuntOpenStub) and kl != 1.0:
-            g = np.asarray(e.gamma)
-            e = replace(e, gamma=kl * g.real + 1j * g.imag)
-        out.append(e)
-    return cascade.s_parameters(out, f, problem.z_ref)
+    return evaluate_layout(problem, layout, f, corr.adjustments())
 
 
 _Q_SCALE = {
@@ -227,14 +181,23 @@ _Q_BOUNDS = {
 
 
 def _q_groups(layout: Layout, with_gap_offsets: bool) -> list[tuple[str, tuple[int, ...]]]:
+    """(field, tied indices) of every extracted correction parameter, mirror copies sharing one
+    entry when the layout is symmetric."""
     fields = [("gap_factors", len(layout.gaps))]
     if with_gap_offsets:
         fields.append(("gap_offsets", len(layout.gaps)))
     fields.append(("length_offsets", layout.order))
-    if layout.external == "tap":
+    if layout.external is Coupling.TAP:
         fields.append(("tap_offsets", 2))
     fields.append(("loss_factor", 1))
-    return list(_mirror_groups(fields, geometry.is_mirror(layout)))
+    groups = []
+    for name, n in fields:
+        ties = dict(mirror_ties(n, 0)) if layout.is_mirror else {}
+        mirrored = set(ties.values())
+        for i in range(n):
+            if i not in mirrored:
+                groups.append((name, (i, ties[i]) if i in ties else (i,)))
+    return groups
 
 
 def _q_to_correction(layout: Layout, groups, q: NDArray) -> ModelCorrection:
@@ -243,7 +206,7 @@ def _q_to_correction(layout: Layout, groups, q: NDArray) -> ModelCorrection:
         f: list(getattr(base, f))
         for f in ("gap_factors", "gap_offsets", "length_offsets", "loss_factor")
     }
-    if layout.external == "tap":
+    if layout.external is Coupling.TAP:
         vals["tap_offsets"] = [0.0, 0.0]
     for (field, idx), qi in zip(groups, q, strict=True):
         val = float(np.exp(qi)) if field in _Q_LOG else float(qi) * _Q_SCALE[field]
@@ -310,67 +273,22 @@ def rerefine(
     step: tuple[float, float] = IMPLICIT_STEP,
 ) -> Layout:
     """The layout with the largest worst margin on the corrected circuit model, from
-    ``layout``: an epigraph minimax (SLSQP, finite-difference gradients) over the gaps (log,
-    at or above the shop's minimum), resonator lengths and taps, mirror-tied; widths fixed.
-    ``step`` bounds the move either way: (log gap, relative length or tap)."""
-    from scipy.optimize import minimize
+    ``layout``: the one optimiser entry with exact gradients, over the gaps (at or above the
+    shop's minimum), resonator lengths and taps, mirror-tied; widths fixed. ``step`` bounds the
+    move either way: (log gap, relative length or tap)."""
+    assert problem.fab is not None
+    f = verification_grid(problem, 201)
+    model = _model(problem, layout, f, corr.adjustments())
+    space = step_space(model, layout, step[0], step[1], problem.fab.min_gap)
 
-    from refine.optimise import seed as job
+    def fn(p: NDArray, grad: bool):
+        r = model.response(p, grad)
+        return r.s11, r.s21, r.ds11, r.ds21
 
-    sp = _Space.of(layout)
-    f = job.verification_grid(problem, 201)
-    x0 = sp.vector(layout)
-    isgap = np.array([g == "gaps" for g, _ in sp.groups])
-    scale = np.where(isgap, 1.0, x0)
-
-    def g_of(u: NDArray) -> NDArray:
-        s = corrected_response(problem, sp.layout_at(x0 + u * scale), corr, f)
-        g, _ = problem.mask.constraints(f, s[:, 0, 0], s[:, 1, 0])
-        return g
-
-    g0 = g_of(np.zeros_like(x0))
-    z0 = np.append(np.zeros_like(x0), g0.max())
-    lo_gap = np.log(problem.fab.min_gap) - x0
-    bounds = [
-        (max(lo, -step[0]), step[0]) if ig else (-step[1], step[1])
-        for ig, lo in zip(isgap, np.where(isgap, lo_gap, -np.inf), strict=True)
-    ] + [(None, None)]
-    res = minimize(
-        lambda z: z[-1],
-        z0,
-        jac=lambda z: np.append(np.zeros(z.size - 1), 1.0),
-        method="SLSQP",
-        bounds=bounds,
-        constraints=[{"type": "ineq", "fun": lambda z: z[-1] - g_of(z[:-1])}],
-        options={"maxiter": 200, "ftol": 1e-6, "eps": 1e-5},
+    rec = minimax(
+        space, problem.mask, f, fn, space.start(), Stopping(200, None, 100.0, 1e-7), polish=False
     )
-    u = res.x[:-1] if g_of(res.x[:-1]).max() <= g0.max() else np.zeros_like(x0)
-    return sp.layout_at(x0 + u * scale)
-
-
-def _fab(problem: Problem, lay: Layout) -> tuple[Layout, list[str]]:
-    """The shop's minimum gap and grid applied to a mapped layout; notes for any clamp."""
-    fab = problem.fab
-    notes = []
-    gaps = list(lay.gaps)
-    for k, g in enumerate(gaps):
-        if g < fab.min_gap:
-            notes.append(
-                f"gap {k + 1}: the map asks for {g * 1e6:.1f} um, held at the shop's minimum "
-                f"{fab.min_gap * 1e6:g} um"
-            )
-            gaps[k] = fab.min_gap
-
-    def snap(x: float) -> float:
-        return round(x / fab.grid) * fab.grid if fab.grid else x
-
-    kw = {
-        "gaps": tuple(max(snap(g), fab.min_gap) for g in gaps),
-        "lengths": tuple(snap(x) for x in lay.lengths),
-    }
-    if lay.taps is not None:
-        kw["taps"] = tuple(snap(x) for x in lay.taps)
-    return replace(lay, **kw), notes
+    return model.layout(space.to_physical(rec.z))
 
 
 @dataclass(frozen=True)
@@ -445,8 +363,11 @@ def correct(
         raise ValueError(f"method = {method!r} is not one of the allowed values {METHODS}")
     t0 = time.perf_counter()
     say = progress or (lambda s: None)
-    sp = _Space.of(layout)
-    x_star = sp.vector(layout)
+    fab = problem.fab
+    assert fab is not None
+    model = _model(problem, layout, verification_grid(problem, 3))
+    sp = _mapped(model, layout)
+    z_star = sp.to_free(model.vector(layout))
     corr: ModelCorrection | None = None
     cur = layout
     layouts, checks, extracted, misfits, notes = [layout], [], [], [], []
@@ -468,8 +389,9 @@ def correct(
         else:
             xc = extract(problem, c, cur, (layout, *extracted[-1:]))
             extracted.append(xc)
-            cur_new = sp.layout_at(sp.vector(cur) - (sp.vector(xc) - x_star))
-        cur, fab_notes = _fab(problem, cur_new)
+            z_cur, z_c = sp.to_free(model.vector(cur)), sp.to_free(model.vector(xc))
+            cur_new = model.layout(sp.to_physical(z_cur - (z_c - z_star)))
+        cur, fab_notes = snap_layout(fab, model, cur_new)
         notes += fab_notes
         layouts.append(cur)
     return Correction(
@@ -488,7 +410,7 @@ def correct(
 def write_corrected(sm: Correction, out: str | Path, force: bool = False) -> list[Path]:
     """The best layout found (JSON, DXF: the round with the largest field-solver margin) and
     the history of the rounds."""
-    out = outputs.prepare_folder(out, force, FILES)
+    out = prepare_folder(out, force, FILES)
     names = FILES
     lay = sm.layouts[sm.best]
     rounds = [

@@ -18,7 +18,8 @@ Strategies (our names, one mapping to nlopt):
 ``multistart``         ``gradient`` from the seed, then from perturbed starts until met
 =====================  =============================================================
 
-Failure policy of the adapter (:func:`_run_nlopt`): x0 is clipped into the bounds; nlopt's
+One entry, :func:`minimax`, serves every caller: the refiner, yield centring and EM-corrected
+refinement. Failure policy of the adapter (:func:`_run_nlopt`): x0 is clipped into the bounds; nlopt's
 round-off-limited, forced-stop and budget ends return the best point seen with its status;
 the returned point is clipped into the bounds again (bounded methods can end a hair outside)
 and re-evaluated.
@@ -29,14 +30,16 @@ from __future__ import annotations
 import enum
 import math
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import Protocol
 
 import nlopt
 import numpy as np
 from numpy.typing import NDArray
 
 from refine import _validate as v
+from refine.optimise.space import DesignSpace
 from refine.spec.mask import Mask
 
 
@@ -56,34 +59,6 @@ POLISH_EVALUATIONS = 80
 
 
 @dataclass(frozen=True)
-class Variable:
-    """One physical dimension: name, value, bounds (SI), and whether the refiner may move it.
-
-    Bounds must satisfy 0 < lower < upper and lower <= value <= upper; reversed or empty bounds
-    are an error, never swapped or clipped.
-    """
-
-    name: str
-    value: float
-    lower: float
-    upper: float
-    free: bool = True
-
-    def __post_init__(self) -> None:
-        for k in ("value", "lower", "upper"):
-            v.positive(f"{self.name}.{k}", getattr(self, k))
-        if not self.lower < self.upper:
-            raise ValueError(
-                f"{self.name}: bounds [{self.lower:g}, {self.upper:g}] are reversed or empty "
-                "(lower must be below upper)"
-            )
-        if not self.lower <= self.value <= self.upper:
-            raise ValueError(
-                f"{self.name} = {self.value:g} is outside its bounds [{self.lower:g}, {self.upper:g}]"
-            )
-
-
-@dataclass(frozen=True)
 class Stopping:
     """Stopping conditions; each applies when it is not None (a deliberate 0 is honoured)."""
 
@@ -100,77 +75,6 @@ class Stopping:
         v.real_in_range("target_margin_db", self.target_margin_db, -100.0, 100.0)
         if self.xtol_rel is not None:
             v.real_in_range("xtol_rel", self.xtol_rel, 0.0, 1.0)
-
-
-class DesignSpace:
-    """Variables, mirror ties and the map between free log-variables z and physical values p.
-
-    ``ties`` lists groups of variable indices that share one free variable (mirror symmetry).
-    p_i = exp(z_k(i)) for free variables; fixed ones keep their value.
-    """
-
-    def __init__(self, variables: Sequence[Variable], ties: Sequence[Sequence[int]] = ()):
-        self.variables = list(variables)
-        n = len(self.variables)
-        group = list(range(n))
-        for tie in ties:
-            tie = list(tie)
-            for i in tie:
-                v.integer_in_range("tie index", i, 0, n - 1)
-            for i in tie[1:]:
-                group[i] = group[tie[0]]
-        free_groups: list[int] = []
-        for i, var in enumerate(self.variables):
-            if var.free and group[i] not in free_groups:
-                free_groups.append(group[i])
-        self._index = [
-            free_groups.index(group[i]) if self.variables[i].free else -1 for i in range(n)
-        ]
-        self.n_free = len(free_groups)
-        lo = np.full(self.n_free, -np.inf)
-        hi = np.full(self.n_free, np.inf)
-        for i, var in enumerate(self.variables):
-            k = self._index[i]
-            if k >= 0:
-                lo[k] = max(lo[k], math.log(var.lower))
-                hi[k] = min(hi[k], math.log(var.upper))
-        if np.any(lo >= hi):
-            k = int(np.argmax(lo >= hi))
-            raise ValueError(f"tied variables of free variable {k} have no common range")
-        self.lower, self.upper = lo, hi
-        self._fixed = np.array([var.value for var in self.variables])
-
-    def to_physical(self, z: NDArray) -> NDArray:
-        p = self._fixed.copy()
-        for i, k in enumerate(self._index):
-            if k >= 0:
-                p[i] = math.exp(z[k])
-        return p
-
-    def to_free(self, p: NDArray) -> NDArray:
-        z = np.zeros(self.n_free)
-        count = np.zeros(self.n_free)
-        for i, k in enumerate(self._index):
-            if k >= 0:
-                z[k] += math.log(p[i])
-                count[k] += 1
-        return z / count
-
-    def chain(self, p: NDArray, dp: NDArray) -> NDArray:
-        """d/dz from d/dp (rows = physical parameters) for p = exp(z)."""
-        out = np.zeros((self.n_free, *dp.shape[1:]), dp.dtype)
-        for i, k in enumerate(self._index):
-            if k >= 0:
-                out[k] += p[i] * dp[i]
-        return out
-
-    def at_bounds(self, z: NDArray, tol: float = 1e-6) -> list[str]:
-        names = []
-        for i, k in enumerate(self._index):
-            if k >= 0 and (z[k] <= self.lower[k] + tol or z[k] >= self.upper[k] - tol):
-                side = "lower" if z[k] <= self.lower[k] + tol else "upper"
-                names.append(f"{self.variables[i].name} at its {side} bound")
-        return names
 
 
 ProgressFn = Callable[[int, float], None]
@@ -221,7 +125,7 @@ def _constraint_values(
 def _run_nlopt(
     strategy: Strategy,
     space: DesignSpace,
-    mask: Mask,
+    mask: MaskLike,
     f: NDArray,
     fn: ResponseFn,
     z0: NDArray,
@@ -236,7 +140,7 @@ def _run_nlopt(
     With ``aggregate`` each mask region enters as one smooth-maximum constraint
     (:func:`_aggregate`) instead of one constraint per frequency sample."""
     algo = _NLOPT_ALGORITHM[strategy] if algo is None else algo
-    sizes = [len(i) for i in mask._index(f)] if aggregate else None
+    sizes = [len(i) for i in mask.region_indices(f)] if aggregate else None
     z0 = np.clip(z0, space.lower, space.upper)
     nz = space.n_free
     best = {
@@ -344,21 +248,59 @@ def _run_nlopt(
     return RunRecord(z, -float(np.max(g)), best["n"], status, history)
 
 
-def refine_once(
-    strategy: Strategy,
+class MaskLike(Protocol):
+    """What the adapter needs of a mask: constraint values (with their Jacobian) and, for
+    aggregation, which samples belong to which region."""
+
+    def constraints(
+        self,
+        f: NDArray,
+        s11: NDArray,
+        s21: NDArray,
+        ds11: NDArray | None = None,
+        ds21: NDArray | None = None,
+    ) -> tuple[NDArray, NDArray | None]: ...
+
+    def region_indices(self, f: NDArray) -> list[NDArray[np.intp]]: ...
+
+
+def minimax(
     space: DesignSpace,
-    mask: Mask,
+    mask: MaskLike,
     f: NDArray,
     fn: ResponseFn,
     z0: NDArray,
     stopping: Stopping,
+    strategy: Strategy = Strategy.GRADIENT,
+    *,
     extra: Callable[[NDArray], tuple[NDArray, NDArray]] | None = None,
+    polish: bool = True,
+    aggregate: bool = False,
     restarts: int = 4,
     seed: int = 0,
     thorough: bool = True,
     progress: ProgressFn | None = None,
 ) -> RunRecord:
-    """Run ``strategy``; ``multistart`` restarts the gradient method from perturbed points."""
+    """Maximise the worst mask margin over ``space`` from ``z0``: the one optimiser entry.
+
+    ``strategy`` picks the method (see the module docstring). With ``polish`` False the
+    gradient strategy is one SLSQP run, without restarts or the CCSAQ polish; ``aggregate``
+    then lets each mask region enter as one smooth-maximum constraint. ``extra`` adds
+    inequality constraints c(z) <= 0 with their Jacobian. Returns the best point seen (see the
+    failure policy)."""
+    if not polish or strategy is Strategy.DERIVATIVE_FREE:
+        return _run_nlopt(
+            strategy,
+            space,
+            mask,
+            f,
+            fn,
+            z0,
+            stopping,
+            extra,
+            aggregate=aggregate,
+            progress=progress,
+        )
     if strategy is Strategy.GRADIENT:
         return _gradient_then_polish(space, mask, f, fn, z0, stopping, extra, thorough, progress)
     if strategy is not Strategy.MULTISTART:

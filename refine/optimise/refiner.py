@@ -18,21 +18,26 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import NDArray
 
+from refine.circuit.builder import Dim
 from refine.circuit.layout import Layout
 from refine.circuit.model import IdealFilterModel, StripFilterModel, strip_model_for
+from refine.circuit.response import strip_medium_for, verification_grid
 from refine.optimise import seed as job
-from refine.optimise.minimax import (
+from refine.optimise.minimax import Stopping, Strategy, minimax, optimiser_grid
+from refine.optimise.space import (
     DesignSpace,
-    Stopping,
-    Strategy,
     Variable,
-    optimiser_grid,
-    refine_once,
+    fab_violations,
+    layout_space,
+    mirror_ties,
+    on_grid,
+    snap,
 )
+from refine.spec.coupling import Coupling
 from refine.spec.mask import MaskResult
 from refine.spec.problem import Problem
 from refine.synthesis.diagnose import Diagnosis, diagnose
-from refine.synthesis.realise import Realisation, realise, realise_tapped
+from refine.synthesis.realise import Realisation
 
 
 class Status(enum.Enum):
@@ -88,82 +93,8 @@ class RefineResult:
         return min(self.seed_worst.values())
 
 
-def _mirror_ties(n_items: int, offset: int) -> list[list[int]]:
-    return [[offset + i, offset + n_items - 1 - i] for i in range(n_items // 2)]
-
-
-def strip_space(problem: Problem, model: StripFilterModel, seed: Layout) -> DesignSpace:
-    """Variables with fab-rule bounds for a strip layout, mirrored for symmetry."""
-    fab = problem.fab
-    h = problem.substrate.height
-    p0 = model.vector(seed)
-    variables: list[Variable] = []
-    gaps, lengths, taps, widths = model.split(p0)
-    ng, n = len(gaps), len(lengths)
-    for k, s in enumerate(gaps):
-        s = max(s, fab.min_gap)
-        variables.append(
-            Variable(model.names[k], s, fab.min_gap, max(4.0 * s, 2.0 * h, 2.0 * fab.min_gap))
-        )
-    for j, ln in enumerate(lengths):
-        variables.append(Variable(model.names[ng + j], ln, 0.75 * ln, 1.3 * ln))
-    k = ng + n
-    if taps is not None:
-        lo_len = 0.75 * min(lengths[0], lengths[-1])  # the shortest the end resonators may become
-        for i, t in enumerate(taps):
-            variables.append(
-                Variable(
-                    model.names[k + i], t, min(0.01 * lo_len, 0.5 * t), max(0.9 * lo_len, 1.01 * t)
-                )
-            )
-        k += 2
-    if model.free_widths:
-        lo_w = max(0.5 * seed.feed_width, fab.min_width or 0.0)
-        for j, w in enumerate(widths):
-            variables.append(
-                Variable(
-                    model.names[k + j], max(w, lo_w), lo_w, max(3.0 * seed.feed_width, 1.01 * lo_w)
-                )
-            )
-    return DesignSpace(variables, _ties_of(model))
-
-
-def _snap(p: NDArray, model: StripFilterModel, grid: float, min_gap: float) -> NDArray:
-    q = np.round(p / grid) * grid
-    ng = len(model.split(p)[0])
-    gaps = q[:ng]
-    below = gaps < min_gap - 1e-15
-    gaps[below] = np.ceil(min_gap / grid - 1e-9) * grid
-    q[:ng] = gaps
-    return q
-
-
-def fab_violations(problem: Problem, layout: Layout) -> list[str]:
-    """Every fab rule the layout breaks (an empty list is the only acceptable answer)."""
-    fab = problem.fab
-    out = []
-    for k, s in enumerate(layout.gaps):
-        if s < fab.min_gap * (1 - 1e-12):
-            out.append(
-                f"gap {k} = {s * 1e6:.3f} um is below the minimum gap {fab.min_gap * 1e6:.3f} um"
-            )
-    if fab.min_width is not None:
-        for j, w in enumerate((layout.feed_width, *layout.widths)):
-            if w < fab.min_width * (1 - 1e-12):
-                out.append(
-                    f"width {j} = {w * 1e6:.3f} um is below the minimum width {fab.min_width * 1e6:.3f} um"
-                )
-    if fab.max_total_length is not None and layout.total_length > fab.max_total_length * (
-        1 + 1e-12
-    ):
-        out.append(
-            f"total length {layout.total_length * 1e3:.3f} mm exceeds {fab.max_total_length * 1e3:.3f} mm"
-        )
-    return out
-
-
 def _verify(problem: Problem, model_factory, p: NDArray) -> tuple[MaskResult, NDArray]:
-    f = job.verification_grid(problem)
+    f = verification_grid(problem)
     m = model_factory(f)
     r = m.response(p)
     return problem.mask.evaluate(f, r.s11, r.s21), f
@@ -202,17 +133,16 @@ def refine_problem(
     if problem.medium == "ideal":
         return _refine_ideal(problem, sd, strategy, stopping, t0, progress)
 
-    medium = job.medium_for(problem)
+    medium = strip_medium_for(problem)
+    fab = problem.fab
+    assert fab is not None  # every strip problem has fab rules (see refine.spec.problem)
     real: Realisation | None = sd.realisation  # the job's seed already follows problem.external
-    if real is None or real.layout.external != problem.external:
-        realiser = realise_tapped if problem.external == "tap" else realise
-        real = realiser(d, medium, problem.fab, problem.gap_model)
-    if problem.external == "tap":
+    if real is None or real.layout.external is not problem.external:
+        real = job.realisation_for(problem, d, medium)
+    if problem.external is Coupling.TAP:
         notes.append("tapped feed: the T-junction's own parasitics are not modelled")
     seed_layout = real.layout
-    diag = diagnose(
-        d, medium, problem.fab, problem.gap_model, seed_layout.feed_width, problem.external
-    )
+    diag = diagnose(d, medium, fab, problem.gap_model, seed_layout.feed_width, problem.external)
     # resonator widths are refinable dimensions (bounded by the fab rules) unless held fixed
 
     def factory(f: NDArray, fw: bool = free_widths) -> StripFilterModel:
@@ -222,11 +152,11 @@ def refine_problem(
     if problem.mask.max_insertion_loss_db is not None:
         f_opt = np.unique(np.append(f_opt, problem.mask.midband))
     model = factory(f_opt)
-    space = strip_space(problem, model, seed_layout)
+    space = layout_space(fab, problem.substrate.height, model, seed_layout)
     p_seed = model.vector(seed_layout)
     seed_res, _ = _verify(problem, factory, p_seed)
     extra = _length_constraint(problem, model, space)
-    z = z_seed = space.to_free(np.array([v.value for v in space.variables]))
+    z = z_seed = space.start()
     stopping = _aim(stopping, seed_res)
     rounds = _refine_rounds(
         problem,
@@ -253,8 +183,8 @@ def refine_problem(
     p = space.to_physical(z)
     unsnapped = res.worst_margin
     snapped_margin = None
-    if problem.fab.grid is not None:
-        q = _snap(p, model, problem.fab.grid, problem.fab.min_gap)
+    if fab.grid is not None:
+        q = snap(p, model, fab.grid, fab.min_gap)
         res_q, _ = _verify(problem, factory, q)
         if res.passed and not res_q.passed:
             # aim for enough margin to survive the grid (twice what snapping cost), from the
@@ -283,7 +213,7 @@ def refine_problem(
             evaluations += again.evaluations
             history += again.history
             p2 = space.to_physical(again.z)
-            q2 = _snap(p2, model, problem.fab.grid, problem.fab.min_gap)
+            q2 = snap(p2, model, fab.grid, fab.min_gap)
             res_q2, _ = _verify(problem, factory, q2)
             if res_q2.worst_margin > res_q.worst_margin:
                 p, z, q, res, res_q = p2, again.z, q2, again.res, res_q2
@@ -293,61 +223,36 @@ def refine_problem(
                 f"{aim.target_margin_db:+.2f} dB before snapping"
             )
         if res.passed and not res_q.passed:  # re-refine lengths with the gaps held at the grid
-            fixed = [
-                Variable(v_.name, float(qq), v_.lower, v_.upper, free=not v_.name.startswith("gap"))
-                for v_, qq in zip(
-                    space.variables,
-                    np.clip(
-                        q, [v.lower for v in space.variables], [v.upper for v in space.variables]
-                    ),
-                    strict=True,
-                )
-            ]
-            space2 = DesignSpace(fixed, _ties_of(model))
-
+            space2 = space.with_fixed(q, [kind is not Dim.GAP for kind, _ in model.dims])
             model2 = factory(f_opt)
 
             def fn2(pp, grad, model=model2):
                 r = model.response(pp, grad)
                 return r.s11, r.s21, r.ds11, r.ds21
 
-            rec2 = refine_once(
-                Strategy.GRADIENT,
+            rec2 = minimax(
                 space2,
                 problem.mask,
                 f_opt,
                 fn2,
-                space2.to_free(np.array([v_.value for v_ in fixed])),
+                space2.start(),
                 Stopping(100, None, stopping.target_margin_db, stopping.xtol_rel),
             )
             evaluations += rec2.evaluations
-            q = _snap(space2.to_physical(rec2.z), model, problem.fab.grid, problem.fab.min_gap)
+            q = snap(space2.to_physical(rec2.z), model, fab.grid, fab.min_gap)
             res_q, _ = _verify(problem, factory, q)
             notes.append(
                 "snapping to the shop's grid cost the mask; lengths were re-refined with gaps on the grid"
             )
         p, res, snapped_margin = q, res_q, res_q.worst_margin
     layout = factory(f_opt).layout(p)
-    seed_legal = not fab_violations(problem, seed_layout) and (
-        problem.fab.grid is None
-        or np.allclose(
-            _snap(p_seed, model, problem.fab.grid, problem.fab.min_gap), p_seed, rtol=0, atol=1e-12
-        )
-    )
+    seed_legal = not fab_violations(fab, seed_layout) and on_grid(p_seed, model, fab)
     if res.worst_margin < seed_res.worst_margin and seed_legal:
         notes.append(
             "the refiner found nothing better than the closed-form seed; the seed is returned"
         )
-        layout, res, z = (
-            seed_layout,
-            seed_res,
-            space.to_free(
-                np.clip(
-                    p_seed, [v.lower for v in space.variables], [v.upper for v in space.variables]
-                )
-            ),
-        )
-    violations = fab_violations(problem, layout)
+        layout, res, z = seed_layout, seed_res, space.to_free(space.clip(p_seed))
+    violations = fab_violations(fab, layout)
     if res.passed and not violations:
         status = Status.MET
     elif not diag.couplings_reachable:
@@ -417,15 +322,15 @@ def _refine_rounds(
             if stopping.max_evaluations is None
             else max(stopping.max_evaluations - evaluations, 1)
         )
-        rec = refine_once(
-            strategy,
+        rec = minimax(
             space,
             problem.mask,
             f_opt,
             fn,
             z,
             Stopping(budget, stopping.max_seconds, stopping.target_margin_db, stopping.xtol_rel),
-            extra,
+            strategy,
+            extra=extra,
             thorough=thorough,
             progress=_offset(progress, evaluations),
         )
@@ -464,21 +369,6 @@ def _aim(stopping: Stopping, seed_res: MaskResult) -> Stopping:
     return stopping
 
 
-def _ties_of(model: StripFilterModel) -> list[list[int]]:
-    """Mirror ties of a symmetric strip layout: gap k with gap -k, length j with length -j, the
-    two taps, width j with width -j."""
-    gaps, lengths, taps, _ = model.split(np.zeros(len(model.names)))
-    ng, n = len(gaps), len(lengths)
-    ties = _mirror_ties(ng, 0) + _mirror_ties(n, ng)
-    k = ng + n
-    if taps is not None:
-        ties.append([k, k + 1])
-        k += 2
-    if model.free_widths:
-        ties += _mirror_ties(n, k)
-    return ties
-
-
 def _length_constraint(problem: Problem, model: StripFilterModel, space: DesignSpace):
     """Optional max-total-length rule as an extra inequality (in % of the limit)."""
     lmax = problem.fab.max_total_length
@@ -510,7 +400,7 @@ def _refine_ideal(
         Variable(f"theta {j + 1}", t, 0.8 * t, min(1.25 * t, 2 * math.pi))
         for j, t in enumerate(d.theta)
     ]
-    space = DesignSpace(variables, _mirror_ties(n + 1, 0) + _mirror_ties(n, n + 1))
+    space = DesignSpace(variables, mirror_ties(n + 1, 0) + mirror_ties(n, n + 1))
     p_seed = np.array([*d.capacitance, *d.theta])
     seed_res, _ = _verify(problem, factory, p_seed)
     stopping = _aim(stopping, seed_res)

@@ -6,39 +6,28 @@ This is what ``refine design`` runs; every step is also usable on its own.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
 
-from refine import validity
-from refine.circuit import builder as circuit
-from refine.physics.microstrip import Microstrip
-from refine.physics.stripline import Stripline
+from refine.circuit.response import evaluate_layout, medium_for, spread_verdicts, verification_grid
+from refine.physics.strip import StripMedium
+from refine.spec.coupling import Coupling
 from refine.spec.mask import MaskResult
 from refine.spec.problem import Problem
-from refine.synthesis import inverters as synthesis
+from refine.synthesis import inverters
 from refine.synthesis.realise import Realisation, realise, realise_tapped
-
-
-def medium_for(problem: Problem, loss: bool = True) -> circuit.StripMedium | None:
-    """The strip medium of a problem, or None for the ideal medium."""
-    if problem.medium == "microstrip":
-        return Microstrip(problem.substrate, loss=loss)
-    if problem.medium == "stripline":
-        return Stripline(problem.substrate, loss=loss)
-    return None
 
 
 def electrical_design(
     problem: Problem,
-) -> tuple[synthesis.ElectricalDesign, synthesis.OrderChoice | None]:
+) -> tuple[inverters.ElectricalDesign, inverters.OrderChoice | None]:
     """Closed-form design for a problem, choosing the order from the stopbands when not given."""
     choice = None
     order = problem.order
     if order is None:
-        choice = synthesis.select_order(
+        choice = inverters.select_order(
             problem.family,
             problem.f0,
             problem.fbw,
@@ -47,15 +36,10 @@ def electrical_design(
             problem.ripple_db,
         )
         order = choice.order
-    d = synthesis.design(
+    d = inverters.design(
         problem.family, order, problem.f0, problem.fbw, problem.z_ref, problem.ripple_db
     )
     return d, choice
-
-
-def verification_grid(problem: Problem, points_per_region: int = 401) -> NDArray[np.float64]:
-    """The dense grid "met" is decided on: every mask region, exact edges included."""
-    return problem.mask.sample(points_per_region, points_per_region)
 
 
 @dataclass(frozen=True)
@@ -69,14 +53,22 @@ class Seed:
     """
 
     problem: Problem
-    design: synthesis.ElectricalDesign
-    order_choice: synthesis.OrderChoice | None
+    design: inverters.ElectricalDesign
+    order_choice: inverters.OrderChoice | None
     realisation: Realisation | None
     f: NDArray[np.float64]
     s: NDArray[np.complex128]
     check: MaskResult
     spread: dict[str, MaskResult]
     warnings: tuple[str, ...]
+
+
+def realisation_for(
+    problem: Problem, design: inverters.ElectricalDesign, medium: StripMedium
+) -> Realisation:
+    """The closed-form design as copper, with the problem's coupling, fab rules and gap model."""
+    realiser = realise_tapped if problem.external is Coupling.TAP else realise
+    return realiser(design, medium, problem.fab, problem.gap_model)
 
 
 def seed(problem: Problem) -> Seed:
@@ -87,20 +79,12 @@ def seed(problem: Problem) -> Seed:
     notes: list[str] = []
     spread: dict[str, MaskResult] = {}
     if medium is None:
-        s = synthesis.ideal_response(d, f)
+        s = inverters.ideal_response(d, f)
         real = None
     else:
-        if problem.external == "tap":
-            real = realise_tapped(d, medium, problem.fab, problem.gap_model)
-        else:
-            real = realise(d, medium, problem.fab, problem.gap_model)
+        real = realisation_for(problem, d, medium)
         notes += list(real.range_notes)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", validity.ModelRangeWarning)  # listed in range_notes
-            s = circuit.layout_response(real.layout, medium, problem.gap_model, f, problem.z_ref)
-            for model, sm in circuit.model_spread(real.layout, medium, f, problem.z_ref).items():
-                spread[model] = problem.mask.evaluate(f, sm[:, 0, 0], sm[:, 1, 0])
-        if len(spread) < 2:
-            spread = {}
+        s = evaluate_layout(problem, real.layout, f)
+        spread = spread_verdicts(problem, real.layout)
     check = problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
     return Seed(problem, d, choice, real, f, s, check, spread, tuple(notes))

@@ -19,6 +19,7 @@ from numpy.typing import NDArray
 
 from refine import __version__
 from refine.circuit.layout import Layout
+from refine.spec.coupling import Coupling
 
 
 def write_atomic(path: str | Path, writer: Callable[[Path], None]) -> Path:
@@ -160,7 +161,7 @@ def copper(layout: Layout, feed_length: float | None = None) -> list[Strip]:
     wf = layout.feed_width
     out: list[Strip] = []
     x = 0.0
-    if layout.external == "gap":
+    if layout.external is Coupling.GAP:
         out.append(Strip(-fl, -wf / 2, 0.0, wf / 2, "feed in"))
         x = layout.gaps[0]
         for j, (ln, w) in enumerate(zip(layout.lengths, layout.widths, strict=True)):

@@ -7,20 +7,22 @@ file is written atomically; an existing output file is never replaced unless ``f
 
 from __future__ import annotations
 
-import warnings
 from pathlib import Path
 
 import numpy as np
 
-from refine import validity
-from refine.circuit import builder as circuit
-from refine.circuit.layout import Layout
+from refine.circuit.response import (
+    evaluate_electrical,
+    evaluate_layout,
+    spread_verdicts,
+    strip_medium_for,
+)
 from refine.optimise import seed as job
 from refine.optimise.refiner import RefineResult
 from refine.outputs import export, plot, report
-from refine.spec.mask import MaskResult
+from refine.spec.coupling import Coupling
 from refine.spec.problem import Problem
-from refine.synthesis import inverters as synthesis
+from refine.synthesis import inverters
 from refine.synthesis.realise import range_report
 
 OUTPUT_FILES = (
@@ -64,37 +66,10 @@ def responses(r: RefineResult, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(refined, seed) S-matrices over ``f`` on the physical model with loss."""
     p = r.problem
     if r.layout is None:
-        d = synthesis.design(p.family, len(r.thetas), p.f0, p.fbw, p.z_ref, p.ripple_db)
+        d = inverters.design(p.family, len(r.thetas), p.f0, p.fbw, p.z_ref, p.ripple_db)
         ref = evaluate_electrical(r.capacitances, r.thetas, p.f0, p.z_ref, f)
-        return ref, synthesis.ideal_response(d, f)
+        return ref, inverters.ideal_response(d, f)
     return evaluate_layout(p, r.layout, f), evaluate_layout(p, r.seed_layout, f)
-
-
-def evaluate_layout(problem: Problem, layout: Layout, f: np.ndarray) -> np.ndarray:
-    """S-matrix of a layout on the problem's medium with loss (range warnings go to the report)."""
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", validity.ModelRangeWarning)
-        return circuit.layout_response(
-            layout, job.medium_for(problem), problem.gap_model, f, problem.z_ref
-        )
-
-
-def evaluate_electrical(caps, thetas, f0: float, z_ref: float, f: np.ndarray) -> np.ndarray:
-    from refine.circuit import cascade
-
-    return cascade.s_parameters(synthesis.ideal_elements(caps, thetas, f0, z_ref, f), f, z_ref)
-
-
-def model_spread(problem: Problem, layout: Layout) -> dict[str, MaskResult]:
-    """The refined layout's verdict under every gap model of its medium."""
-    models = circuit.GAP_MODELS.get(problem.medium, ())
-    if len(models) < 2:
-        return {}
-    f = job.verification_grid(problem)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", validity.ModelRangeWarning)  # listed in the report
-        spread = circuit.model_spread(layout, job.medium_for(problem), f, problem.z_ref)
-    return {m: problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0]) for m, s in spread.items()}
 
 
 def write_outputs(
@@ -106,11 +81,11 @@ def write_outputs(
     p = r.problem
     f = sweep(p)
     s_ref, s_seed = responses(r, f)
-    spread = model_spread(p, r.layout) if r.layout is not None else {}
+    spread = spread_verdicts(p, r.layout) if r.layout is not None else {}
     notes: list[str] = []
     if r.layout is not None:
-        medium = job.medium_for(p)
-        if r.layout.external == "gap":
+        medium = strip_medium_for(p)
+        if r.layout.external is Coupling.GAP:
             notes = range_report(r.layout, medium, p.gap_model, float(f[-1]))
         else:
             notes = [

@@ -166,7 +166,7 @@ def layout_png(path: str | Path, layout: Layout, title: str) -> Path:
             fontsize=7,
         )
     chain = sorted([s for s in strips if s.y0 < 0 < s.y1], key=lambda s: s.x0)
-    first_gap = 0 if layout.external == "gap" else 1
+    first_gap = layout.external.first_gap
     k = 0
     for a, b in itertools.pairwise(chain):
         if b.x0 > a.x1 + 1e-12:

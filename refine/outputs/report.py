@@ -16,9 +16,10 @@ import numpy as np
 
 from refine import validity
 from refine.circuit import cascade
-from refine.circuit.model import strip_model_for
+from refine.circuit.response import layout_build, strip_medium_for
 from refine.optimise import seed as job
 from refine.optimise.refiner import RefineResult, Status
+from refine.physics import gap_fixture
 
 BREAKDOWN_V_PER_M = 1.0e6  # conservative: 1 kV/mm
 
@@ -27,19 +28,18 @@ def gap_voltages(r: RefineResult, power_w: float) -> list[float]:
     """Peak voltage (V) across each series gap of the refined layout over the passband."""
     p = r.problem
     lay = r.layout
-    medium = job.medium_for(p)
     f = np.linspace(p.mask.passband_start, p.mask.passband_stop, 201)
-    model = strip_model_for(medium, p.gap_model, p.z_ref, lay, f, True)
-    gaps, lengths, taps, widths = model.split(model.vector(lay))
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", validity.ModelRangeWarning)
-        els, _deps, gap_slots, _lines, _iw = model._build(gaps, lengths, taps, widths)
-        states = cascade.node_states(els, f, p.z_ref)
+        built = layout_build(lay, strip_medium_for(p), p.gap_model, f, track=True)
+        states = cascade.node_states(built.elements, f, p.z_ref)
+    assert built.map is not None
     v_in, i_in = states[0]
     emf = math.sqrt(8.0 * power_w * p.z_ref)
     scale = emf / (v_in + p.z_ref * i_in)
     out = []
-    for e, *_ in gap_slots:
+    for slot in built.map.gaps:
+        e = slot.element
         dv = (states[e][0] - states[e + 1][0]) * scale
         out.append(float(np.max(np.abs(dv))))
     return out
@@ -160,9 +160,7 @@ def field_verdicts(r: RefineResult) -> list[dict]:
     field-solver calibration favours there (empty for other media)."""
     if r.layout is None or r.problem.medium != "microstrip":
         return []
-    from refine.fullwave import calibration
-
-    return calibration.layout_verdicts(r.layout, r.problem.substrate)
+    return gap_fixture.layout_verdicts(r.layout, r.problem.substrate)
 
 
 def report_md(
@@ -234,7 +232,7 @@ def report_md(
         lines += [f"| θ {j + 1} | {math.degrees(t):.3f}° at f0 |" for j, t in enumerate(r.thetas)]
     else:
         lay, seed = r.layout, r.seed_layout
-        first = 0 if lay.external == "gap" else 1
+        first = lay.external.first_gap
         lines += ["| dimension | refined | closed-form seed |", "|---|---|---|"]
         lines += [
             f"| gap {k + first} | {s * 1e6:.2f} µm | {seed.gaps[k] * 1e6:.2f} µm |"

@@ -119,7 +119,7 @@ class Mask:
             parts.append(np.linspace(max(sb.start, 1e-3 * sb.stop), sb.stop, n_s))
         return np.unique(np.concatenate(parts))
 
-    def _index(self, f: NDArray) -> list[NDArray[np.intp]]:
+    def region_indices(self, f: NDArray) -> list[NDArray[np.intp]]:
         pb = np.flatnonzero((f >= self.passband_start) & (f <= self.passband_stop))
         out: list[NDArray[np.intp]] = []
         if self.min_return_loss_db is not None:
@@ -141,7 +141,7 @@ class Mask:
         rl = -10.0 * np.log10(np.abs(np.asarray(s11)) ** 2 + _TINY)
         il = -10.0 * np.log10(np.abs(np.asarray(s21)) ** 2 + _TINY)
         out: dict[str, NDArray] = {}
-        for name, idx in zip(self.regions(), self._index(f), strict=True):
+        for name, idx in zip(self.regions(), self.region_indices(f), strict=True):
             if idx.size == 0:
                 raise ValueError(f"the frequency grid has no point in the mask region '{name}'")
             if name == "passband return loss":
@@ -169,7 +169,9 @@ class Mask:
             raise ValueError("evaluate takes one design: s11 and s21 must be 1-D (nf,)")
         worst: dict[str, float] = {}
         where: dict[str, float] = {}
-        for (name, m), idx in zip(self.margins(f, s11, s21).items(), self._index(f), strict=True):
+        for (name, m), idx in zip(
+            self.margins(f, s11, s21).items(), self.region_indices(f), strict=True
+        ):
             k = int(np.argmin(m))
             worst[name] = float(m[k])
             where[name] = float(f[idx[k]])
@@ -201,7 +203,7 @@ class Mask:
         d_il = -_DB * np.real(ds21 * np.conj(s21) / (np.abs(s21) ** 2 + _TINY))
         rows = []
         il = -10.0 * np.log10(np.abs(s21) ** 2 + _TINY)
-        for name, idx in zip(self.regions(), self._index(f), strict=True):
+        for name, idx in zip(self.regions(), self.region_indices(f), strict=True):
             if name == "passband return loss":
                 rows.append(-d_rl[:, idx].T)
             elif name == "passband ripple":

@@ -41,19 +41,17 @@ from functools import lru_cache
 from pathlib import Path
 from typing import Any
 
+from refine.physics import strip
 from refine.physics.substrate import Substrate
+from refine.spec import families
+from refine.spec.coupling import Coupling
 from refine.spec.fab import FabRules
 from refine.spec.mask import Mask, Stopband
-from refine.synthesis import prototype
 
 MEDIUM_KINDS = ("microstrip", "stripline", "ideal")
-EXTERNAL_KINDS = ("gap", "tap")
+EXTERNAL_KINDS = tuple(c.value for c in Coupling)
 RESONATOR_WIDTHS = ("free", "feed")
-GAP_MODELS = {
-    "microstrip": ("garg-bahl", "kirschning-jansen-koster"),
-    "stripline": ("altschuler-oliner",),
-    "ideal": (),
-}
+GAP_MODELS = {**strip.GAP_MODELS, "ideal": ()}
 
 
 class ProblemError(ValueError):
@@ -74,7 +72,7 @@ class Problem:
     medium: str
     substrate: Substrate | None
     fab: FabRules | None
-    external: str
+    external: Coupling
     gap_model: str
     mask: Mask
     source: str = "<memory>"
@@ -238,7 +236,7 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         "response",
         {"family", "ripple_db", "order", "center", "bandwidth", "fractional_bandwidth", "z_ref"},
     )
-    family = r.choice(resp, "response", "family", prototype.FAMILIES)
+    family = r.choice(resp, "response", "family", families.FAMILIES)
     if family == "chebyshev":
         ripple = r.number(resp, "response", "ripple_db", 0.0, 10.0, lo_open=True, required=True)
     else:
@@ -252,8 +250,8 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
     order = None
     if "order" in resp:
         o = resp["order"]
-        if isinstance(o, bool) or not isinstance(o, int) or not 1 <= o <= prototype.MAX_ORDER:
-            raise r.fail("response.order", o, f"must be an integer in 1..{prototype.MAX_ORDER}")
+        if isinstance(o, bool) or not isinstance(o, int) or not 1 <= o <= families.MAX_ORDER:
+            raise r.fail("response.order", o, f"must be an integer in 1..{families.MAX_ORDER}")
         order = int(o)
     f0 = r.quantity(resp, "response", "center", "frequency", 0.0, None, lo_open=True, required=True)
     has_bw, has_fbw = "bandwidth" in resp, "fractional_bandwidth" in resp
@@ -409,7 +407,7 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         kind,
         substrate,
         fab,
-        external,
+        Coupling(external),
         gap_model,
         mask,
         source,

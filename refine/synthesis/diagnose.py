@@ -20,7 +20,8 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from refine import validity
-from refine.circuit.builder import StripMedium
+from refine.physics.strip import StripMedium
+from refine.spec.coupling import Coupling
 from refine.spec.fab import FabRules
 from refine.synthesis.inverters import ElectricalDesign, inverter_j
 from refine.synthesis.realise import gap_inverter, tap_angle
@@ -110,14 +111,14 @@ def diagnose(
     fab: FabRules,
     gap_model: str,
     feed_width: float,
-    external: str = "gap",
+    external: Coupling = Coupling.GAP,
 ) -> Diagnosis:
     """Compare every needed coupling with the most the fab rules can give, and list remedies."""
     f0, n = design.f0, design.order
     checks = []
     for k, j in enumerate(design.j_norm):
         end = k in (0, n)
-        if external == "tap" and end:
+        if external is Coupling.TAP and end:
             continue
         jm, wm = _j_max(medium, gap_model, feed_width, fab.min_gap, f0, end, fab)
         checks.append(CouplingCheck(k, j, jm, wm))
@@ -158,7 +159,7 @@ def diagnose(
                 )
             except ValueError:
                 pass
-            if external == "gap":
+            if external is Coupling.GAP:
                 z_res = float(medium.dispersive(feed_width, np.array([f0]))[0][..., 0])
                 ang = tap_angle(design, z_res)
                 if ang is not None:
@@ -175,6 +176,6 @@ def diagnose(
                 f"{worst.width_at_max * 1e6:.0f} um wide; a shop with a smaller minimum gap, or a "
                 f"narrower bandwidth (at most {100 * fbw_max:.3g} %), is needed"
             )
-        if ends_fail and not inner_fail and external == "tap":
+        if ends_fail and not inner_fail and external is Coupling.TAP:
             remedies.append("the tapped feed removes the end gaps; the inner ones are reachable")
     return Diagnosis(tuple(checks), tuple(remedies))

@@ -34,7 +34,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from refine import _validate as v
 from refine.circuit import cascade
-from refine.physics.ideal import IdealTEM
+from refine.circuit.builder import ideal_elements
 from refine.spec.mask import Stopband
 from refine.synthesis import prototype
 
@@ -177,33 +177,6 @@ def design(
         capacitance=tuple(float(x) for x in cap),
         theta=tuple(float(x) for x in theta),
     )
-
-
-def ideal_elements(
-    capacitance: ArrayLike, theta: ArrayLike, f0: float, z_c: float, f: ArrayLike
-) -> list[cascade.Element]:
-    """Ideal-element chain C01 – line θ1 – C12 – ... – line θn – Cn,n+1 on an :class:`IdealTEM`.
-
-    ``capacitance`` is ``(..., n+1)`` and ``theta`` ``(..., n)`` (leading axes are designs); the
-    returned elements broadcast against ``(..., nf)``.
-    """
-    cap = v.positive_array("capacitance", capacitance)
-    th = v.positive_array("theta", theta)
-    if cap.shape[-1] != th.shape[-1] + 1:
-        raise ValueError(
-            f"capacitance must have one more entry than theta on the last axis, got "
-            f"{cap.shape[-1]} and {th.shape[-1]}"
-        )
-    medium = IdealTEM(z_c)
-    gamma, zc = medium.line_properties(f)
-    lengths = medium.length_for_angle(th, f0)
-    out: list[cascade.Element] = []
-    n = th.shape[-1]
-    for i in range(n):
-        out.append(cascade.SeriesCapacitor(cap[..., i, None]))
-        out.append(cascade.Line(gamma, zc, lengths[..., i, None]))
-    out.append(cascade.SeriesCapacitor(cap[..., n, None]))
-    return out
 
 
 def ideal_response(d: ElectricalDesign, f: ArrayLike) -> NDArray[np.complex128]:

@@ -36,10 +36,11 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from refine import _validate as v
+from refine.spec.families import FAMILIES, MAX_ORDER
 
 Family = Literal["chebyshev", "butterworth"]
-FAMILIES: tuple[str, ...] = ("chebyshev", "butterworth")
-MAX_ORDER = 15
+
+__all__ = ["FAMILIES", "MAX_ORDER"]
 
 _DB_PER_NEPER_X2 = 40.0 / math.log(10.0)  # 17.3718..., the "17.37" of MYJ eq. 4.05-2
 

@@ -30,8 +30,10 @@ from scipy.optimize import brentq
 
 from refine import validity
 from refine.circuit import cascade
-from refine.circuit.builder import StripMedium, check_gap_model, gap_elements, medium_kind
+from refine.circuit.builder import gap_elements
 from refine.circuit.layout import Layout
+from refine.physics.strip import StripMedium, check_gap_model, medium_kind, open_end_extension
+from refine.spec.coupling import Coupling
 from refine.spec.fab import FabRules
 from refine.synthesis.inverters import ElectricalDesign, pi_to_inverter, resonator_angles
 
@@ -163,7 +165,7 @@ def realise(
     theta = resonator_angles(np.array(phis))
     beta0 = medium.electrical_length(res_w, 1.0, f0)
     lengths = tuple(float(t / beta0) for t in theta)
-    layout = Layout("gap", feed_w, (res_w,) * n, tuple(g.gap for g in gaps), lengths)
+    layout = Layout(Coupling.GAP, feed_w, (res_w,) * n, tuple(g.gap for g in gaps), lengths)
     for g in gaps:
         if g.gap_required is None:
             notes.append(
@@ -204,7 +206,7 @@ def range_report(layout: Layout, medium: StripMedium, gap_model: str, f_max: flo
                 warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
 
     kind = medium_kind(medium)
-    if layout.external == "gap":
+    if layout.external is Coupling.GAP:
         sides, first = [layout.feed_width, *layout.widths, layout.feed_width], 0
     else:  # tapped: the gaps are the inner ones, between resonators
         sides, first = list(layout.widths), 1
@@ -250,7 +252,6 @@ def realise_tapped(
     """Layout with a tapped feed: the n - 1 inner gaps as in :func:`realise`, the end resonators
     open at their outer ends (length reduced by the open-end extension Δl) and tapped at the
     position :func:`tap_angle` gives. The T-junction's own parasitics are not modelled."""
-    from refine.circuit.model import open_end_extension
 
     if design.order < 2:
         raise ValueError(
@@ -282,7 +283,9 @@ def realise_tapped(
             "starts near the open end"
         )
     tap = max(ang / beta0 - dl, 0.02 * lengths[0])
-    layout = Layout("tap", lay.feed_width, lay.widths, lay.gaps[1:-1], tuple(lengths), (tap, tap))
+    layout = Layout(
+        Coupling.TAP, lay.feed_width, lay.widths, lay.gaps[1:-1], tuple(lengths), (tap, tap)
+    )
     gaps = inner.gaps[1:-1]
     ranges = tuple(range_report(layout, medium, gap_model, f0))
     return Realisation(layout, design, gap_model, gaps, ranges, tuple(notes))

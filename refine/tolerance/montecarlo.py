@@ -30,11 +30,11 @@ from numpy.typing import NDArray
 
 from refine import _validate as v
 from refine import validity
-from refine.circuit import builder as circuit
 from refine.circuit import cascade
+from refine.circuit.builder import Dim, build
 from refine.circuit.layout import Layout
 from refine.circuit.model import strip_model_for
-from refine.optimise import seed as job
+from refine.circuit.response import strip_medium_for
 from refine.spec.problem import Problem
 
 MAX_SAMPLES = 10**6
@@ -164,7 +164,7 @@ def yield_grid(problem: Problem, points_per_region: int = 121) -> NDArray:
 
 def worst_margins(problem: Problem, samples: Samples, f: NDArray) -> NDArray:
     """Worst margin (dB) of every sample, evaluated in batched cascade calls of ``CHUNK``."""
-    nominal = job.medium_for(problem)
+    nominal = strip_medium_for(problem)
     n = samples.widths.shape[0]
     out = np.empty(n)
     sub = problem.substrate
@@ -183,26 +183,17 @@ def worst_margins(problem: Problem, samples: Samples, f: NDArray) -> NDArray:
                     sub.roughness,
                 )
                 medium = type(nominal)(batch, nominal.loss)
-            if samples.taps is None:
-                els = circuit.filter_elements(
-                    medium,
-                    problem.gap_model,
-                    samples.feed[sl],
-                    samples.widths[sl],
-                    samples.gaps[sl],
-                    samples.lengths[sl],
-                    f,
-                )
-            else:
-                els = circuit.tapped_filter_elements(
-                    medium,
-                    problem.gap_model,
-                    samples.widths[sl],
-                    samples.gaps[sl],
-                    samples.lengths[sl],
-                    samples.taps[sl],
-                    f,
-                )
+            els = build(
+                problem.external,
+                medium,
+                problem.gap_model,
+                samples.feed[sl],
+                samples.widths[sl],
+                samples.gaps[sl],
+                samples.lengths[sl],
+                None if samples.taps is None else samples.taps[sl],
+                f,
+            ).elements
             t = cascade.s11_s21(els, f, problem.z_ref)
             margins = problem.mask.margins(f, t.s11, t.s21)
             out[sl] = np.min(np.concatenate(list(margins.values()), axis=-1), axis=-1)
@@ -248,17 +239,17 @@ def sensitivities(
 ) -> tuple[Sensitivity, ...]:
     """d(worst margin)/d(dimension) at the nominal layout from the analytic gradient of the
     binding constraint, ranked by the effect of a 1-sigma error."""
-    medium = job.medium_for(problem)
+    medium = strip_medium_for(problem)
     model = strip_model_for(medium, problem.gap_model, problem.z_ref, layout, f, True)
     p = model.vector(layout)
     r = model.response(p, True)
     g, jac = problem.mask.constraints(f, r.s11, r.s21, r.ds11, r.ds21)
     row = -jac[int(np.argmax(g))]  # d(worst margin)/dp = -d(max g)/dp
     out = []
-    for name, d in zip(model.names, row, strict=True):
-        if name.startswith("gap"):
+    for name, (kind, _), d in zip(model.names, model.dims, row, strict=True):
+        if kind is Dim.GAP:
             sigma = tol.gap_sigma
-        elif name.startswith("width"):
+        elif kind is Dim.WIDTH:
             sigma = tol.width_sigma
         else:  # lengths and taps move only with the correlated etch
             sigma = tol.width_sigma if tol.correlated else 0.0  # 2δ with σ_δ = σ_width/2
@@ -320,137 +311,3 @@ __all__ = [
     "wilson_interval",
     "worst_margins",
 ]
-
-
-@dataclass(frozen=True)
-class CentringResult:
-    """Outcome of :func:`centre_for_yield`: the moved layout and the yields before and after,
-    both estimated on the same independent Monte Carlo samples."""
-
-    layout: Layout
-    yield_before: YieldResult
-    yield_after: YieldResult
-    evaluations: int
-
-
-def centre_for_yield(
-    problem: Problem,
-    layout: Layout,
-    design_samples: int = 24,
-    check_samples: int = 2000,
-    seed: int = 0,
-    correlated: bool = False,
-    max_evaluations: int = 150,
-    free_widths: bool | None = None,
-) -> CentringResult:
-    """Move a layout that meets the mask so that it keeps meeting it under the etch errors.
-
-    Design centring as a minimax: maximise the worst margin over the nominal layout and
-    ``design_samples`` fixed perturbations of it (drawn once from the fab tolerances, so the
-    problem is deterministic and smooth), each sample's mask regions entering as one
-    smooth-maximum constraint. Bounds and mirror ties are those of the refiner; the result is
-    snapped to the shop's grid, and it is kept only if its Monte Carlo yield (on samples
-    independent of the design samples) is higher.
-    """
-    from refine.circuit.model import strip_model_for
-    from refine.optimise.minimax import Stopping, Strategy, _run_nlopt
-    from refine.optimise.refiner import _snap, fab_violations, strip_space
-
-    tol = Tolerances.from_problem(problem, correlated)
-    before = estimate_yield(problem, layout, check_samples, seed + 1, correlated)
-    medium = job.medium_for(problem)
-    f = yield_grid(problem, 41)
-    if free_widths is None:
-        free_widths = problem.free_widths
-    model = strip_model_for(medium, problem.gap_model, problem.z_ref, layout, f, free_widths)
-    space = strip_space(problem, model, layout)
-    p0 = model.vector(layout)
-    smp = sample(layout, tol, design_samples, seed, problem.substrate)  # its geometry is used below
-    names = model.names
-    offsets = np.zeros((design_samples + 1, len(names)))  # row 0: the nominal layout itself
-    for i, name in enumerate(names):
-        kind, _, idx = name.partition(" ")
-        if kind == "gap":
-            k = int(idx) - (0 if layout.external == "gap" else 1)
-            offsets[1:, i] = smp.gaps[:, k] - layout.gaps[k]
-        elif kind == "width":
-            offsets[1:, i] = smp.widths[:, int(idx) - 1] - layout.widths[int(idx) - 1]
-        elif kind == "length":
-            offsets[1:, i] = smp.lengths[:, int(idx) - 1] - layout.lengths[int(idx) - 1]
-        elif kind == "tap" and smp.taps is not None:
-            j = 0 if idx == "in" else 1
-            offsets[1:, i] = smp.taps[:, j] - layout.taps[j]
-
-    n_f = f.size
-    f_all = np.tile(f, design_samples + 1)
-
-    def fn(p, grad):
-        s11 = np.empty(f_all.size, complex)
-        s21 = np.empty(f_all.size, complex)
-        ds11 = np.zeros((len(p), f_all.size), complex) if grad else None
-        ds21 = np.zeros((len(p), f_all.size), complex) if grad else None
-        for k, off in enumerate(offsets):
-            r = model.response(np.maximum(p + off, 1e-9), grad)
-            sl = slice(k * n_f, (k + 1) * n_f)
-            s11[sl], s21[sl] = r.s11, r.s21
-            if grad:
-                ds11[:, sl], ds21[:, sl] = r.ds11, r.ds21
-        return s11, s21, ds11, ds21
-
-    stacked_mask = _StackedMask(problem.mask, f, design_samples + 1)
-    z0 = space.to_free(
-        np.clip(p0, [v_.lower for v_ in space.variables], [v_.upper for v_ in space.variables])
-    )
-    rec = _run_nlopt(
-        Strategy.GRADIENT,
-        space,
-        stacked_mask,
-        f_all,
-        fn,
-        z0,
-        Stopping(max_evaluations, None, 100.0, 1e-7),
-        aggregate=True,
-    )
-    p = space.to_physical(rec.z)
-    if problem.fab.grid is not None:
-        p = _snap(p, model, problem.fab.grid, problem.fab.min_gap)
-    moved = model.layout(p)
-    after = estimate_yield(problem, moved, check_samples, seed + 1, correlated)
-    if fab_violations(problem, moved) or after.yield_fraction <= before.yield_fraction:
-        return CentringResult(layout, before, before, rec.evaluations)
-    return CentringResult(moved, before, after, rec.evaluations)
-
-
-class _StackedMask:
-    """A mask applied to several designs laid end to end on one axis of length ``copies × nf``.
-
-    Only what the epigraph adapter uses: ``constraints`` and ``_index`` (the per-region sample
-    indices, one region per copy and mask region, so that aggregation is per sample)."""
-
-    def __init__(self, mask, f, copies):
-        self.mask, self.f, self.copies = mask, f, copies
-
-    def _index(self, f_all):
-        n = self.f.size
-        out = []
-        for k in range(self.copies):
-            for idx in self.mask._index(self.f):
-                out.append(idx + k * n)
-        return out
-
-    def constraints(self, f_all, s11, s21, ds11=None, ds21=None):
-        n = self.f.size
-        gs, jacs = [], []
-        for k in range(self.copies):
-            sl = slice(k * n, (k + 1) * n)
-            g, jac = self.mask.constraints(
-                self.f,
-                s11[sl],
-                s21[sl],
-                None if ds11 is None else ds11[:, sl],
-                None if ds21 is None else ds21[:, sl],
-            )
-            gs.append(g)
-            jacs.append(jac)
-        g = np.concatenate(gs)
-        return g, (None if ds11 is None else np.concatenate(jacs, axis=0))

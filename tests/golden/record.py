@@ -70,7 +70,6 @@ def circuits() -> dict[str, object]:
 
     from refine.circuit.builder import layout_response
     from refine.circuit.model import strip_model_for
-    from refine.optimise import seed as job
 
     out: dict[str, object] = {}
     for path in sorted((ROOT / "problems").glob("*.toml")):
@@ -80,7 +79,7 @@ def circuits() -> dict[str, object]:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ModelRangeWarning)
             lay = refine.seed(problem).realisation.layout
-            medium = job.medium_for(problem)
+            medium = medium_for(problem)
             f = np.linspace(problem.mask.passband_start * 0.9, problem.mask.passband_stop * 1.1, 11)
             out[f"{path.stem}/batched"] = layout_response(
                 lay, medium, problem.gap_model, f, problem.z_ref

@@ -1,0 +1,93 @@
+"""Strip media as the circuit sees them: which medium a strip is on, its gap models, and its
+open-end extension.
+
+The gap-model names are the published models of :mod:`refine.physics.discontinuities`; this
+module only dispatches to them and says which apply on which medium.
+"""
+
+from __future__ import annotations
+
+from typing import Union
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from refine import _validate as v
+from refine.physics import discontinuities
+from refine.physics.microstrip import Microstrip, hammerstad_jensen
+from refine.physics.stripline import Stripline
+
+StripMedium = Union[Microstrip, Stripline]  # noqa: UP007 (a runtime alias)
+
+GAP_MODELS: dict[str, tuple[str, ...]] = {
+    "microstrip": ("garg-bahl", "kirschning-jansen-koster"),
+    "stripline": ("altschuler-oliner",),
+}
+
+# gap models whose reference planes are at the gap centre (the circuit adds a half-gap line on
+# each side to move them to the strip ends)
+CENTRE_REFERENCED = frozenset({"altschuler-oliner"})
+
+
+def medium_kind(medium: StripMedium) -> str:
+    """ "microstrip" or "stripline"."""
+    if isinstance(medium, Microstrip):
+        return "microstrip"
+    if isinstance(medium, Stripline):
+        return "stripline"
+    raise ValueError(f"medium must be a Microstrip or Stripline, got {type(medium).__name__}")
+
+
+def check_gap_model(medium: StripMedium, model: str) -> str:
+    """``model`` if it is a gap model of ``medium``'s kind; a ValueError naming both otherwise."""
+    kind = medium_kind(medium)
+    return v.one_of(f"gap model for {kind}", model, GAP_MODELS[kind])
+
+
+def gap_capacitances(
+    medium: StripMedium, model: str, w_in: ArrayLike, w_out: ArrayLike, s: ArrayLike
+) -> discontinuities.GapCapacitances:
+    """π-network capacitances of a gap of width ``s`` between strips ``w_in`` and ``w_out``.
+
+    Garg–Bahl is a symmetric-gap model: for unequal widths its series capacitance is taken at
+    the geometric-mean width and each shunt capacitance at its own side's width. For stripline
+    the reference planes are at the gap centre (see :data:`CENTRE_REFERENCED`). ``s`` may be
+    complex (complex-step derivatives).
+    """
+    sub = medium.substrate
+    if model == "garg-bahl":
+        w_in = np.asarray(w_in, float)
+        w_out = np.asarray(w_out, float)
+        mid = discontinuities.garg_bahl_gap(np.sqrt(w_in * w_out), s, sub.height, sub.eps_r)
+        if np.array_equal(w_in, w_out):
+            return mid
+        c_in = discontinuities.garg_bahl_gap(w_in, s, sub.height, sub.eps_r).c_shunt_in
+        c_out = discontinuities.garg_bahl_gap(w_out, s, sub.height, sub.eps_r).c_shunt_out
+        return discontinuities.GapCapacitances(mid.c_series, c_in, c_out)
+    if model == "kirschning-jansen-koster":
+        return discontinuities.kirschning_jansen_koster_gap(w_in, w_out, s, sub.height, sub.eps_r)
+    if model == "altschuler-oliner":
+        assert isinstance(medium, Stripline)
+        w_mean = np.sqrt(np.asarray(w_in, float) * np.asarray(w_out, float))
+        z0 = medium.z0(w_mean)
+        return discontinuities.stripline_gap(s, sub.height, sub.eps_r, z0, w_mean)
+    raise ValueError(f"gap model = {model!r} is not one of the allowed values {GAP_MODELS}")
+
+
+def open_end_extensions(medium: StripMedium, width: ArrayLike) -> NDArray[np.float64]:
+    """Open-end length extension Δl (m) of strips of ``width`` (any array shape) on ``medium``:
+    Kirschning–Jansen–Koster 1981 on microstrip, b ln 2/π on stripline."""
+    sub = medium.substrate
+    w = np.asarray(width, float)
+    if isinstance(medium, Stripline):
+        return np.broadcast_to(discontinuities.stripline_open_end(sub.height), w.shape)
+    u = w / sub.height
+    _, ee, _ = hammerstad_jensen(u, sub.eps_r, sub.metal_thickness / sub.height)
+    return np.asarray(
+        discontinuities.kirschning_jansen_koster_open_end(u, sub.eps_r, ee) * sub.height
+    )
+
+
+def open_end_extension(medium: StripMedium, width: float) -> float:
+    """Open-end length extension Δl (m) of one strip of ``width`` on ``medium``."""
+    return float(open_end_extensions(medium, width))

@@ -1,0 +1,160 @@
+"""Yield centring: move a layout that meets the mask so that it keeps meeting it under the
+shop's etch errors.
+
+Design centring as a minimax: maximise the worst margin over the nominal layout and
+``design_samples`` fixed perturbations of it (drawn once from the fab tolerances, so the
+problem is deterministic and smooth), each sample's mask regions entering as one smooth-maximum
+constraint. It runs on the one optimiser entry (:func:`refine.optimise.minimax.minimax`) in the
+refiner's design space (:func:`refine.optimise.space.layout_space`); the result is snapped to
+the shop's grid and kept only if its Monte Carlo yield, on samples independent of the design
+samples, is higher.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from refine.circuit.builder import Dim
+from refine.circuit.layout import Layout
+from refine.circuit.model import strip_model_for
+from refine.circuit.response import strip_medium_for
+from refine.optimise.minimax import Stopping, minimax
+from refine.optimise.space import fab_violations, layout_space, snap
+from refine.spec.mask import Mask
+from refine.spec.problem import Problem
+from refine.tolerance.montecarlo import (
+    Tolerances,
+    YieldResult,
+    estimate_yield,
+    sample,
+    yield_grid,
+)
+
+
+@dataclass(frozen=True)
+class CentringResult:
+    """Outcome of :func:`centre_for_yield`: the moved layout and the yields before and after,
+    both estimated on the same independent Monte Carlo samples."""
+
+    layout: Layout
+    yield_before: YieldResult
+    yield_after: YieldResult
+    evaluations: int
+
+
+def centre_for_yield(
+    problem: Problem,
+    layout: Layout,
+    design_samples: int = 24,
+    check_samples: int = 2000,
+    seed: int = 0,
+    correlated: bool = False,
+    max_evaluations: int = 150,
+    free_widths: bool | None = None,
+) -> CentringResult:
+    """Move ``layout`` for yield (see the module docstring); ``free_widths`` None follows the
+    problem's ``[resonators] width``."""
+    fab = problem.fab
+    assert fab is not None  # a strip problem (Tolerances.from_problem refuses the ideal medium)
+    tol = Tolerances.from_problem(problem, correlated)
+    before = estimate_yield(problem, layout, check_samples, seed + 1, correlated)
+    medium = strip_medium_for(problem)
+    f = yield_grid(problem, 41)
+    if free_widths is None:
+        free_widths = problem.free_widths
+    model = strip_model_for(medium, problem.gap_model, problem.z_ref, layout, f, free_widths)
+    space = layout_space(fab, problem.substrate.height, model, layout)
+    p0 = model.vector(layout)
+    smp = sample(layout, tol, design_samples, seed, problem.substrate)  # its geometry is used below
+    offsets = np.zeros((design_samples + 1, len(model.dims)))  # row 0: the nominal layout itself
+    drawn = {
+        Dim.GAP: (smp.gaps, layout.gaps),
+        Dim.WIDTH: (smp.widths, layout.widths),
+        Dim.LENGTH: (smp.lengths, layout.lengths),
+        Dim.TAP: (smp.taps, layout.taps),
+    }
+    for i, (kind, k) in enumerate(model.dims):
+        perturbed, nominal = drawn[kind]
+        if perturbed is not None and nominal is not None:
+            offsets[1:, i] = perturbed[:, k] - nominal[k]
+
+    n_f = f.size
+    f_all = np.tile(f, design_samples + 1)
+
+    def fn(p: NDArray, grad: bool):
+        s11 = np.empty(f_all.size, complex)
+        s21 = np.empty(f_all.size, complex)
+        ds11 = np.zeros((len(p), f_all.size), complex) if grad else None
+        ds21 = np.zeros((len(p), f_all.size), complex) if grad else None
+        for k, off in enumerate(offsets):
+            r = model.response(np.maximum(p + off, 1e-9), grad)
+            sl = slice(k * n_f, (k + 1) * n_f)
+            s11[sl], s21[sl] = r.s11, r.s21
+            if ds11 is not None and ds21 is not None:
+                ds11[:, sl], ds21[:, sl] = r.ds11, r.ds21
+        return s11, s21, ds11, ds21
+
+    stacked_mask = StackedMask(problem.mask, f, design_samples + 1)
+    z0 = space.to_free(space.clip(p0))
+    rec = minimax(
+        space,
+        stacked_mask,
+        f_all,
+        fn,
+        z0,
+        Stopping(max_evaluations, None, 100.0, 1e-7),
+        polish=False,
+        aggregate=True,
+    )
+    p = space.to_physical(rec.z)
+    if fab.grid is not None:
+        p = snap(p, model, fab.grid, fab.min_gap)
+    moved = model.layout(p)
+    after = estimate_yield(problem, moved, check_samples, seed + 1, correlated)
+    if fab_violations(fab, moved) or after.yield_fraction <= before.yield_fraction:
+        return CentringResult(layout, before, before, rec.evaluations)
+    return CentringResult(moved, before, after, rec.evaluations)
+
+
+class StackedMask:
+    """A mask applied to several designs laid end to end on one axis of length ``copies × nf``:
+    constraints per copy, and one region per copy and mask region (so that aggregation is per
+    sample)."""
+
+    def __init__(self, mask: Mask, f: NDArray, copies: int):
+        self.mask, self.f, self.copies = mask, f, copies
+
+    def region_indices(self, f_all: NDArray) -> list[NDArray[np.intp]]:
+        n = self.f.size
+        out = []
+        for k in range(self.copies):
+            for idx in self.mask.region_indices(self.f):
+                out.append(idx + k * n)
+        return out
+
+    def constraints(
+        self,
+        f_all: NDArray,
+        s11: NDArray,
+        s21: NDArray,
+        ds11: NDArray | None = None,
+        ds21: NDArray | None = None,
+    ) -> tuple[NDArray, NDArray | None]:
+        n = self.f.size
+        gs, jacs = [], []
+        for k in range(self.copies):
+            sl = slice(k * n, (k + 1) * n)
+            g, jac = self.mask.constraints(
+                self.f,
+                s11[sl],
+                s21[sl],
+                None if ds11 is None else ds11[:, sl],
+                None if ds21 is None else ds21[:, sl],
+            )
+            gs.append(g)
+            jacs.append(jac)
+        g = np.concatenate(gs)
+        return g, (None if ds11 is None else np.concatenate(jacs, axis=0))
