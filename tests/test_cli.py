@@ -78,6 +78,7 @@ def test_tapped_problem_shows_a_tapped_seed(capsys):
     assert "gap 0" not in seed_part and "none works" not in seed_part  # no end gaps with a tap
 
 
+@pytest.mark.slow
 def test_fixed_widths_keeps_every_resonator_at_the_feed_width(tmp_path):
     out = tmp_path / "fw"
     prob = str(ROOT / "problems/microstrip-x-band-alumina-n3.toml")

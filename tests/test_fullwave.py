@@ -420,6 +420,7 @@ needs_engine = pytest.mark.skipif(
 )
 
 
+@pytest.mark.slow
 @needs_engine
 def test_coarse_single_gap_end_to_end_against_the_fixture(fx, tmp_path):
     """The whole pipeline on one gap at the coarse mesh (about 25 s): the same engine and

@@ -43,6 +43,7 @@ def test_problem_set_is_large_and_varied():
     assert {_expected(p) for p in PROBLEMS} == {"feasible", "infeasible"}
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("path", PROBLEMS, ids=lambda p: p.stem)
 def test_problem_outcome(path):
     r = _result(path)
@@ -60,6 +61,7 @@ def test_problem_outcome(path):
         assert r.diagnosis.remedies and any(re.search(r"\d", m) for m in r.diagnosis.remedies)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(
     "path", [p for p in PROBLEMS if load_problem(p).medium != "ideal"], ids=lambda p: p.stem
 )
@@ -76,6 +78,7 @@ def test_no_returned_layout_breaks_a_fab_rule(path):
         np.testing.assert_allclose(steps, np.round(steps), atol=1e-6)
 
 
+@pytest.mark.slow
 def test_tapped_feed_on_pcb_where_end_gaps_are_impossible():
     # 0.1 mm minimum gap on a PCB laminate at 3 %: gap coupling is diagnosed impossible at the
     # ends, and the tapped feed meets the mask.
@@ -88,6 +91,7 @@ def test_tapped_feed_on_pcb_where_end_gaps_are_impossible():
     assert any("tapped feed" in m for m in gapped.diagnosis.remedies)
 
 
+@pytest.mark.slow
 def test_wideband_ideal_problems_recover_return_loss():
     wide = [p for p in PROBLEMS if p.stem.startswith("ideal") and load_problem(p).fbw >= 0.2]
     assert len(wide) >= 4
@@ -229,6 +233,7 @@ def test_strategies_are_our_names():
     assert [s.value for s in Strategy] == ["gradient", "derivative-free", "multistart"]
 
 
+@pytest.mark.slow
 def test_problem_file_can_hold_the_resonators_at_the_feed_width():
     """[resonators] width = "feed": the refiner moves gaps, lengths and taps only."""
     from dataclasses import replace

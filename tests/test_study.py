@@ -102,6 +102,7 @@ def test_too_many_designs_need_yes(tmp_path):
     assert len(study.load_study(p, allow_many=True).designs) == 540
 
 
+@pytest.mark.slow
 def test_every_executor_gives_the_same_rows(tmp_path):
     st = study.load_study(_small(tmp_path))
     serial = study.run_study(st, tmp_path / "serial", workers=1)
@@ -128,6 +129,7 @@ def test_every_executor_gives_the_same_rows(tmp_path):
     assert _rows(back) == _rows(serial)
 
 
+@pytest.mark.slow
 def test_killed_study_resumes_without_losing_or_repeating_designs(tmp_path):
     p = _write(
         tmp_path,
@@ -167,6 +169,7 @@ base = "{ALUMINA_BASE}"
     assert _rows(resumed) == _rows(fresh)
 
 
+@pytest.mark.slow
 def test_unreachable_scheduler_is_refused_and_nothing_is_written(tmp_path, capsys):
     out = tmp_path / "out"
     code = main(
@@ -178,6 +181,7 @@ def test_unreachable_scheduler_is_refused_and_nothing_is_written(tmp_path, capsy
     assert not out.exists()
 
 
+@pytest.mark.slow
 def test_study_verb_writes_table_and_plots(tmp_path, capsys):
     out = tmp_path / "out"
     assert main(["study", str(_small(tmp_path)), "--out", str(out), "--workers", "1"]) == 0

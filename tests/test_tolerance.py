@@ -167,6 +167,7 @@ def test_ideal_medium_has_no_yield():
         tolerance.estimate_yield(load_problem(ROOT / "problems/ideal-s-band-n5.toml"), LAY, 10)
 
 
+@pytest.mark.slow
 def test_yield_centring_raises_yield_on_independent_samples():
     w = _quiet()
     try:
@@ -186,6 +187,7 @@ def test_yield_centring_raises_yield_on_independent_samples():
     np.testing.assert_allclose(steps, np.round(steps), atol=1e-6)  # on the shop's grid
 
 
+@pytest.mark.slow
 def test_design_with_centre_yield(tmp_path, capsys):
     out = tmp_path / "c"
     assert (

@@ -68,8 +68,8 @@ def circuits() -> dict[str, object]:
     the single-design path (free and fixed widths), and S through the batched path."""
     import numpy as np
 
-    from refine.circuit.builder import layout_response
     from refine.circuit.model import strip_model_for
+    from refine.circuit.response import layout_response, medium_for
 
     out: dict[str, object] = {}
     for path in sorted((ROOT / "problems").glob("*.toml")):
