@@ -13,13 +13,12 @@ Python API (what the ``refine`` command does, as plain calls)::
     refine.write_outputs(result, seed, "out")    # Touchstone, DXF, SVG, plots, report
 """
 
-__version__ = "0.1.0"
-
 from refine.optimise.refiner import RefineResult, Status
 from refine.optimise.refiner import refine_problem as design
 from refine.optimise.seed import seed
 from refine.outputs.files import write_outputs
 from refine.spec.problem import Problem, ProblemError, load_problem
+from refine.version import VERSION as __version__
 
 __all__ = [
     "Problem",

@@ -19,8 +19,9 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from refine import __version__, study
+from refine import study
 from refine.circuit.response import evaluate_electrical, evaluate_layout, verification_grid
+from refine.fullwave import engine, handover, spacemap, verify
 from refine.optimise import seed as job
 from refine.optimise.minimax import Stopping, Strategy
 from refine.optimise.refiner import RefineResult, Status, refine_problem
@@ -33,6 +34,7 @@ from refine.spec.problem import ProblemError, load_problem
 from refine.synthesis import inverters as synthesis
 from refine.tolerance import centring
 from refine.tolerance import montecarlo as tolerance
+from refine.version import VERSION
 
 
 class UsageError(Exception):
@@ -382,8 +384,6 @@ def _cmd_design(args: argparse.Namespace) -> int:
         if r.status is not Status.MET:
             print("  (they describe the best design found, which does NOT meet the mask)")
         if args.fullwave is not None:
-            from refine.fullwave import handover, verify
-
             print()
             print(f"field solver check (mesh {args.fullwave}) ...", flush=True)
             check = verify.check_layout(problem, r.layout, args.fullwave)
@@ -408,7 +408,6 @@ def _fullwave_ready(problem, args: argparse.Namespace) -> None:
 
 def _field_engine():
     """The field-solver engine, or a UsageError saying what to install."""
-    from refine.fullwave import engine
 
     try:
         return engine.find_engine()
@@ -555,7 +554,6 @@ def _free_widths(args: argparse.Namespace) -> bool | None:
 
 
 def _cmd_fullwave(args: argparse.Namespace) -> int:
-    from refine.fullwave import handover, spacemap, verify
 
     problem = load_problem(args.problem)
     lay = export.read_layout(args.layout)
@@ -600,7 +598,7 @@ def build_parser() -> argparse.ArgumentParser:
         description="Design end-coupled (series-gap) half-wave line bandpass filters that meet a "
         "ripple/rejection mask under a shop's fab rules.",
     )
-    ap.add_argument("--version", action="version", version=f"refine {__version__}")
+    ap.add_argument("--version", action="version", version=f"refine {VERSION}")
     sub = ap.add_subparsers(dest="verb", required=True, metavar="VERB")
     p = sub.add_parser(
         "synth",

@@ -41,7 +41,11 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+from refine.optimise.refiner import refine_problem
+from refine.outputs.export import write_atomic, write_json
 from refine.spec.problem import ProblemError, parse_problem
+from refine.tolerance import montecarlo as tolerance
+from refine.validity import ModelRangeWarning
 
 MAX_DESIGNS = 500  # more combinations than this need --yes
 _TOP = {"name", "base", "axes", "options"}
@@ -150,10 +154,6 @@ def load_study(path: str | Path, allow_many: bool = False) -> Study:
 def run_design(index: int, problem_dict: dict, source: str, yield_samples: int) -> dict:
     """One design through the full path; a plain function of plain data, so any executor can
     run it. Returns the table row (without the axis labels)."""
-    from refine.optimise.refiner import refine_problem
-    from refine.tolerance import montecarlo as tolerance
-    from refine.validity import ModelRangeWarning
-
     t0 = time.perf_counter()
     problem = parse_problem(problem_dict, source)
     with warnings.catch_warnings():
@@ -238,9 +238,7 @@ def run_study(
     progress: Callable[[int, int, dict], None] | None = None,
 ):
     """Run every design not yet in the store; return the full results table (pandas)."""
-    import pandas as pd
-
-    from refine.outputs.export import write_atomic, write_json
+    import pandas as pd  # deferred: pandas costs start-up time to every other verb
 
     out = Path(out)
     store = out / "results.jsonl"

@@ -17,9 +17,9 @@ from pathlib import Path
 import numpy as np
 from numpy.typing import NDArray
 
-from refine import __version__
 from refine.circuit.layout import Layout
 from refine.spec.coupling import Coupling
+from refine.version import VERSION
 
 
 def write_atomic(path: str | Path, writer: Callable[[Path], None]) -> Path:
@@ -264,4 +264,4 @@ def write_json(path: str | Path, data: dict) -> Path:
     return write_text_atomic(path, json.dumps(_clean(data), indent=2, allow_nan=False) + "\n")
 
 
-GENERATOR = f"refine {__version__}"
+GENERATOR = f"refine {VERSION}"

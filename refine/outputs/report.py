@@ -16,10 +16,13 @@ import numpy as np
 
 from refine import validity
 from refine.circuit import cascade
+from refine.circuit.layout import Layout
 from refine.circuit.response import layout_build, strip_medium_for
 from refine.optimise import seed as job
 from refine.optimise.refiner import RefineResult, Status
 from refine.physics import gap_fixture
+from refine.physics.substrate import Substrate
+from refine.spec.coupling import Coupling
 
 BREAKDOWN_V_PER_M = 1.0e6  # conservative: 1 kV/mm
 
@@ -160,7 +163,8 @@ def field_verdicts(r: RefineResult) -> list[dict]:
     field-solver calibration favours there (empty for other media)."""
     if r.layout is None or r.problem.medium != "microstrip":
         return []
-    return gap_fixture.layout_verdicts(r.layout, r.problem.substrate)
+    assert r.problem.substrate is not None
+    return layout_verdicts(r.layout, r.problem.substrate)
 
 
 def report_md(
@@ -297,3 +301,38 @@ def report_md(
         lines += ["", "## Notes", ""] + [f"- {n}" for n in r.notes]
     lines += ["", CAUTIONS]
     return "\n".join(lines) + "\n"
+
+
+def layout_verdicts(
+    layout: Layout, substrate: Substrate, fx: gap_fixture.Fixture | None = None
+) -> list[dict]:
+    """For each distinct gap of a layout (mirror copies once): the gap, the width it sees (the
+    geometric mean of its two sides: the fixture holds symmetric gaps) and the verdict."""
+    fx = fx if fx is not None else gap_fixture.load_fixture()
+    if layout.external is Coupling.GAP:
+        sides = [layout.feed_width, *layout.widths, layout.feed_width]
+    else:
+        sides = list(layout.widths)
+    first = layout.external.first_gap
+    seen = {}
+    for k, s in enumerate(layout.gaps):
+        w = math.sqrt(sides[k] * sides[k + 1])
+        key = (round(w, 9), round(s, 9))
+        if key not in seen:
+            seen[key] = (k + first, w, s)
+    out = []
+    for k, w, s in seen.values():
+        vd = gap_fixture.verdict(w, s, substrate, fx)
+        out.append(
+            {
+                "gap": k,
+                "width_m": w,
+                "gap_m": s,
+                "nearest": asdict(vd.nearest),
+                "distance": vd.distance,
+                "series_capacitance_error": vd.errors,
+                "closest": vd.closest,
+                "sentence": vd.sentence(),
+            }
+        )
+    return out

@@ -11,19 +11,14 @@ from __future__ import annotations
 import json
 import math
 import warnings
-from dataclasses import asdict, dataclass
+from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING
 
 from refine import _validate as v
 from refine import validity
 from refine.physics.microstrip import Microstrip
 from refine.physics.strip import GAP_MODELS, gap_capacitances
 from refine.physics.substrate import Substrate
-from refine.spec.coupling import Coupling
-
-if TYPE_CHECKING:  # a layout is only read here; refine.circuit sits above refine.physics
-    from refine.circuit.layout import Layout
 
 FIXTURE = Path(__file__).with_name("gap_calibration.json")
 
@@ -133,36 +128,3 @@ def verdict(w: float, s: float, substrate: Substrate, fx: Fixture | None = None)
     best = min(comparison(fx), key=lambda row: _distance(g, row["geometry"]))
     errors = {m: e[0] for m, e in best["models"].items()}
     return ModelVerdict(best["geometry"], _distance(g, best["geometry"]), errors)
-
-
-def layout_verdicts(layout: Layout, substrate: Substrate, fx: Fixture | None = None) -> list[dict]:
-    """For each distinct gap of a layout (mirror copies once): the gap, the width it sees (the
-    geometric mean of its two sides: the fixture holds symmetric gaps) and the verdict."""
-    fx = fx if fx is not None else load_fixture()
-    if layout.external is Coupling.GAP:
-        sides = [layout.feed_width, *layout.widths, layout.feed_width]
-    else:
-        sides = list(layout.widths)
-    first = layout.external.first_gap
-    seen = {}
-    for k, s in enumerate(layout.gaps):
-        w = math.sqrt(sides[k] * sides[k + 1])
-        key = (round(w, 9), round(s, 9))
-        if key not in seen:
-            seen[key] = (k + first, w, s)
-    out = []
-    for k, w, s in seen.values():
-        vd = verdict(w, s, substrate, fx)
-        out.append(
-            {
-                "gap": k,
-                "width_m": w,
-                "gap_m": s,
-                "nearest": asdict(vd.nearest),
-                "distance": vd.distance,
-                "series_capacitance_error": vd.errors,
-                "closest": vd.closest,
-                "sentence": vd.sentence(),
-            }
-        )
-    return out
