@@ -67,7 +67,7 @@ def integer_in_range(name: str, value: object, lo: int, hi: int) -> int:
 
 def finite_array(name: str, value: ArrayLike, *, dtype: type = float) -> NDArray:
     """Return ``value`` as an array after checking every entry is finite."""
-    arr = np.asarray(value, dtype=dtype)
+    arr: NDArray = np.asarray(value, dtype=dtype)
     if not np.all(np.isfinite(arr)):
         bad = arr[~np.isfinite(arr)].ravel()[0]
         raise ValueError(f"{name} must be finite everywhere, got {bad}")

@@ -73,7 +73,7 @@ def margins_table(res: MaskResult) -> str:
 
 def layout_table(seed: job.Seed) -> str:
     """Resonators and gaps in order from input to output, with each gap's fab shortfall."""
-    real = seed.realisation
+    real = seed.strip_realisation
     lay = real.layout
     by_gap = {g.index: g for g in real.gaps}
     rows = []
@@ -132,14 +132,14 @@ def _print_seed(sd: job.Seed) -> None:
     print()
     print(design_table(d))
     if sd.realisation is not None:
-        lay = sd.realisation.layout
+        lay = sd.strip_realisation.layout
         print()
         print(
             f"realised seed ({p.gap_model} gaps), feed width {lay.feed_width * 1e6:.1f} um, "
             f"total length {lay.total_length * 1e3:.3f} mm:"
         )
         print(layout_table(sd))
-        for note in sd.realisation.notes:
+        for note in sd.strip_realisation.notes:
             print(f"  fab: {note}")
     print()
     where = "physical model with loss" if sd.realisation is not None else "ideal elements"
@@ -180,7 +180,7 @@ def _cmd_synth(args: argparse.Namespace) -> int:
             "order_notes": list(choice.notes) if choice else [],
         }
         if problem.medium != "ideal":
-            real = job.seed(problem).realisation
+            real = job.seed(problem).strip_realisation
             out["seed_layout_m"] = export.layout_dict(real.layout)
             out["gaps"] = [
                 {
@@ -216,26 +216,26 @@ def _cmd_synth(args: argparse.Namespace) -> int:
     print(f"mask {'met' if res.passed else 'NOT met'} by the closed-form seed on ideal elements")
     if problem.medium != "ideal":
         sd = job.seed(problem)
-        lay = sd.realisation.layout
+        lay = sd.strip_realisation.layout
         print()
         print(
             f"realised seed ({problem.gap_model} gaps), feed width {lay.feed_width * 1e6:.1f} um:"
         )
         print(layout_table(sd))
-        for note in sd.realisation.notes:
+        for note in sd.strip_realisation.notes:
             print(f"  fab: {note}")
     return 0
 
 
 def refined_table(r: RefineResult) -> str:
     if r.layout is None:
-        rows = [[f"C {k}", f"{c * 1e12:.5f} pF", ""] for k, c in enumerate(r.capacitances)]
+        caps, thetas = r.electrical
+        rows = [[f"C {k}", f"{c * 1e12:.5f} pF", ""] for k, c in enumerate(caps)]
         rows += [
-            [f"theta {j + 1}", f"{math.degrees(t):.3f} deg at f0", ""]
-            for j, t in enumerate(r.thetas)
+            [f"theta {j + 1}", f"{math.degrees(t):.3f} deg at f0", ""] for j, t in enumerate(thetas)
         ]
         return _table(["element", "refined", ""], rows)
-    lay, seed = r.layout, r.seed_layout
+    lay, seed = r.strip_layouts
     rows = []
     first_gap = lay.external.first_gap
     for k, s in enumerate(lay.gaps):
@@ -247,7 +247,7 @@ def refined_table(r: RefineResult) -> str:
         rows.append(
             [f"resonator {j + 1} width", f"{w * 1e6:.2f} um", f"{seed.widths[j] * 1e6:.2f} um"]
         )
-    if lay.taps is not None:
+    if lay.taps is not None and seed.taps is not None:
         for i, t in enumerate(lay.taps):
             rows.append(
                 [
@@ -352,9 +352,10 @@ def _cmd_design(args: argparse.Namespace) -> int:
         for name, m in r.worst.items()
     ]
     print(_table(["mask region", "refined (dB)", "seed (dB)", "worst at (GHz)"], rows))
-    if r.snapped_margin is not None:
+    grid = problem.fab.grid if problem.fab is not None else None
+    if r.snapped_margin is not None and grid is not None:
         print(
-            f"snapped to the shop's {problem.fab.grid * 1e6:g} um grid: worst margin "
+            f"snapped to the shop's {grid * 1e6:g} um grid: worst margin "
             f"{r.unsnapped_margin:+.2f} dB before, {r.snapped_margin:+.2f} dB after"
         )
     print()
@@ -386,7 +387,7 @@ def _cmd_design(args: argparse.Namespace) -> int:
         if args.fullwave is not None:
             print()
             print(f"field solver check (mesh {args.fullwave}) ...", flush=True)
-            check = verify.check_layout(problem, r.layout, args.fullwave)
+            check = verify.check_layout(problem, r.strip_layouts[0], args.fullwave)
             written = handover.write_check(check, args.out, force=True)
             print(
                 f"{check.runs} engine runs, {check.seconds:.0f} s: {check.comparison.summary_line()}"
@@ -467,7 +468,7 @@ def _cmd_yield(args: argparse.Namespace) -> int:
     cols |= {f"length_{j + 1}_m": smp.lengths[:, j] for j in range(smp.lengths.shape[1])}
     if smp.taps is not None:
         cols |= {"tap_in_m": smp.taps[:, 0], "tap_out_m": smp.taps[:, 1]}
-    if smp.eps_r is not None:
+    if smp.eps_r is not None and smp.height is not None:
         cols |= {"eps_r": smp.eps_r, "height_m": smp.height}
     import pandas as pd
 

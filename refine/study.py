@@ -130,7 +130,8 @@ def load_study(path: str | Path, allow_many: bool = False) -> Study:
         raise StudyError(
             f"{p}: the axes give {n} designs, more than {MAX_DESIGNS}; pass --yes to run them"
         )
-    designs, labels = [], []
+    designs: list[dict] = []
+    labels: list[dict] = []
     for combo in itertools.product(*(axes[k] for k in keys)):
         d = copy.deepcopy(base)
         label = {}
@@ -167,9 +168,9 @@ def run_design(index: int, problem_dict: dict, source: str, yield_samples: int) 
             "seed_return_loss_margin_db": r.seed_worst.get("passband return loss", float("nan")),
             "refined_return_loss_margin_db": r.worst.get("passband return loss", float("nan")),
             "evaluations": r.evaluations,
-            "order": len(r.thetas) if r.layout is None else r.layout.order,
+            "order": len(r.electrical[1]) if r.layout is None else r.layout.order,
             "fbw": problem.fbw,
-            "min_gap_m": problem.fab.min_gap if problem.fab else None,
+            "min_gap_m": problem.strip_fab.min_gap if problem.fab else None,
             "external": problem.external,
         }
         if r.layout is not None:

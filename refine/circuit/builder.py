@@ -36,6 +36,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from refine import _validate as v
+from refine._typing import Values
 from refine.circuit import cascade
 from refine.circuit.layout import Layout
 from refine.physics.ideal import IdealTEM
@@ -107,7 +108,7 @@ class ElementMap:
         open-end extension.
     """
 
-    lengths: list[list[tuple[Dim, int, float]]] = field(default_factory=list)
+    lengths: list[list[tuple[Dim, int, Values]]] = field(default_factory=list)
     gaps: list[GapSlot] = field(default_factory=list)
     lines: list[tuple[int, int]] = field(default_factory=list)
     open_ends: list[tuple[int, int]] = field(default_factory=list)
@@ -151,55 +152,58 @@ def build(
     coupling = Coupling(coupling)
     f = v.frequencies("f", f) if validate else np.asarray(f, float)
     check_gap_model(medium, gap_model)
-    widths = v.positive_array("widths", widths) if validate else np.asarray(widths, float)
-    gaps = v.positive_array("gaps", gaps) if validate else np.asarray(gaps, float)
-    lengths = v.positive_array("lengths", lengths) if validate else np.asarray(lengths, float)
-    n = widths.shape[-1]
+    widths_a = v.positive_array("widths", widths) if validate else np.asarray(widths, float)
+    gaps_a = v.positive_array("gaps", gaps) if validate else np.asarray(gaps, float)
+    lengths_a = v.positive_array("lengths", lengths) if validate else np.asarray(lengths, float)
+    n = widths_a.shape[-1]
     n_gaps = coupling.n_gaps(n)
-    if lengths.shape[-1] != n or gaps.shape[-1] != n_gaps:
+    if lengths_a.shape[-1] != n or gaps_a.shape[-1] != n_gaps:
         raise ValueError(
             f"a {coupling}-coupled filter with {n} resonators needs {n} lengths and {n_gaps} "
-            f"gaps, got {lengths.shape[-1]} and {gaps.shape[-1]}"
+            f"gaps, got {lengths_a.shape[-1]} and {gaps_a.shape[-1]}"
         )
+    taps_a: NDArray | None = None
     if coupling is Coupling.TAP:
         if taps is None:
             raise ValueError("a tapped filter needs two tap positions")
-        taps = v.positive_array("taps", taps) if validate else np.asarray(taps, float)
-        if taps.shape[-1] != 2:
-            raise ValueError(f"a tapped filter needs 2 taps, got {taps.shape[-1]}")
-    if track and widths.ndim != 1:
+        taps_a = v.positive_array("taps", taps) if validate else np.asarray(taps, float)
+        if taps_a.shape[-1] != 2:
+            raise ValueError(f"a tapped filter needs 2 taps, got {taps_a.shape[-1]}")
+    if track and widths_a.ndim != 1:
         raise ValueError("a tracked build is for one design: widths must be 1-D")
     adj = adjust or Adjustments()
     if adj.length_offsets is not None:
-        lengths = lengths + np.asarray(adj.length_offsets, float)
-    if taps is not None and adj.tap_offsets is not None:
-        taps = taps + np.asarray(adj.tap_offsets, float)
-    s_model, ds_model = gaps, None
+        lengths_a = lengths_a + np.asarray(adj.length_offsets, float)
+    if taps_a is not None and adj.tap_offsets is not None:
+        taps_a = taps_a + np.asarray(adj.tap_offsets, float)
+    s_model, ds_model = gaps_a, None
     if adj.gap_offsets is not None:
-        shrunk = gaps - np.asarray(adj.gap_offsets, float)
-        floor = 0.1 * gaps
+        shrunk = gaps_a - np.asarray(adj.gap_offsets, float)
+        floor = 0.1 * gaps_a
         s_model = np.maximum(shrunk, floor)
         ds_model = np.where(shrunk > floor, 1.0, 0.1)
     kl = adj.loss_factor
     # one design: scalars (the numbers of the optimiser's inner loop); a batch: (..., 1) columns
-    batched = widths.ndim > 1
+    batched = widths_a.ndim > 1
 
-    def pick(x: NDArray, j: int) -> NDArray:
+    def pick(x: NDArray, j: int) -> Values:
         return x[..., j, None] if batched else x[j]
 
-    w = [pick(widths, j) for j in range(n)]
+    w = [pick(widths_a, j) for j in range(n)]
     props = _line_properties_shared(medium, w, f, kl)
     els: list[cascade.Element] = []
     emap = ElementMap() if track else None
 
-    def add(e: cascade.Element, moves: list[tuple[Dim, int, float]], line_of: int | None) -> None:
+    def add(e: cascade.Element, moves: list[tuple[Dim, int, Values]], line_of: int | None) -> None:
         els.append(e)
         if emap is not None:
             emap.lengths.append(moves)
             if line_of is not None:
                 emap.lines.append((len(els) - 1, line_of))
 
-    def add_gap(pos: int, w_in: NDArray, w_out: NDArray, sides: tuple[int | None, int | None]):
+    def add_gap(
+        pos: int, w_in: Values, w_out: Values, sides: tuple[int | None, int | None]
+    ) -> None:
         s = pick(s_model, pos)
         ds = 1.0 if ds_model is None else pick(ds_model, pos)
         factor = 1.0 if adj.c_series_factors is None else adj.c_series_factors[pos]
@@ -225,10 +229,10 @@ def build(
         if len(parts) == 3:
             add(parts[2], [(Dim.GAP, pos, 0.5 * ds)], sides[1])
 
-    def add_line(j: int, length: NDArray, moves: list[tuple[Dim, int, float]]) -> None:
+    def add_line(j: int, length: Values, moves: list[tuple[Dim, int, Values]]) -> None:
         add(cascade.Line(props[j][0], props[j][1], length), moves, j)
 
-    def add_stub(j: int, t: NDArray, i: int) -> None:
+    def add_stub(j: int, t: Values, i: int) -> None:
         dl = open_end_extensions(medium, w[j])
         add(cascade.ShuntOpenStub(props[j][0], props[j][1], t + dl), [(Dim.TAP, i, 1.0)], j)
         if emap is not None:
@@ -241,14 +245,14 @@ def build(
         for k in range(n + 1):
             add_gap(k, sides_w[k], sides_w[k + 1], coupling.sides(k, n))
             if k < n:
-                add_line(k, pick(lengths, k), [(Dim.LENGTH, k, 1.0)])
+                add_line(k, pick(lengths_a, k), [(Dim.LENGTH, k, 1.0)])
     else:
-        assert taps is not None
-        t_in, t_out = pick(taps, 0), pick(taps, 1)
+        assert taps_a is not None
+        t_in, t_out = pick(taps_a, 0), pick(taps_a, 1)
         add_stub(0, t_in, 0)
         for j in range(n):
-            ln = pick(lengths, j)
-            moves = [(Dim.LENGTH, j, 1.0)]
+            ln = pick(lengths_a, j)
+            moves: list[tuple[Dim, int, Values]] = [(Dim.LENGTH, j, 1.0)]
             if j == 0:
                 ln = ln - t_in
                 moves.append((Dim.TAP, 0, -1.0))
@@ -293,7 +297,7 @@ def gap_elements(
 
 
 def _line_properties_shared(
-    medium: StripMedium, widths: Sequence[NDArray | np.floating], f: NDArray, loss_factor: float
+    medium: StripMedium, widths: Sequence[Values], f: NDArray, loss_factor: float
 ) -> list[tuple[NDArray, NDArray]]:
     """Line properties per resonator, computed once per distinct width (the common case is one
     width for every resonator of an unbatched layout)."""

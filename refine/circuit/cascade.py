@@ -32,15 +32,16 @@ the derivative with respect to every parameter, at a cost independent of their n
 from __future__ import annotations
 
 import enum
-from collections.abc import Collection, Sequence
+from collections.abc import Collection, Mapping, Sequence
 from dataclasses import dataclass
 from functools import cached_property
-from typing import NamedTuple, Protocol, runtime_checkable
+from typing import Any, NamedTuple, Protocol, runtime_checkable
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from refine import _validate as v
+from refine._typing import Values
 
 Array = NDArray[np.complex128]
 
@@ -48,10 +49,10 @@ Array = NDArray[np.complex128]
 class Abcd(NamedTuple):
     """The four entries of an ABCD matrix, each broadcastable to ``(..., nf)``."""
 
-    a: ArrayLike
-    b: ArrayLike
-    c: ArrayLike
-    d: ArrayLike
+    a: Values
+    b: Values
+    c: Values
+    d: Values
 
 
 class Kind(enum.Enum):
@@ -71,13 +72,14 @@ class Element(Protocol):
     the derivative of that value.
     """
 
-    kind: Kind
+    @property
+    def kind(self) -> Kind: ...
 
-    def value(self, omega: NDArray[np.float64]) -> ArrayLike | Abcd: ...
+    def value(self, omega: NDArray[np.float64]) -> Values | Abcd: ...
 
     def derivatives(
         self, omega: NDArray[np.float64], wrt: Collection[str] | None = None
-    ) -> dict[str, ArrayLike | Abcd]: ...
+    ) -> Mapping[str, Values | Abcd]: ...
 
 
 # --------------------------------------------------------------------------------------------
@@ -107,7 +109,7 @@ def _cosh_sinh(x: ArrayLike) -> tuple[NDArray, Array]:
 class SeriesCapacitor:
     """Ideal series capacitor, ``capacitance`` in farads (> 0), z = 1/(jωC)."""
 
-    capacitance: ArrayLike
+    capacitance: Values
     kind: Kind = Kind.SERIES
 
     def value(self, omega: NDArray[np.float64]) -> Array:
@@ -126,7 +128,7 @@ class SeriesCapacitor:
 class ShuntCapacitor:
     """Ideal shunt capacitor to ground, ``capacitance`` in farads (≥ 0), y = jωC."""
 
-    capacitance: ArrayLike
+    capacitance: Values
     kind: Kind = Kind.SHUNT
 
     def value(self, omega: NDArray[np.float64]) -> Array:
@@ -149,9 +151,9 @@ class Line:
     Derivatives are given for ``length``, ``gamma`` and ``z_c`` (the last two per frequency).
     """
 
-    gamma: ArrayLike
-    z_c: ArrayLike
-    length: ArrayLike
+    gamma: Values
+    z_c: Values
+    length: Values
     kind: Kind = Kind.GENERAL
 
     @cached_property
@@ -192,17 +194,17 @@ class PiNetwork:
     ABCD = [[1 + z y2, z], [y1 + y2 + y1 y2 z, 1 + z y1]].
     """
 
-    c_series: ArrayLike
-    c_shunt_in: ArrayLike
-    c_shunt_out: ArrayLike
+    c_series: Values
+    c_shunt_in: Values
+    c_shunt_out: Values
     kind: Kind = Kind.GENERAL
 
     def _parts(self, omega: NDArray[np.float64]) -> tuple[Array, Array, Array]:
         jw = 1j * omega
         return (
             -1j / (omega * np.asarray(self.c_series)),
-            jw * self.c_shunt_in,
-            jw * self.c_shunt_out,
+            jw * np.asarray(self.c_shunt_in),
+            jw * np.asarray(self.c_shunt_out),
         )
 
     def value(self, omega: NDArray[np.float64]) -> Abcd:
@@ -233,9 +235,9 @@ class ShuntOpenStub:
     Parameters as for :class:`Line`. Derivatives for ``length``, ``gamma`` and ``z_c``.
     """
 
-    gamma: ArrayLike
-    z_c: ArrayLike
-    length: ArrayLike
+    gamma: Values
+    z_c: Values
+    length: Values
     kind: Kind = Kind.SHUNT
 
     @cached_property
@@ -263,44 +265,44 @@ class ShuntOpenStub:
 # --------------------------------------------------------------------------------------------
 
 
-def _matrix_times(m: tuple, kind: Kind, e: object) -> tuple:
+def _matrix_times(m: tuple, kind: Kind, e: Any) -> tuple:
     a, b, c, d = m
     if kind is Kind.SERIES:
         return a, a * e + b, c, c * e + d
     if kind is Kind.SHUNT:
         return a + b * e, b, c + d * e, d
-    ea, eb, ec, ed = e  # type: ignore[misc]
+    ea, eb, ec, ed = e
     return a * ea + b * ec, a * eb + b * ed, c * ea + d * ec, c * eb + d * ed
 
 
-def _row_times(row: tuple, kind: Kind, e: object) -> tuple:
+def _row_times(row: tuple, kind: Kind, e: Any) -> tuple:
     l1, l2 = row
     if kind is Kind.SERIES:
         return l1, l1 * e + l2
     if kind is Kind.SHUNT:
         return l1 + l2 * e, l2
-    ea, eb, ec, ed = e  # type: ignore[misc]
+    ea, eb, ec, ed = e
     return l1 * ea + l2 * ec, l1 * eb + l2 * ed
 
 
-def _times_column(kind: Kind, e: object, col: tuple) -> tuple:
+def _times_column(kind: Kind, e: Any, col: tuple) -> tuple:
     r1, r2 = col
     if kind is Kind.SERIES:
         return r1 + e * r2, r2
     if kind is Kind.SHUNT:
         return r1, e * r1 + r2
-    ea, eb, ec, ed = e  # type: ignore[misc]
+    ea, eb, ec, ed = e
     return ea * r1 + eb * r2, ec * r1 + ed * r2
 
 
-def _bilinear(row: tuple, kind: Kind, de: object, col: tuple) -> Array:
+def _bilinear(row: tuple, kind: Kind, de: Any, col: tuple) -> Array:
     l1, l2 = row
     r1, r2 = col
     if kind is Kind.SERIES:
         return l1 * de * r2
     if kind is Kind.SHUNT:
         return l2 * de * r1
-    da, db, dc, dd = de  # type: ignore[misc]
+    da, db, dc, dd = de
     return l1 * (da * r1 + db * r2) + l2 * (dc * r1 + dd * r2)
 
 
@@ -373,7 +375,9 @@ def s11_s21(elements: Sequence[Element], f: ArrayLike, z_ref: float) -> Transmis
     a, b, c, d = chain_abcd(elements, f)
     bz, cz = b / z, c * z
     den = a + bz + cz + d
-    return Transmission((a + bz - cz - d) / den, 2.0 / den)
+    return Transmission(
+        np.asarray((a + bz - cz - d) / den, complex), np.asarray(2.0 / den, complex)
+    )
 
 
 class Gradient(NamedTuple):
@@ -422,7 +426,7 @@ def s11_s21_gradient(
 
     shape = np.broadcast_shapes(np.shape(den), np.shape(num), omega.shape)
     den = np.broadcast_to(np.asarray(den, dtype=complex), shape)
-    s21 = 2.0 / den
+    s21 = np.asarray(2.0 / den, complex)
     s11 = np.broadcast_to(np.asarray(num, dtype=complex), shape) / den
     ds11: list[dict[str, Array]] = []
     ds21: list[dict[str, Array]] = []
@@ -443,12 +447,12 @@ def element_matrices(element: Element, f: ArrayLike) -> NDArray[np.complex128]:
     """ABCD of one element stacked as ``(..., nf, 2, 2)`` (for export, debugging, baselines)."""
     omega = _omega(f)
     val = element.value(omega)
-    if element.kind is Kind.SERIES:
+    if isinstance(val, Abcd):
+        m = val
+    elif element.kind is Kind.SERIES:
         m = Abcd(1.0, val, 0.0, 1.0)
-    elif element.kind is Kind.SHUNT:
-        m = Abcd(1.0, 0.0, val, 1.0)
     else:
-        m = val  # type: ignore[assignment]
+        m = Abcd(1.0, 0.0, val, 1.0)
     shape = np.broadcast_shapes(*(np.shape(x) for x in m), omega.shape)
     out = np.empty((*shape, 2, 2), dtype=complex)
     out[..., 0, 0], out[..., 0, 1], out[..., 1, 0], out[..., 1, 1] = m

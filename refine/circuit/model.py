@@ -165,12 +165,6 @@ class StripFilterModel:
         """The cascade elements of the design ``p`` (range warnings are the caller's)."""
         return self._build(p, False)[0]
 
-    def gap_networks(self, p: NDArray) -> list[tuple[int, cascade.PiNetwork]]:
-        """(position in the gap list, π-network element index) of every series gap of ``p``."""
-        _, emap = self._build(p, True)
-        assert emap is not None
-        return [(slot.position, slot.element) for slot in emap.gaps]
-
     def _gap_pi(self, w_in: float, w_out: float, s: complex) -> tuple[complex, complex, complex]:
         c = gap_capacitances(self.medium, self.gap_model, w_in, w_out, s)
         return (
@@ -240,8 +234,8 @@ class StripFilterModel:
                     ds11[i_w] += g.ds11[e]["gamma"] * dgam + g.ds11[e]["z_c"] * dz
                     ds21[i_w] += g.ds21[e]["gamma"] * dgam + g.ds21[e]["z_c"] * dz
             for slot in emap.gaps:
-                for side, jj in enumerate(slot.resonators):
-                    if jj != j:
+                for side, res in enumerate(slot.resonators):
+                    if res != j:
                         continue
                     args_p = [slot.w_in, slot.w_out]
                     args_m = [slot.w_in, slot.w_out]

@@ -26,9 +26,9 @@ from refine.spec.problem import Problem
 def medium_for(problem: Problem, loss: bool = True) -> StripMedium | None:
     """The strip medium of a problem, or None for the ideal medium."""
     if problem.medium == "microstrip":
-        return Microstrip(problem.substrate, loss=loss)
+        return Microstrip(problem.strip_substrate, loss=loss)
     if problem.medium == "stripline":
-        return Stripline(problem.substrate, loss=loss)
+        return Stripline(problem.strip_substrate, loss=loss)
     return None
 
 

@@ -12,6 +12,7 @@ import json
 import os
 import sys
 import time
+from typing import Any
 
 import numpy as np
 
@@ -91,12 +92,12 @@ def main(job_path, out_path):
     elapsed = time.time() - t0
 
     freq = np.asarray(job["frequencies"], float)
-    out = {"f": freq, "elapsed": np.array(elapsed)}
-    for p, port in zip(job["ports"], ports, strict=True):
+    out: dict[str, Any] = {"f": freq, "elapsed": np.array(elapsed)}
+    for spec, port in zip(job["ports"], ports, strict=True):
         port.ReadUIData(sim_path, freq)
-        n = int(p["number"])
-        axis = {"x": 0, "y": 1, "z": 2}[p["direction"]]
-        start = float(p["start"][axis])
+        n = int(spec["number"])
+        i_axis = {"x": 0, "y": 1, "z": 2}[spec["direction"]]
+        start = float(spec["start"][i_axis])
         meas = start + port.direction * port.measplane_shift * UNIT
         out[f"v{n}"] = np.asarray(port.uf_tot, complex)
         out[f"i{n}"] = np.asarray(port.if_tot, complex)

@@ -145,15 +145,15 @@ def layout_structure(layout: Layout, substrate: Substrate, length: float) -> Str
     # tapped feeds arrive from -y; bring both to one box edge
     y_edge = min(s.y0 for s in strips)
     out = []
-    feeds = []
+    tap_feeds: list[Feed] = []
     for s in strips:
         if s.name.startswith("feed"):
             s = Strip(s.x0, y_edge, s.x1, s.y1, s.name)
-            feeds.append(Feed("y", -1, 0.0, y_edge, 0.5 * (s.x0 + s.x1), wf))
+            tap_feeds.append(Feed("y", -1, 0.0, y_edge, 0.5 * (s.x0 + s.x1), wf))
         out.append(s)
     res = [s for s in out if s.name.startswith("resonator")]
     openings = tuple(("x", a.x1, b.x0) for a, b in itertools.pairwise(res))
-    return Structure(tuple(out), (feeds[0], feeds[1]), openings, layout.is_mirror)
+    return Structure(tuple(out), (tap_feeds[0], tap_feeds[1]), openings, layout.is_mirror)
 
 
 def gap_structure(width: float, gap: float, length: float) -> Structure:
@@ -196,7 +196,7 @@ def build_mesh(st: Structure, substrate: Substrate, f_max: float, res: Resolutio
     d_max = meshing.max_cell(f_max, substrate.eps_r, res.cells_per_wavelength)
     edge = min(res.edge_cell, d_max)
     margin = res.side_margin * h
-    pts = {"x": [], "y": []}
+    pts: dict[str, list[tuple[float, float]]] = {"x": [], "y": []}
     for s in st.strips:
         pts["x"] += [(s.x0, edge), (s.x1, edge)]
         pts["y"] += [(s.y0, edge), (s.y1, edge)]

@@ -190,9 +190,9 @@ def _q_groups(layout: Layout, with_gap_offsets: bool) -> list[tuple[str, tuple[i
     if layout.external is Coupling.TAP:
         fields.append(("tap_offsets", 2))
     fields.append(("loss_factor", 1))
-    groups = []
+    groups: list[tuple[str, tuple[int, ...]]] = []
     for name, n in fields:
-        ties = dict(mirror_ties(n, 0)) if layout.is_mirror else {}
+        ties = {i: j for i, j in mirror_ties(n, 0)} if layout.is_mirror else {}
         mirrored = set(ties.values())
         for i in range(n):
             if i not in mirrored:
@@ -257,6 +257,7 @@ def extract_correction(
         sol = least_squares(resid, q0, bounds=(lo, hi), x_scale=0.1, diff_step=1e-4)
         if best is None or sol.cost < best.cost:
             best = sol
+    assert best is not None
     rms = float(np.sqrt(np.mean(best.fun**2)))
     return _q_to_correction(lay, groups, best.x), rms
 
@@ -279,7 +280,7 @@ def rerefine(
     assert problem.fab is not None
     f = verification_grid(problem, 201)
     model = _model(problem, layout, f, corr.adjustments())
-    space = step_space(model, layout, step[0], step[1], problem.fab.min_gap)
+    space = step_space(model, layout, step[0], step[1], problem.strip_fab.min_gap)
 
     def fn(p: NDArray, grad: bool):
         r = model.response(p, grad)
@@ -370,7 +371,12 @@ def correct(
     z_star = sp.to_free(model.vector(layout))
     corr: ModelCorrection | None = None
     cur = layout
-    layouts, checks, extracted, misfits, notes = [layout], [], [], [], []
+    layouts: list[Layout] = [layout]
+    checks: list[verify.FieldCheck] = []
+    corrections: list[ModelCorrection] = []
+    maps: list[Layout] = []
+    misfits: list[float] = []
+    notes: list[str] = []
     for k in range(max_runs):
         wd = Path(workdir) / f"round-{k + 1}" if workdir is not None else None
         c = verify.check_layout(problem, cur, mesh, wd)
@@ -383,12 +389,12 @@ def correct(
             break
         if method == "implicit":
             corr, misfit = extract_correction(problem, checks, corr)
-            extracted.append(corr)
+            corrections.append(corr)
             misfits.append(misfit)
             cur_new = rerefine(problem, cur, corr)
         else:
-            xc = extract(problem, c, cur, (layout, *extracted[-1:]))
-            extracted.append(xc)
+            xc = extract(problem, c, cur, (layout, *maps[-1:]))
+            maps.append(xc)
             z_cur, z_c = sp.to_free(model.vector(cur)), sp.to_free(model.vector(xc))
             cur_new = model.layout(sp.to_physical(z_cur - (z_c - z_star)))
         cur, fab_notes = snap_layout(fab, model, cur_new)
@@ -400,7 +406,7 @@ def correct(
         method,
         tuple(layouts),
         tuple(checks),
-        tuple(extracted),
+        tuple(corrections) if method == "implicit" else tuple(maps),
         tuple(misfits),
         tuple(notes),
         time.perf_counter() - t0,

@@ -107,7 +107,7 @@ def check_layout(
     f = em_frequencies(problem)
     s_model = evaluate_layout(problem, layout, f)
     ring = ringing_time(s_model[:, 1, 0], f)
-    sub = problem.substrate
+    sub = problem.strip_substrate
     band = em_band(problem)
     solves = []
     for k, res in enumerate(resolutions(mesh, layout)):

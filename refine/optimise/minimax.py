@@ -113,13 +113,26 @@ def _aggregate(g: NDArray, jac: NDArray | None, sizes: list[int]) -> tuple[NDArr
 
 
 def _constraint_values(
-    mask: Mask, f: NDArray, fn: ResponseFn, p: NDArray, space: DesignSpace, grad: bool
-):
+    mask: MaskLike, f: NDArray, fn: ResponseFn, p: NDArray, space: DesignSpace, grad: bool
+) -> tuple[NDArray, NDArray | None]:
     s11, s21, ds11, ds21 = fn(p, grad)
     if not grad:
         return mask.constraints(f, s11, s21)[0], None
     g, jac_p = mask.constraints(f, s11, s21, ds11, ds21)
+    assert jac_p is not None  # asked for with the derivatives
     return g, space.chain(p, jac_p.T).T  # (n_constraints, n_free)
+
+
+@dataclass
+class _Best:
+    """The best point an nlopt run has seen, and the stall bookkeeping."""
+
+    z: NDArray
+    worst: float = -np.inf
+    n: int = 0
+    n_at_best: int = 0
+    last_best: float = -np.inf
+    stalled: bool = False
 
 
 def _run_nlopt(
@@ -143,14 +156,7 @@ def _run_nlopt(
     sizes = [len(i) for i in mask.region_indices(f)] if aggregate else None
     z0 = np.clip(z0, space.lower, space.upper)
     nz = space.n_free
-    best = {
-        "z": z0.copy(),
-        "worst": -np.inf,
-        "n": 0,
-        "n_at_best": 0,
-        "last_best": -np.inf,
-        "stalled": False,
-    }
+    best = _Best(z0.copy())
     history: list[float] = []
     cache: dict[bytes, tuple[NDArray, NDArray | None]] = {}
 
@@ -164,22 +170,22 @@ def _run_nlopt(
                 g, jac = _aggregate(g, jac, sizes)
             cache.clear()
             cache[key] = (g, jac)
-            best["n"] += 1
+            best.n += 1
             history.append(worst)
             feasible_extra = True
             if extra is not None:
                 feasible_extra = bool(np.all(extra(z)[0] <= 1e-9))
-            if worst > best["worst"] and feasible_extra:
-                best["worst"], best["z"] = worst, z.copy()
+            if worst > best.worst and feasible_extra:
+                best.worst, best.z = worst, z.copy()
             if progress is not None:
-                progress(best["n"], best["worst"])
+                progress(best.n, best.worst)
             if worst >= stopping.target_margin_db and feasible_extra:
                 opt.force_stop()
-            elif best["n"] - best["n_at_best"] >= STALL_EVALUATIONS:
-                best["stalled"] = True
+            elif best.n - best.n_at_best >= STALL_EVALUATIONS:
+                best.stalled = True
                 opt.force_stop()
-            if worst > best["last_best"] + STALL_DB:
-                best["last_best"], best["n_at_best"] = worst, best["n"]
+            if worst > best.last_best + STALL_DB:
+                best.last_best, best.n_at_best = worst, best.n
         return cache[key]
 
     opt = nlopt.opt(algo, nz + 1)
@@ -238,14 +244,14 @@ def _run_nlopt(
             nlopt.SUCCESS: "converged",
         }.get(code, f"nlopt code {code}")
     except nlopt.ForcedStop:
-        status = "stalled" if best["stalled"] else "target reached"
+        status = "stalled" if best.stalled else "target reached"
     except nlopt.RoundoffLimited:
         status = "round-off limited"
     except (RuntimeError, ValueError) as e:  # nlopt's generic failure: keep the best point
         status = f"optimiser failure ({e})"
-    z = np.clip(best["z"], space.lower, space.upper)
+    z = np.clip(best.z, space.lower, space.upper)
     g = _constraint_values(mask, f, fn, space.to_physical(z), space, False)[0]
-    return RunRecord(z, -float(np.max(g)), best["n"], status, history)
+    return RunRecord(z, -float(np.max(g)), best.n, status, history)
 
 
 class MaskLike(Protocol):
@@ -392,7 +398,10 @@ def optimiser_grid(mask: Mask, order: int) -> NDArray[np.float64]:
     """The optimiser's sampling: the passband with ~8 points per resonator, every stopband
     uniformly plus a cluster at its edge nearest the passband, every edge exactly."""
     n_pass = max(41, 8 * order + 9)
-    parts = [np.linspace(mask.passband_start, mask.passband_stop, n_pass), [mask.midband]]
+    parts: list[NDArray] = [
+        np.linspace(mask.passband_start, mask.passband_stop, n_pass),
+        np.array([mask.midband]),
+    ]
     for sb in mask.stopbands:
         lo = max(sb.start, 1e-3 * sb.stop)
         parts.append(np.linspace(lo, sb.stop, 41))

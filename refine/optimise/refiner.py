@@ -89,6 +89,20 @@ class RefineResult:
         return min(self.worst.values())
 
     @property
+    def strip_layouts(self) -> tuple[Layout, Layout]:
+        """(refined, seed) layout of a strip result; a ValueError for the ideal medium."""
+        if self.layout is None or self.seed_layout is None:
+            raise ValueError("the ideal medium's result has no layout (see capacitances, thetas)")
+        return self.layout, self.seed_layout
+
+    @property
+    def electrical(self) -> tuple[tuple[float, ...], tuple[float, ...]]:
+        """(series capacitances in F, electrical lengths in rad at f0) of an ideal result."""
+        if self.capacitances is None or self.thetas is None:
+            raise ValueError("a strip result has a layout, not capacitances and angles")
+        return self.capacitances, self.thetas
+
+    @property
     def seed_worst_margin(self) -> float:
         return min(self.seed_worst.values())
 
@@ -152,7 +166,7 @@ def refine_problem(
     if problem.mask.max_insertion_loss_db is not None:
         f_opt = np.unique(np.append(f_opt, problem.mask.midband))
     model = factory(f_opt)
-    space = layout_space(fab, problem.substrate.height, model, seed_layout)
+    space = layout_space(fab, problem.strip_substrate.height, model, seed_layout)
     p_seed = model.vector(seed_layout)
     seed_res, _ = _verify(problem, factory, p_seed)
     extra = _length_constraint(problem, model, space)
@@ -343,7 +357,7 @@ def _refine_rounds(
         if (
             best_res.passed
             or rec.worst_margin < min(stopping.target_margin_db, 0.0)
-            or (budget is not None and evaluations >= stopping.max_evaluations)
+            or (stopping.max_evaluations is not None and evaluations >= stopping.max_evaluations)
         ):
             break
         # the optimiser's grid met the mask but the dense grid did not: add what it missed
@@ -371,7 +385,7 @@ def _aim(stopping: Stopping, seed_res: MaskResult) -> Stopping:
 
 def _length_constraint(problem: Problem, model: StripFilterModel, space: DesignSpace):
     """Optional max-total-length rule as an extra inequality (in % of the limit)."""
-    lmax = problem.fab.max_total_length
+    lmax = problem.strip_fab.max_total_length
     if lmax is None:
         return None
     ng_n = len(model.split(np.zeros(len(model.names)))[0]) + model.order

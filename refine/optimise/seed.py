@@ -62,6 +62,13 @@ class Seed:
     spread: dict[str, MaskResult]
     warnings: tuple[str, ...]
 
+    @property
+    def strip_realisation(self) -> Realisation:
+        """The realised layout of a strip problem; a ValueError for the ideal medium."""
+        if self.realisation is None:
+            raise ValueError("the ideal medium's seed has no layout")
+        return self.realisation
+
 
 def realisation_for(
     problem: Problem, design: inverters.ElectricalDesign, medium: StripMedium

@@ -10,7 +10,7 @@ import json
 import math
 import os
 import tempfile
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -41,7 +41,10 @@ def write_atomic(path: str | Path, writer: Callable[[Path], None]) -> Path:
 
 
 def write_text_atomic(path: str | Path, text: str) -> Path:
-    return write_atomic(path, lambda p: p.write_text(text, encoding="utf-8"))
+    def write(p: Path) -> None:
+        p.write_text(text, encoding="utf-8")
+
+    return write_atomic(path, write)
 
 
 # --------------------------------------------------------------------------------------------
@@ -49,7 +52,7 @@ def write_text_atomic(path: str | Path, text: str) -> Path:
 # --------------------------------------------------------------------------------------------
 
 
-def touchstone_text(f: NDArray, s: NDArray, z_ref: float, comments: list[str] = ()) -> str:
+def touchstone_text(f: NDArray, s: NDArray, z_ref: float, comments: Sequence[str] = ()) -> str:
     """Touchstone 1.1 two-port text: ``# Hz S RI R z_ref``, columns f, S11, S21, S12, S22 as
     real/imaginary pairs (the two-port column order of the Touchstone specification)."""
     lines = [f"! {c}" for c in comments]
@@ -62,7 +65,7 @@ def touchstone_text(f: NDArray, s: NDArray, z_ref: float, comments: list[str] = 
 
 
 def write_touchstone(
-    path: str | Path, f: NDArray, s: NDArray, z_ref: float, comments: list[str] = ()
+    path: str | Path, f: NDArray, s: NDArray, z_ref: float, comments: Sequence[str] = ()
 ) -> Path:
     return write_text_atomic(path, touchstone_text(f, s, z_ref, list(comments)))
 
@@ -174,6 +177,7 @@ def copper(layout: Layout, feed_length: float | None = None) -> list[Strip]:
         starts.append(x)
         out.append(Strip(x, -w / 2, x + ln, w / 2, f"resonator {j + 1}"))
         x += ln + (layout.gaps[j] if j < layout.order - 1 else 0.0)
+    assert layout.taps is not None  # a tapped layout (gap coupling returned above)
     t_in, t_out = layout.taps
     x_in = starts[0] + t_in
     x_out = starts[-1] + layout.lengths[-1] - t_out

@@ -66,10 +66,12 @@ def responses(r: RefineResult, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(refined, seed) S-matrices over ``f`` on the physical model with loss."""
     p = r.problem
     if r.layout is None:
-        d = inverters.design(p.family, len(r.thetas), p.f0, p.fbw, p.z_ref, p.ripple_db)
-        ref = evaluate_electrical(r.capacitances, r.thetas, p.f0, p.z_ref, f)
+        caps, thetas = r.electrical
+        d = inverters.design(p.family, len(thetas), p.f0, p.fbw, p.z_ref, p.ripple_db)
+        ref = evaluate_electrical(caps, thetas, p.f0, p.z_ref, f)
         return ref, inverters.ideal_response(d, f)
-    return evaluate_layout(p, r.layout, f), evaluate_layout(p, r.seed_layout, f)
+    lay, seed = r.strip_layouts
+    return evaluate_layout(p, lay, f), evaluate_layout(p, seed, f)
 
 
 def write_outputs(

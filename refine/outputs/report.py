@@ -30,7 +30,7 @@ BREAKDOWN_V_PER_M = 1.0e6  # conservative: 1 kV/mm
 def gap_voltages(r: RefineResult, power_w: float) -> list[float]:
     """Peak voltage (V) across each series gap of the refined layout over the passband."""
     p = r.problem
-    lay = r.layout
+    lay, _ = r.strip_layouts
     f = np.linspace(p.mask.passband_start, p.mask.passband_stop, 201)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", validity.ModelRangeWarning)
@@ -50,9 +50,10 @@ def gap_voltages(r: RefineResult, power_w: float) -> list[float]:
 
 def _dims(r: RefineResult) -> dict:
     if r.layout is None:
+        caps, thetas = r.electrical
         return {
-            "series_capacitances_farad": list(r.capacitances),
-            "electrical_lengths_rad_at_f0": list(r.thetas),
+            "series_capacitances_farad": list(caps),
+            "electrical_lengths_rad_at_f0": list(thetas),
         }
     lay = r.layout
     return {
@@ -114,7 +115,7 @@ def summary(
         "evaluations": r.evaluations,
         "wall_time_s": r.wall_time,
         "snapping": {
-            "grid_m": p.fab.grid if p.fab else None,
+            "grid_m": p.strip_fab.grid if p.fab else None,
             "margin_before_db": r.unsnapped_margin,
             "margin_after_db": r.snapped_margin,
         },
@@ -209,9 +210,13 @@ def report_md(
             f"- {p.medium}: eps_r {s.eps_r:g}, height {s.height * 1e3:.4g} mm, metal {s.metal_thickness * 1e6:.3g} um, "
             f"tan δ {s.loss_tangent:g}, conductivity {s.conductivity or 0:.3g} S/m, roughness {s.roughness * 1e6:.3g} um",
             f"- gap model {p.gap_model}; coupling {p.external}",
-            f"- minimum gap {p.fab.min_gap * 1e6:.3g} um"
-            + (f", minimum width {p.fab.min_width * 1e6:.3g} um" if p.fab.min_width else "")
-            + (f", grid {p.fab.grid * 1e6:.3g} um" if p.fab.grid else ""),
+            f"- minimum gap {p.strip_fab.min_gap * 1e6:.3g} um"
+            + (
+                f", minimum width {p.strip_fab.min_width * 1e6:.3g} um"
+                if p.strip_fab.min_width
+                else ""
+            )
+            + (f", grid {p.strip_fab.grid * 1e6:.3g} um" if p.strip_fab.grid else ""),
         ]
     lines += [
         "",
@@ -224,18 +229,20 @@ def report_md(
         lines.append(
             f"| {name} | {val:+.2f} | {r.seed_worst[name]:+.2f} | {r.where[name] / 1e9:.4f} |"
         )
-    if r.snapped_margin is not None:
+    grid = p.fab.grid if p.fab is not None else None
+    if r.snapped_margin is not None and grid is not None:
         lines += [
             "",
-            f"Snapped to the shop's {p.fab.grid * 1e6:g} um grid: worst margin {r.unsnapped_margin:+.2f} dB before, {r.snapped_margin:+.2f} dB after.",
+            f"Snapped to the shop's {grid * 1e6:g} um grid: worst margin {r.unsnapped_margin:+.2f} dB before, {r.snapped_margin:+.2f} dB after.",
         ]
     lines += ["", "## Dimensions", ""]
     if r.layout is None:
+        caps, thetas = r.electrical
         lines += ["| element | value |", "|---|---|"]
-        lines += [f"| C {k} | {c * 1e12:.5f} pF |" for k, c in enumerate(r.capacitances)]
-        lines += [f"| θ {j + 1} | {math.degrees(t):.3f}° at f0 |" for j, t in enumerate(r.thetas)]
+        lines += [f"| C {k} | {c * 1e12:.5f} pF |" for k, c in enumerate(caps)]
+        lines += [f"| θ {j + 1} | {math.degrees(t):.3f}° at f0 |" for j, t in enumerate(thetas)]
     else:
-        lay, seed = r.layout, r.seed_layout
+        lay, seed = r.strip_layouts
         first = lay.external.first_gap
         lines += ["| dimension | refined | closed-form seed |", "|---|---|---|"]
         lines += [
@@ -249,7 +256,7 @@ def report_md(
             lines.append(
                 f"| resonator {j + 1} width | {lay.widths[j] * 1e6:.2f} µm | {seed.widths[j] * 1e6:.2f} µm |"
             )
-        if lay.taps:
+        if lay.taps and seed.taps:
             lines += [
                 f"| tap {'in' if i == 0 else 'out'} (from the outer open end) | {t * 1e3:.4f} mm | {seed.taps[i] * 1e3:.4f} mm |"
                 for i, t in enumerate(lay.taps)
@@ -268,11 +275,11 @@ def report_md(
             "| gap | width | peak voltage | conservative limit (1 kV/mm) |",
             "|---|---|---|---|",
         ]
-        for k, (s, vpk) in enumerate(zip(lay.gaps, volts, strict=True)):
-            lim = BREAKDOWN_V_PER_M * s
+        for k, (gap, vpk) in enumerate(zip(lay.gaps, volts, strict=True)):
+            lim = BREAKDOWN_V_PER_M * gap
             flag = "" if vpk < lim else " **exceeds**"
             lines.append(
-                f"| gap {k + first} | {s * 1e6:.1f} µm | {vpk:.1f} V | {lim:.0f} V{flag} |"
+                f"| gap {k + first} | {gap * 1e6:.1f} µm | {vpk:.1f} V | {lim:.0f} V{flag} |"
             )
     if r.diagnosis is not None:
         lines += ["", "## Diagnosis", ""]

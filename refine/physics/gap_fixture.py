@@ -78,9 +78,11 @@ def comparison(fx: Fixture) -> list[dict]:
     rows = []
     for r in fx.records:
         g = GapGeometry(**r["geometry"])
-        row = {"geometry": g, "em": (r["c_series"], r["c_shunt"]), "models": {}}
-        for model, (cg, cp) in model_values(g).items():
-            row["models"][model] = (cg / r["c_series"] - 1.0, cp / r["c_shunt"] - 1.0)
+        models = {
+            model: (cg / r["c_series"] - 1.0, cp / r["c_shunt"] - 1.0)
+            for model, (cg, cp) in model_values(g).items()
+        }
+        row = {"geometry": g, "em": (r["c_series"], r["c_shunt"]), "models": models}
         rows.append(row)
     return rows
 

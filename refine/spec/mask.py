@@ -114,7 +114,10 @@ class Mask:
         frequency (the series-gap filter blocks DC, and f = 0 itself is not evaluable)."""
         n_p = v.integer_in_range("points_per_passband", points_per_passband, 2, 10**6)
         n_s = v.integer_in_range("points_per_stopband", points_per_stopband, 2, 10**6)
-        parts = [np.linspace(self.passband_start, self.passband_stop, n_p), [self.midband]]
+        parts = [
+            np.linspace(self.passband_start, self.passband_stop, n_p),
+            np.array([self.midband]),
+        ]
         for sb in self.stopbands:
             parts.append(np.linspace(max(sb.start, 1e-3 * sb.stop), sb.stop, n_s))
         return np.unique(np.concatenate(parts))

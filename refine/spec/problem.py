@@ -79,6 +79,20 @@ class Problem:
     resonator_width: str = "free"  # "free": refinable; "feed": held at the z_ref line width
 
     @property
+    def strip_substrate(self) -> Substrate:
+        """The substrate of a strip problem; a ValueError for the ideal medium, which has none."""
+        if self.substrate is None:
+            raise ValueError(f"problem {self.name!r}: the ideal medium has no substrate")
+        return self.substrate
+
+    @property
+    def strip_fab(self) -> FabRules:
+        """The fab rules of a strip problem; a ValueError for the ideal medium, which has none."""
+        if self.fab is None:
+            raise ValueError(f"problem {self.name!r}: the ideal medium has no fab rules")
+        return self.fab
+
+    @property
     def free_widths(self) -> bool:
         """Whether the refiner may change the resonator widths (strip media)."""
         return self.resonator_width == "free"
@@ -145,6 +159,25 @@ class _Reader:
         if isinstance(x, bool) or not isinstance(x, (int, float)):
             raise self.fail(full, x, "must be a number")
         return self._range(full, x, float(x), lo, hi, lo_open, hi_open, "")
+
+    def need_number(self, t: dict, prefix: str, key: str, *args: Any, **kw: Any) -> float:
+        """:meth:`number` of a required key."""
+        x = self.number(t, prefix, key, *args, required=True, **kw)
+        assert x is not None  # number() raises for a missing required key
+        return x
+
+    def number_or(
+        self, t: dict, prefix: str, key: str, *args: Any, default: float, **kw: Any
+    ) -> float:
+        """:meth:`number` of an optional key with a default."""
+        x = self.number(t, prefix, key, *args, default=default, **kw)
+        return default if x is None else x
+
+    def need_quantity(self, t: dict, prefix: str, key: str, *args: Any, **kw: Any) -> float:
+        """:meth:`quantity` of a required key (or one known to be present)."""
+        x = self.quantity(t, prefix, key, *args, required=True, **kw)
+        assert x is not None  # quantity() raises for a missing required key
+        return x
 
     def _range(
         self, full: str, raw: object, x: float, lo, hi, lo_open, hi_open, unit: str
@@ -238,7 +271,7 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
     )
     family = r.choice(resp, "response", "family", families.FAMILIES)
     if family == "chebyshev":
-        ripple = r.number(resp, "response", "ripple_db", 0.0, 10.0, lo_open=True, required=True)
+        ripple = r.need_number(resp, "response", "ripple_db", 0.0, 10.0, lo_open=True)
     else:
         if "ripple_db" in resp:
             raise r.fail(
@@ -253,14 +286,14 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         if isinstance(o, bool) or not isinstance(o, int) or not 1 <= o <= families.MAX_ORDER:
             raise r.fail("response.order", o, f"must be an integer in 1..{families.MAX_ORDER}")
         order = int(o)
-    f0 = r.quantity(resp, "response", "center", "frequency", 0.0, None, lo_open=True, required=True)
+    f0 = r.need_quantity(resp, "response", "center", "frequency", 0.0, None, lo_open=True)
     has_bw, has_fbw = "bandwidth" in resp, "fractional_bandwidth" in resp
     if has_bw == has_fbw:
         raise ProblemError(
             f"{source}: [response] needs exactly one of bandwidth or fractional_bandwidth"
         )
     if has_bw:
-        bw = r.quantity(resp, "response", "bandwidth", "frequency", 0.0, None, lo_open=True)
+        bw = r.need_quantity(resp, "response", "bandwidth", "frequency", 0.0, None, lo_open=True)
         if bw >= f0:
             raise r.fail(
                 "response.bandwidth",
@@ -269,10 +302,10 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
             )
         fbw = bw / f0
     else:
-        fbw = r.number(
+        fbw = r.need_number(
             resp, "response", "fractional_bandwidth", 0.0, 1.0, lo_open=True, hi_open=True
         )
-    z_ref = r.quantity(resp, "response", "z_ref", "impedance", 1.0, 1000.0, required=True)
+    z_ref = r.need_quantity(resp, "response", "z_ref", "impedance", 1.0, 1000.0)
 
     med = r.table(
         data,
@@ -300,13 +333,13 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         if "fab" in data:
             raise r.fail("fab", data["fab"], "does not apply to medium kind 'ideal'")
     else:
-        eps_r = r.number(med, "medium", "eps_r", 1.0, 100.0, required=True)
-        h = r.quantity(med, "medium", "height", "length", 0.0, 0.1, lo_open=True, required=True)
+        eps_r = r.need_number(med, "medium", "eps_r", 1.0, 100.0)
+        h = r.need_quantity(med, "medium", "height", "length", 0.0, 0.1, lo_open=True)
         t = r.quantity(med, "medium", "metal_thickness", "length", 0.0, h / 4.0) or 0.0
-        tand = r.number(med, "medium", "loss_tangent", 0.0, 0.1, hi_open=True, default=0.0)
+        tand = r.number_or(med, "medium", "loss_tangent", 0.0, 0.1, hi_open=True, default=0.0)
         sigma = r.quantity(med, "medium", "conductivity", "conductivity", 0.0, None, lo_open=True)
         rough = r.quantity(med, "medium", "roughness", "length", 0.0, h) or 0.0
-        er_tol = r.number(med, "medium", "eps_r_tolerance", 0.0, eps_r / 5.0, default=0.0)
+        er_tol = r.number_or(med, "medium", "eps_r_tolerance", 0.0, eps_r / 5.0, default=0.0)
         h_tol = r.quantity(med, "medium", "height_tolerance", "length", 0.0, h / 5.0) or 0.0
         substrate = Substrate(eps_r, h, t, tand, sigma, rough, er_tol, h_tol)
         fab_t = r.table(
@@ -321,19 +354,17 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
                 "max_total_length",
             },
         )
-        lengths = {}
+        min_gap = r.need_quantity(fab_t, "fab", "min_gap", "length", 0.0, 1.0, lo_open=True)
+        lengths: dict[str, float | None] = {}
         for key, lo, lo_open in (
-            ("min_gap", 0.0, True),
             ("min_width", 0.0, True),
             ("grid", 0.0, True),
             ("gap_tolerance", 0.0, False),
             ("width_tolerance", 0.0, False),
             ("max_total_length", 0.0, True),
         ):
-            lengths[key] = r.quantity(
-                fab_t, "fab", key, "length", lo, 1.0, lo_open=lo_open, required=key == "min_gap"
-            )
-        fab = FabRules(**lengths)
+            lengths[key] = r.quantity(fab_t, "fab", key, "length", lo, 1.0, lo_open=lo_open)
+        fab = FabRules(min_gap, **lengths)
 
     coup = r.table(data, "coupling", {"external"}, required=False)
     external = r.choice(coup, "coupling", "external", EXTERNAL_KINDS, default="gap")
@@ -380,9 +411,9 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
                 raise r.fail(
                     f"{pre}.{k}", sb[k], "unknown key; allowed keys are rejection_db, start, stop"
                 )
-        start = r.quantity(sb, pre, "start", "frequency", 0.0, None, required=True)
-        stop = r.quantity(sb, pre, "stop", "frequency", start, None, lo_open=True, required=True)
-        rej = r.number(sb, pre, "rejection_db", 0.0, 200.0, lo_open=True, required=True)
+        start = r.need_quantity(sb, pre, "start", "frequency", 0.0, None)
+        stop = r.need_quantity(sb, pre, "stop", "frequency", start, None, lo_open=True)
+        rej = r.need_number(sb, pre, "rejection_db", 0.0, 200.0, lo_open=True)
         if start < hi_edge and stop > lo_edge:
             raise r.fail(
                 f"{pre}",

@@ -84,11 +84,7 @@ def gap_inverter(
     """(J/Y0, φ) at f0 of the gap of width ``s`` between strips ``w_in`` and ``w_out``."""
     f = np.array([f0])
     m = cascade.chain_abcd(gap_elements(medium, model, w_in, w_out, s, f), f)
-    a, b, d = (
-        complex(m.a[..., 0].ravel()[0]),
-        complex(m.b[..., 0].ravel()[0]),
-        complex(m.d[..., 0].ravel()[0]),
-    )
+    a, b, d = (complex(np.asarray(x)[..., 0].ravel()[0]) for x in (m.a, m.b, m.d))
     y11, y22, y21 = d / b, a / b, -1.0 / b
     bg = -y21.imag / y0
     bp = 0.5 * ((y11 + y21).imag + (y22 + y21).imag) / y0

@@ -66,7 +66,7 @@ def centre_for_yield(
     if free_widths is None:
         free_widths = problem.free_widths
     model = strip_model_for(medium, problem.gap_model, problem.z_ref, layout, f, free_widths)
-    space = layout_space(fab, problem.substrate.height, model, layout)
+    space = layout_space(fab, problem.strip_substrate.height, model, layout)
     p0 = model.vector(layout)
     smp = sample(layout, tol, design_samples, seed, problem.substrate)  # its geometry is used below
     offsets = np.zeros((design_samples + 1, len(model.dims)))  # row 0: the nominal layout itself
@@ -144,7 +144,8 @@ class StackedMask:
         ds21: NDArray | None = None,
     ) -> tuple[NDArray, NDArray | None]:
         n = self.f.size
-        gs, jacs = [], []
+        gs: list[NDArray] = []
+        jacs: list[NDArray] = []
         for k in range(self.copies):
             sl = slice(k * n, (k + 1) * n)
             g, jac = self.mask.constraints(
@@ -155,6 +156,7 @@ class StackedMask:
                 None if ds21 is None else ds21[:, sl],
             )
             gs.append(g)
-            jacs.append(jac)
+            if jac is not None:
+                jacs.append(jac)
         g = np.concatenate(gs)
         return g, (None if ds11 is None else np.concatenate(jacs, axis=0))

@@ -24,6 +24,7 @@ from __future__ import annotations
 import math
 import warnings
 from dataclasses import dataclass
+from typing import cast
 
 import numpy as np
 from numpy.typing import NDArray
@@ -35,6 +36,7 @@ from refine.circuit.builder import Dim, build
 from refine.circuit.layout import Layout
 from refine.circuit.model import strip_model_for
 from refine.circuit.response import strip_medium_for
+from refine.physics.substrate import Substrate
 from refine.spec.problem import Problem
 
 MAX_SAMPLES = 10**6
@@ -74,8 +76,8 @@ class Tolerances:
             fab.gap_tolerance or 0.0,
             fab.width_tolerance or 0.0,
             correlated,
-            problem.substrate.eps_r_tolerance,
-            problem.substrate.height_tolerance,
+            problem.strip_substrate.eps_r_tolerance,
+            problem.strip_substrate.height_tolerance,
         )
 
 
@@ -167,13 +169,13 @@ def worst_margins(problem: Problem, samples: Samples, f: NDArray) -> NDArray:
     nominal = strip_medium_for(problem)
     n = samples.widths.shape[0]
     out = np.empty(n)
-    sub = problem.substrate
+    sub = problem.strip_substrate
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", validity.ModelRangeWarning)
         for a in range(0, n, CHUNK):
             sl = slice(a, min(a + CHUNK, n))
             medium = nominal
-            if samples.eps_r is not None:
+            if samples.eps_r is not None and samples.height is not None:
                 batch = SubstrateBatch(
                     samples.eps_r[sl, None],
                     samples.height[sl, None],
@@ -182,7 +184,8 @@ def worst_margins(problem: Problem, samples: Samples, f: NDArray) -> NDArray:
                     sub.conductivity,
                     sub.roughness,
                 )
-                medium = type(nominal)(batch, nominal.loss)
+                # a substrate whose values are arrays: the line formulas are elementwise
+                medium = type(nominal)(cast(Substrate, batch), nominal.loss)
             els = build(
                 problem.external,
                 medium,
@@ -244,6 +247,7 @@ def sensitivities(
     p = model.vector(layout)
     r = model.response(p, True)
     g, jac = problem.mask.constraints(f, r.s11, r.s21, r.ds11, r.ds21)
+    assert jac is not None  # asked for with the derivatives
     row = -jac[int(np.argmax(g))]  # d(worst margin)/dp = -d(max g)/dp
     out = []
     for name, (kind, _), d in zip(model.names, model.dims, row, strict=True):
@@ -261,8 +265,8 @@ def sensitivities(
             one = _as_samples(layout)
             wm = []
             for x in (base + h, base - h):
-                er = np.array([x if name == "eps_r" else problem.substrate.eps_r])
-                hh = np.array([x if name == "height" else problem.substrate.height])
+                er = np.array([x if name == "eps_r" else problem.strip_substrate.eps_r])
+                hh = np.array([x if name == "height" else problem.strip_substrate.height])
                 wm.append(
                     worst_margins(
                         problem,
