@@ -18,7 +18,7 @@ def _quiet(fn, *args):
 
 def test_garg_bahl_check_values():
     # Garg & Bahl 1978 formula at eps_r = 9.6, W = h = 1 mm (no eps_r scaling), computed from the
-    # published formula in shared/REFERENCES.md §6.1: s/W 0.1, 0.2, 0.5, 1.0 ->
+    # published formula in docs/references.md §6.1: s/W 0.1, 0.2, 0.5, 1.0 ->
     # Cg = 0.08283, 0.06009, 0.03213, 0.01453 pF; Cp = 0.00628, 0.01146, 0.02822, 0.04175 pF.
     c = dc.garg_bahl_gap(1e-3, np.array([0.1, 0.2, 0.5, 1.0]) * 1e-3, 1e-3, 9.6)
     np.testing.assert_allclose(c.c_series * 1e12, [0.08283, 0.06009, 0.03213, 0.01453], atol=2e-5)
@@ -29,7 +29,7 @@ def test_garg_bahl_check_values():
 
 
 def test_garg_bahl_join_is_smooth():
-    # The published even-mode fit steps ~30 % at s/W = 0.3 (shared/REFERENCES.md §6.1: 32.57 vs
+    # The published even-mode fit steps ~30 % at s/W = 0.3 (docs/references.md §6.1: 32.57 vs
     # 42.29 pF/m at u = 1). The blend must be continuous in value and derivative.
     x = np.linspace(0.2, 0.4, 4001)
     s = x * 1e-3
@@ -58,7 +58,7 @@ def test_garg_bahl_continuation_beyond_range_is_positive_and_smooth():
 
 
 def test_kirschning_jansen_koster_check_values():
-    # KJK 1983 formula as transcribed in shared/REFERENCES.md §6.2, values recomputed there:
+    # KJK 1983 formula as transcribed in docs/references.md §6.2, values recomputed there:
     # eps_r 9.6, W = h = 1 mm, s = 0.1, 0.2, 0.5, 1.0 mm.
     c = _quiet(
         dc.kirschning_jansen_koster_gap,
@@ -73,7 +73,7 @@ def test_kirschning_jansen_koster_check_values():
 
 
 def test_kirschning_jansen_koster_open_end_check_values():
-    # KJK 1981 Δl/h, recomputed in shared/REFERENCES.md §5.4 (formula confirmed by one
+    # KJK 1981 Δl/h, recomputed in docs/references.md §5.4 (formula confirmed by one
     # independent implementation there).
     for er, u, expect in [
         (10.2, 0.9449, 0.3120),
@@ -92,7 +92,7 @@ def test_kirschning_jansen_koster_open_end_check_values():
 
 
 def test_models_agree_loosely():
-    # The two published gap models differ by 20-36 % in Cg at small gaps (shared/REFERENCES.md
+    # The two published gap models differ by 20-36 % in Cg at small gaps (docs/references.md
     # §6.2); a cross-model test can only be loose (within 40 %).
     s = np.array([0.1, 0.2, 0.5]) * 1e-3
     gb = dc.garg_bahl_gap(1e-3, s, 1e-3, 9.6)
@@ -121,7 +121,7 @@ def test_gap_contracts(model, er, u):
 def test_stripline_gap_limits():
     # As s -> ∞ the series C vanishes and the shunt C tends to the open end Δl = b ln 2/π minus
     # the half-gap line to the centre plane; as s -> 0 the series C grows without bound
-    # (shared/REFERENCES.md §7.5 asks for exactly these checks).
+    # (docs/references.md §7.5 asks for exactly these checks).
     b, er, z0 = 1.6e-3, 2.2, 50.0
     v = 299792458.0 / np.sqrt(er)
     big = 20 * b

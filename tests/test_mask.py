@@ -32,7 +32,7 @@ def test_closed_form_n4_meets_a_mask_it_should(n4):
     s = synthesis.ideal_response(n4, f)
     res = m.evaluate(f, s[:, 0, 0], s[:, 1, 0])
     assert res.passed
-    # Pinned (computed by this code, checked for plausibility against shared/REFERENCES.md §2.2:
+    # Pinned (computed by this code, checked for plausibility against docs/references.md §2.2:
     # S21 = -34.4 dB at 1.8 GHz and -25.6 dB at 2.2 GHz). Equal-ripple return loss of 0.5 dB is
     # 9.636 dB (Chebyshev identity, common practice), so the return-loss margin is ~0.64 dB.
     assert res.worst["stopband 0.5-1.8 GHz"] == pytest.approx(34.4 - 30.0, abs=0.1)

@@ -76,7 +76,7 @@ def test_attenuation_matches_scikit_rf_mline():
 
 
 def test_hammerstad_jensen_check_values():
-    # Recomputed from the HJ 1980 formulas in shared/REFERENCES.md §3, where the same formulas
+    # Recomputed from the HJ 1980 formulas in docs/references.md §3, where the same formulas
     # were matched to scikit-rf to 1e-12 [S]; no published table.
     np.testing.assert_allclose(
         hammerstad_jensen_z01([0.1, 0.5, 1, 2, 5, 10]),
@@ -104,7 +104,7 @@ def test_hammerstad_jensen_check_values():
     ("er", "u50"), [(2.2, 3.0828), (3.55, 2.2374), (9.8, 0.9711), (12.9, 0.7329)]
 )
 def test_width_for_50_ohm(er, u50):
-    # W/h for 50 ohm, quasi-static HJ with t = 0, recomputed in shared/REFERENCES.md §3; Pozar's
+    # W/h for 50 ohm, quasi-static HJ with t = 0, recomputed in docs/references.md §3; Pozar's
     # Wheeler synthesis agrees within 0.5 % there.
     h = 1e-3
     assert Microstrip(Substrate(er, h)).width_for_z0(50.0) / h == pytest.approx(u50, abs=1e-4)
@@ -113,7 +113,7 @@ def test_width_for_50_ohm(er, u50):
 def test_pozar_microstrip_design_example():
     # Pozar, Microwave Engineering 4th ed., Example 3.7 (from memory): 50 ohm on eps_r 2.20,
     # d = 0.127 cm: W/d = 3.081, eps_e = 1.87 (Pozar's simpler Wheeler formulas). HJ differs by
-    # 0.06 % in W (shared/REFERENCES.md §3: u50 = 3.0828, eps_eff 1.8813).
+    # 0.06 % in W (docs/references.md §3: u50 = 3.0828, eps_eff 1.8813).
     ms = Microstrip(Substrate(2.2, 1.27e-3))
     w = ms.width_for_z0(50.0)
     assert w / 1.27e-3 == pytest.approx(3.081, rel=1e-3)
@@ -121,7 +121,7 @@ def test_pozar_microstrip_design_example():
 
 
 def test_kirschning_jansen_check_values():
-    # Recomputed (shared/REFERENCES.md §4.4): eps_r 10.2, h 0.635 mm, W 0.6 mm, eps_eff(f)/Z0(f).
+    # Recomputed (docs/references.md §4.4): eps_r 10.2, h 0.635 mm, W 0.6 mm, eps_eff(f)/Z0(f).
     ms = Microstrip(Substrate(10.2, 0.635e-3), loss=False)
     z, e = ms.dispersive(0.6e-3, np.array([1, 2, 5, 10, 20]) * 1e9)
     np.testing.assert_allclose(e, [6.8141, 6.8404, 6.9469, 7.1658, 7.6562], atol=1e-4)
@@ -130,7 +130,7 @@ def test_kirschning_jansen_check_values():
 
 def test_loss_building_blocks():
     # Rs = sqrt(π f μ0/σ): σ = 5.813e7 S/m gives 11.65 mOhm at 2 GHz and 26.06 mOhm at 10 GHz
-    # (recomputed, shared/REFERENCES.md §8; common practice).
+    # (recomputed, docs/references.md §8; common practice).
     np.testing.assert_allclose(
         surface_resistance([2e9, 10e9], 5.813e7), [11.65e-3, 26.06e-3], atol=1e-5
     )
@@ -143,7 +143,7 @@ def test_loss_building_blocks():
 
 
 def test_microstrip_q_check_value():
-    # Recomputed (shared/REFERENCES.md §8): eps_r 10.2, h 0.635 mm, W 0.6 mm, 6 GHz,
+    # Recomputed (docs/references.md §8): eps_r 10.2, h 0.635 mm, W 0.6 mm, 6 GHz,
     # σ = 5.8e7, tan δ = 0.0023: α_c = 0.5065 Np/m (with the quasi-static Z0 in Ki), α_d = 0.3566.
     # Ours uses the dispersive Z0(f) and eps_eff(f) as scikit-rf does, so agree to ~0.5 %.
     # α_d scales with (eps_eff - 1)/sqrt(eps_eff): rescale the quasi-static check value exactly.
@@ -187,7 +187,7 @@ def test_microstrip_resonator_q_equals_beta_over_two_alpha():
 
 
 def test_cohn_stripline_check_values():
-    # Cohn 1954, exact zero-thickness Z0 at eps_r = 1, recomputed (shared/REFERENCES.md §7.1).
+    # Cohn 1954, exact zero-thickness Z0 at eps_r = 1, recomputed (docs/references.md §7.1).
     np.testing.assert_allclose(
         cohn_z0([0.1, 0.2, 0.5, 1.0, 1.5, 3.0], 1.0),
         [194.226, 153.029, 100.433, 65.354, 48.516, 27.369],

@@ -9,7 +9,7 @@ from refine.synthesis import prototype as p
 
 # Chebyshev g-values. Matthaei, Young & Jones 1964, Table 4.05-2(a); the same values are in
 # Pozar, Microwave Engineering 4th ed., Table 8.4 and Hong & Lancaster 2001, Table 3.2.
-# From memory: the values were collected without the books at hand (shared/REFERENCES.md §1.2);
+# From memory: the values were collected without the books at hand (docs/references.md §1.2);
 # the closed form reproduces each of them to 1 in the 4th decimal.
 CHEBYSHEV_TABLE = [
     (0.01, 3, [0.6292, 0.9703, 0.6292, 1.0000]),
@@ -34,7 +34,7 @@ def test_chebyshev_g_matches_myj_table(ripple, n, expected):
 
 def test_chebyshev_3db_matches_table_to_1e3():
     # MYJ 1964 Table 4.05-2(a), 3 dB ripple, n = 3 and n = 5 (from memory); the tables were
-    # computed with the rounded constant, hence the looser tolerance (shared/REFERENCES.md §1.2).
+    # computed with the rounded constant, hence the looser tolerance (docs/references.md §1.2).
     np.testing.assert_allclose(p.chebyshev_g(3, 3.0)[1:4], [3.3487, 0.7117, 3.3487], atol=1e-3)
     np.testing.assert_allclose(p.chebyshev_g(5, 3.0)[1:4], [3.4817, 0.7618, 4.5381], atol=1e-3)
     assert p.chebyshev_g(4, 3.0)[-1] == pytest.approx(5.8095, abs=1e-3)
@@ -86,7 +86,7 @@ def test_chebyshev_ripple_of_prototype_is_exact():
 
 
 def test_attenuation_check_values():
-    # Recomputed from the Chebyshev response formula (shared/REFERENCES.md §1.3), no published
+    # Recomputed from the Chebyshev response formula (docs/references.md §1.3), no published
     # source: 0.5 dB ripple at Ω = 1.9091 (2.2 GHz for f0 = 2 GHz, FBW = 0.1, lumped mapping).
     assert p.attenuation_db("chebyshev", 3, 1.9091, 0.5)[()] == pytest.approx(17.83, abs=0.01)
     assert p.attenuation_db("chebyshev", 4, 1.9091, 0.5)[()] == pytest.approx(28.72, abs=0.01)
@@ -94,14 +94,14 @@ def test_attenuation_check_values():
 
 
 def test_minimum_order():
-    # Recomputed from Hong & Lancaster 2001 eqs. 3.4 and 3.11 (shared/REFERENCES.md §1.3).
+    # Recomputed from Hong & Lancaster 2001 eqs. 3.4 and 3.11 (docs/references.md §1.3).
     assert p.minimum_order("chebyshev", 40.0, 2.0, 0.1) == pytest.approx(5.450, abs=1e-3)
     assert p.minimum_order("butterworth", 40.0, 2.0) == pytest.approx(6.644, abs=1e-3)
 
 
 def test_return_loss_ripple_round_trip():
     # ε = 0.1 is L_Ar = 10 log(1 + ε²) = 0.043214 dB and RL = 10 log(1 + 1/ε²) = 20.0432 dB
-    # (shared/REFERENCES.md §1.2 rounds this to "20 dB"); 0.1 dB is 16.43 dB (recomputed there).
+    # (docs/references.md §1.2 rounds this to "20 dB"); 0.1 dB is 16.43 dB (recomputed there).
     # Common practice, no source.
     assert p.ripple_to_return_loss(10 * math.log10(1.01)) == pytest.approx(10 * math.log10(101))
     assert p.ripple_to_return_loss(0.1) == pytest.approx(16.43, abs=0.01)
@@ -110,7 +110,7 @@ def test_return_loss_ripple_round_trip():
 
 def test_mappings():
     # Lumped mapping, f0 = 2 GHz, FBW = 0.1 (Pozar §8.4): recomputed check values,
-    # shared/REFERENCES.md §1.4.
+    # docs/references.md §1.4.
     om = p.lumped_omega([2.2e9, 1.8e9, 2.1e9, 1.9e9], 2e9, 0.1)
     np.testing.assert_allclose(om, [1.90909, -2.11111, 0.97619, -1.02632], atol=1e-5)
     # Half-wave slope mapping: linear near f0 (MYJ §8.04 narrow-band form 2 δ / FBW) and

@@ -19,7 +19,7 @@ def pozar():
 
 
 def test_pozar_capacitively_coupled_example(pozar):
-    # Values from memory of Pozar's table (book not at hand; shared/REFERENCES.md §2.2):
+    # Values from memory of Pozar's table (book not at hand; docs/references.md §2.2):
     # Z0·J = 0.3137, 0.1187; C = 0.554, 0.192 pF; θ = 155.8°, 166.5°.
     np.testing.assert_allclose(pozar.j_norm, [0.3137, 0.1187, 0.1187, 0.3137], atol=1e-4)
     np.testing.assert_allclose(
@@ -29,7 +29,7 @@ def test_pozar_capacitively_coupled_example(pozar):
 
 
 def test_pozar_example_full_precision(pozar):
-    # Recomputed from the design equations (shared/REFERENCES.md §2.2), no published source:
+    # Recomputed from the design equations (docs/references.md §2.2), no published source:
     # pins the implementation to the digits of the formula.
     np.testing.assert_allclose(pozar.b_norm, [0.34793, 0.12042, 0.12042, 0.34793], atol=1e-5)
     np.testing.assert_allclose(pozar.theta, [2.71946, 2.90526, 2.71946], atol=1e-5)
@@ -39,14 +39,14 @@ def test_pozar_example_full_precision(pozar):
 
 
 def test_even_order_design():
-    # N = 4 of the same spec, recomputed (shared/REFERENCES.md §2.2), no published source.
+    # N = 4 of the same spec, recomputed (docs/references.md §2.2), no published source.
     d = synthesis.design("chebyshev", 4, 2.0e9, 0.10, 50.0, 0.5)
     np.testing.assert_allclose(d.j_norm, [0.3067, 0.1113, 0.0935, 0.1113, 0.3067], atol=1e-4)
     np.testing.assert_allclose(np.degrees(d.theta), [156.60, 168.31, 168.31, 156.60], atol=0.01)
 
 
 def test_ideal_response_regression(pozar):
-    # Ideal series C + TEM line circuit of the N = 3 design, recomputed (shared/REFERENCES.md
+    # Ideal series C + TEM line circuit of the N = 3 design, recomputed (docs/references.md
     # §2.2, tolerances as advised there: 0.01 dB in band, 0.1 dB on the skirts). No published
     # source: a regression target for the engine.
     f = np.array([1.8, 1.9, 1.95, 2.0, 2.05, 2.1, 2.2, 3.0, 4.0]) * 1e9
@@ -81,9 +81,9 @@ def test_pi_network_is_an_inverter_between_its_negative_lines(bg, bp):
 
 
 def test_pi_to_inverter_check_values():
-    # Recomputed from the formula (shared/REFERENCES.md §2.1): Bg = 0.30, Bp = 0.05 gives
+    # Recomputed from the formula (docs/references.md §2.1): Bg = 0.30, Bp = 0.05 gives
     # φ = -0.62634 rad, J/Y0 = 0.26946; Bg = 0.5, Bp = 0.1 gives J/Y0 = 0.38402 and
-    # φ = -atan(1.1) - atan(0.1) = -0.932650 (REFERENCES prints -0.93260, a rounding slip).
+    # φ = -atan(1.1) - atan(0.1) = -0.932650 (an earlier transcription printed -0.93260, a rounding slip; docs/references.md §2.1).
     j, phi = synthesis.pi_to_inverter([0.30, 0.5], [0.05, 0.1])
     np.testing.assert_allclose(phi, [-0.62634, -0.932650], atol=1e-5)
     np.testing.assert_allclose(j, [0.26946, 0.38402], atol=1e-5)
@@ -105,7 +105,7 @@ def test_band_edges_and_butterworth():
 
 def test_select_order_meets_stopband_on_ideal_circuit():
     # 20 dB at 2.2 GHz (the Pozar spec): N = 3 gives only 15.3 dB in the ideal circuit
-    # (recomputed, shared/REFERENCES.md §2.2 and §11), so the ideal-circuit check picks N = 4,
+    # (recomputed, docs/references.md §2.2 and §11), so the ideal-circuit check picks N = 4,
     # while the mapping alone picks 3. The circuit's upper skirt is softer than any mapping.
     choice = synthesis.select_order("chebyshev", 2e9, 0.1, 50, [Stopband(2.2e9, 2.6e9, 20)], 0.5)
     assert choice.order == 4 and choice.met and choice.mapping_order == 3

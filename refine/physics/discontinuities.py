@@ -12,7 +12,7 @@ at the strip ends)
     * :func:`kirschning_jansen_koster_gap` — Kirschning, Jansen & Koster, "Measurement and
       computer-aided modeling of microstrip discontinuities by an improved resonator method",
       IEEE MTT-S Digest 1983, 495–497. About 0.1 ≤ W/h ≤ 3, 1 ≤ W2/W1 ≤ 3, 6 ≤ eps_r ≤ 13,
-      s/h ≥ 0.1 (as transcribed in shared/REFERENCES.md §6.2; the paper itself was not read).
+      s/h ≥ 0.1 (as transcribed in docs/references.md §6.2; the paper itself was not read).
 Microstrip open end
     * :func:`kirschning_jansen_koster_open_end` — Kirschning, Jansen & Koster, "Accurate model for
       open end effect of microstrip lines", Electronics Letters 17(3), 123–125, 1981.
@@ -162,7 +162,7 @@ def kirschning_jansen_koster_gap(
     w1: ArrayLike, w2: ArrayLike, s: ArrayLike, h: float, eps_r: float
 ) -> GapCapacitances:
     """Microstrip gap between widths W1 (input side) and W2 (output side), in farads
-    (Kirschning, Jansen & Koster 1983, as transcribed in shared/REFERENCES.md §6.2).
+    (Kirschning, Jansen & Koster 1983, as transcribed in docs/references.md §6.2).
 
     Q1 = 0.04598 (0.03 + (W1/h)^Q5)(0.272 + 0.07 εr), Q5 = 1.23/(1 + 0.12 (W2/W1 - 1)^0.9),
     Q2 = 0.107 (W1/h + 9)(s/h)^3.23 + 2.09 (s/h)^1.05 (1.5 + 0.3 W1/h)/(1 + 0.5 W1/h),
