@@ -20,6 +20,7 @@ import sys
 import time
 import warnings
 from collections.abc import Callable
+from pathlib import Path
 
 import numpy as np
 from scipy.constants import c as C0
@@ -201,13 +202,48 @@ def batch_and_gradient_section(repeats: int) -> list[str]:
     ]
 
 
+def refiner_loop_section(repeats: int) -> list[str]:
+    """The refiner's inner loop: one design through the one element builder, on the optimiser's
+    grid, S-parameters alone and with the exact gradient (fixed and free resonator widths)."""
+    from refine import load_problem, seed
+    from refine.circuit.model import strip_model_for
+    from refine.circuit.response import strip_medium_for
+    from refine.optimise.minimax import optimiser_grid
+
+    root = Path(__file__).resolve().parent.parent / "problems"
+    rows = [
+        "",
+        "refiner's inner loop: one design on the optimiser grid (the one element builder)",
+        f"{'problem':<32}{'widths':>7}{'points':>7}{'S':>10}{'S + gradient':>14}{'ratio':>8}",
+    ]
+    for stem in ("microstrip-x-band-alumina-n3", "ms-alumina-8g-n9-3pct", "ms-pcb-tap-3g5-n4-2pct"):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            p = load_problem(root / f"{stem}.toml")
+            lay = seed(p).strip_realisation.layout
+            f = optimiser_grid(p.mask, lay.order)
+            for free in (False, True):
+                m = strip_model_for(strip_medium_for(p), p.gap_model, p.z_ref, lay, f, free)
+                x = m.vector(lay)
+                t_s = median_time(lambda m=m, x=x: m.response(x), repeats, 20)
+                t_g = median_time(lambda m=m, x=x: m.response(x, True), repeats, 10)
+                rows.append(
+                    f"{stem:<32}{'free' if free else 'fixed':>7}{f.size:>7}"
+                    f"{t_s * 1e3:>8.3f}ms{t_g * 1e3:>12.3f}ms{t_g / t_s:>7.1f}x"
+                )
+    return rows
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="fewer repeats")
     args = ap.parse_args(argv)
     repeats = 5 if args.quick else 15
     rows = (
-        ideal_section(repeats) + microstrip_section(repeats) + batch_and_gradient_section(repeats)
+        ideal_section(repeats)
+        + microstrip_section(repeats)
+        + batch_and_gradient_section(repeats)
+        + refiner_loop_section(repeats)
     )
     print("\n".join(rows))
     return 0

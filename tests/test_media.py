@@ -198,6 +198,37 @@ def test_cohn_stripline_check_values():
     )  # §7.3, recomputed
 
 
+def test_cohn_stripline_keeps_its_digits_at_both_ends_of_the_width_range():
+    # Limits of Cohn's formula (docs/references.md §7.1, derived there): a wide strip tends to
+    # eta0 / (4 sqrt(er) (W/b + 2 ln2/pi)) (the parallel plates plus the fringing of both
+    # edges), a narrow one to eta0 / (2 pi sqrt(er)) ln(8 b / (pi W)); the errors of both
+    # limits are O(exp(-pi W/b)) and O((W/b)^2), far below the tolerance at these widths.
+    eta0 = 376.730313
+    wide = np.array([12.0, 20.0, 50.0, 100.0])
+    np.testing.assert_allclose(
+        cohn_z0(wide, 2.2), eta0 / (4 * np.sqrt(2.2) * (wide + 2 * np.log(2) / np.pi)), rtol=1e-7
+    )
+    narrow = np.array([1e-5, 1e-4])
+    np.testing.assert_allclose(
+        cohn_z0(narrow, 2.2),
+        eta0 / (2 * np.pi * np.sqrt(2.2)) * np.log(8 / (np.pi * narrow)),
+        rtol=1e-7,
+    )
+    z = cohn_z0(np.geomspace(1e-4, 200.0, 400), 1.0)
+    assert np.all(np.isfinite(z)) and np.all(np.diff(z) < 0)  # falls steadily with width
+
+
+def test_air_substrate_has_no_dielectric_loss_and_no_nan():
+    # eps_r = 1: the dielectric-loss filling factor is 0/0; there is no dielectric to lose in
+    ms = Microstrip(Substrate(1.0, 0.5e-3, 0.0, 1e-3, 5.8e7))
+    f = np.linspace(1e9, 20e9, 5)
+    ac, ad = ms.attenuation(1e-3, f)
+    assert np.all(np.isfinite(ac)) and np.all(ac > 0)
+    np.testing.assert_array_equal(ad, 0.0)
+    g, z = ms.line_properties(1e-3, f)
+    assert np.all(np.isfinite(g)) and np.all(np.isfinite(z))
+
+
 def test_pozar_stripline_example():
     # Pozar, Microwave Engineering 4th ed., Example 3.5 (from memory): 50 ohm, b = 0.32 cm,
     # eps_r 2.20, copper, tan δ 0.001, 10 GHz: W = 0.266 cm, α_d = 0.155 Np/m, α_c = 0.122 Np/m.

@@ -198,7 +198,7 @@ def refine_problem(
     unsnapped = res.worst_margin
     snapped_margin = None
     if fab.grid is not None:
-        q = snap(p, model, fab.grid, fab.min_gap)
+        q = snap(p, model, fab)
         res_q, _ = _verify(problem, factory, q)
         if res.passed and not res_q.passed:
             # aim for enough margin to survive the grid (twice what snapping cost), from the
@@ -227,7 +227,7 @@ def refine_problem(
             evaluations += again.evaluations
             history += again.history
             p2 = space.to_physical(again.z)
-            q2 = snap(p2, model, fab.grid, fab.min_gap)
+            q2 = snap(p2, model, fab)
             res_q2, _ = _verify(problem, factory, q2)
             if res_q2.worst_margin > res_q.worst_margin:
                 p, z, q, res, res_q = p2, again.z, q2, again.res, res_q2
@@ -253,7 +253,7 @@ def refine_problem(
                 Stopping(100, None, stopping.target_margin_db, stopping.xtol_rel),
             )
             evaluations += rec2.evaluations
-            q = snap(space2.to_physical(rec2.z), model, fab.grid, fab.min_gap)
+            q = snap(space2.to_physical(rec2.z), model, fab)
             res_q, _ = _verify(problem, factory, q)
             notes.append(
                 "snapping to the shop's grid cost the mask; lengths were re-refined with gaps on the grid"

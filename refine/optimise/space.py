@@ -230,13 +230,14 @@ def step_space(
     return DesignSpace(variables, layout_ties(model) if layout.is_mirror else ())
 
 
-def snap(p: NDArray, model: StripFilterModel, grid: float, min_gap: float) -> NDArray:
-    """Every dimension of ``p`` on the shop's ``grid``; a gap that would round below the
-    minimum goes up to the first grid point at or above it."""
-    q = np.round(p / grid) * grid
-    is_gap = np.array([kind is Dim.GAP for kind, _ in model.dims])
-    below = is_gap & (q < min_gap - 1e-15)
-    q[below] = np.ceil(min_gap / grid - 1e-9) * grid
+def snap(p: NDArray, model: StripFilterModel, fab: FabRules) -> NDArray:
+    """Every dimension of ``p`` on the shop's grid; a gap that would round below the minimum
+    goes up to the first grid point at or above it."""
+    q = fab.on_grid(p).copy()
+    if fab.grid is not None:
+        is_gap = np.array([kind is Dim.GAP for kind, _ in model.dims])
+        below = is_gap & (q < fab.min_gap - 1e-15)
+        q[below] = np.ceil(fab.min_gap / fab.grid - 1e-9) * fab.grid
     return q
 
 
@@ -254,7 +255,7 @@ def snap_layout(fab: FabRules, model: StripFilterModel, layout: Layout) -> tuple
     is_gap = np.array([kind is Dim.GAP for kind, _ in model.dims])
     p = np.where(is_gap, np.maximum(p, fab.min_gap), p)
     if fab.grid is not None:
-        p = snap(p, model, fab.grid, fab.min_gap)
+        p = snap(p, model, fab)
     return model.layout(p), notes
 
 
@@ -262,7 +263,7 @@ def on_grid(p: NDArray, model: StripFilterModel, fab: FabRules) -> bool:
     """Whether snapping would leave ``p`` where it is."""
     if fab.grid is None:
         return True
-    return bool(np.allclose(snap(p, model, fab.grid, fab.min_gap), p, rtol=0, atol=1e-12))
+    return bool(np.allclose(snap(p, model, fab), p, rtol=0, atol=1e-12))
 
 
 def fab_violations(fab: FabRules, layout: Layout) -> list[str]:

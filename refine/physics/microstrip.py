@@ -261,7 +261,13 @@ class Microstrip:
         else:
             alpha_c = np.zeros_like(zf)
         k0 = 2.0 * np.pi * f / C0
-        alpha_d = k0 * s.eps_r * (ef - 1.0) * s.loss_tangent / (2.0 * np.sqrt(ef) * (s.eps_r - 1.0))
+        # the filling factor (eps_eff - 1)/(eps_r - 1) is 0/0 for an air substrate (eps_r = 1):
+        # there is no dielectric there, and no dielectric loss
+        er = np.asarray(s.eps_r, float)
+        excess = np.where(er > 1.0, er - 1.0, 1.0)
+        alpha_d = np.where(
+            er > 1.0, k0 * er * (ef - 1.0) * s.loss_tangent / (2.0 * np.sqrt(ef) * excess), 0.0
+        )
         return np.broadcast_to(alpha_c, zf.shape), np.broadcast_to(alpha_d, zf.shape)
 
     def line_properties(self, width: ArrayLike, f: ArrayLike) -> tuple[NDArray, NDArray]:

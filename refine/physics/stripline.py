@@ -23,7 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.constants import c as C0
-from scipy.special import ellipk
+from scipy.special import ellipk, ellipkm1
 
 from refine import _validate as v
 from refine import validity
@@ -34,13 +34,20 @@ from refine.physics.substrate import Substrate
 def cohn_z0(w_b: ArrayLike, eps_r: ArrayLike) -> NDArray:
     """Exact Z0 (ohm) of a zero-thickness centred strip, W/b = ``w_b`` (Cohn 1954).
 
-    scipy's ``ellipk`` takes the parameter m = k². For wide strips k → 0; K(k)/K(k') is then
-    evaluated through ``ellipkm1`` to keep full precision.
+    scipy's ``ellipk`` takes the parameter m = k². Near m = 1 the parameter itself has lost
+    the digits of 1 − m, so there each K is evaluated as ``ellipkm1`` of the complementary
+    parameter (1 − k² = k'² computed as tanh², 1 − k'² = k² as sech², each to full relative
+    precision). That keeps the ratio exact at both ends of the width range: a narrow strip
+    (k → 1, W/b ≲ 0.006) and a wide one (k' → 1, W/b ≳ 3.4, where the direct form loses every
+    digit by W/b ≈ 12). In between, the direct form is used (both are the same function).
     """
     x = np.pi * np.asarray(w_b, float) / 2.0
-    k2 = 1.0 / np.cosh(x) ** 2  # k² = sech²
-    kp2 = np.tanh(x) ** 2  # k'² = tanh², and k² + k'² = 1
-    return ETA0 / (4.0 * np.sqrt(np.asarray(eps_r, float))) * ellipk(k2) / ellipk(kp2)
+    sech2 = 1.0 / np.cosh(x) ** 2  # k²
+    tanh2 = np.tanh(x) ** 2  # k'²
+    near_one = 1.0 - 1e-4
+    k_k = np.where(sech2 < near_one, ellipk(sech2), ellipkm1(tanh2))
+    k_kp = np.where(tanh2 < near_one, ellipk(tanh2), ellipkm1(sech2))
+    return ETA0 / (4.0 * np.sqrt(np.asarray(eps_r, float))) * k_k / k_kp
 
 
 def wheeler_z0(w_b: ArrayLike, t_b: ArrayLike, eps_r: ArrayLike) -> NDArray:

@@ -4,6 +4,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
 from refine import _validate as v
 
 
@@ -35,3 +38,9 @@ class FabRules:
             val = getattr(self, name)
             if val is not None:
                 v.real_in_range(f"fab.{name}", val, 0.0, None)
+
+    def on_grid(self, x: ArrayLike) -> NDArray[np.float64]:
+        """``x`` (metres) rounded to the nearest point of the shop's grid (unchanged without
+        a grid); the one rounding rule of refine."""
+        x = np.asarray(x, float)
+        return x if self.grid is None else np.round(x / self.grid) * self.grid

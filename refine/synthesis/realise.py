@@ -139,7 +139,7 @@ def realise(
         )
         feed_w = res_w = fab.min_width
     if fab is not None and fab.grid is not None:  # strips are drawn on the shop's grid
-        feed_w = res_w = max(round(feed_w / fab.grid), 1) * fab.grid
+        feed_w = res_w = max(float(fab.on_grid(feed_w)), fab.grid)
     y0 = 1.0 / float(medium.dispersive(res_w, np.array([f0]))[0][..., 0])
     n = design.order
     sides = [feed_w] + [res_w] * n + [feed_w]

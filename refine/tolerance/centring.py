@@ -111,7 +111,7 @@ def centre_for_yield(
     )
     p = space.to_physical(rec.z)
     if fab.grid is not None:
-        p = snap(p, model, fab.grid, fab.min_gap)
+        p = snap(p, model, fab)
     moved = model.layout(p)
     after = estimate_yield(problem, moved, check_samples, seed + 1, correlated)
     if fab_violations(fab, moved) or after.yield_fraction <= before.yield_fraction:
