@@ -114,6 +114,26 @@ def test_lossy_line_is_strictly_passive():
     assert np.all(power < 1.0)
 
 
+def test_a_very_long_lossy_line_transmits_nothing_and_stays_finite():
+    # alpha * l = 2000 Np: exp overflows at about 710 Np; the engine holds each element at
+    # MAX_NEPERS, so S21 is "nothing" (< -250 dB) and every figure stays finite and passive
+    f = np.linspace(1e9, 3e9, 11)
+    gamma = 20.0 + 1j * 2 * np.pi * f / C0
+    for els in (
+        [cascade.Line(gamma, np.full(f.shape, 50.0 + 0j), 100.0)],
+        [cascade.SeriesCapacitor(1e-12), cascade.Line(gamma, np.full(f.shape, 50.0), 100.0)] * 3,
+        [cascade.ShuntOpenStub(gamma, np.full(f.shape, 50.0), 100.0)],
+    ):
+        s = cascade.s_parameters(els, f, 50.0)
+        assert np.all(np.isfinite(s))
+        power = np.sum(np.abs(s) ** 2, axis=-2)
+        assert np.all(power <= 1.0 + 1e-9)
+        if not isinstance(els[0], cascade.ShuntOpenStub):
+            assert np.all(np.abs(s[:, 1, 0]) < 10 ** (-250 / 20))
+        g = cascade.s11_s21_gradient(els, f, 50.0)
+        assert all(np.all(np.isfinite(v)) for d in g.ds21 for v in d.values())
+
+
 def _fd_check(build, params, f, rel=1e-5):
     """Compare the analytic gradient with central finite differences for each named parameter."""
     base = build(params)

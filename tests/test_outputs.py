@@ -12,7 +12,9 @@ import pytest
 from skrf import Network
 
 from refine.cli import main
+from refine.optimise.minimax import Stopping
 from refine.outputs import export
+from refine.validity import ModelRangeWarning
 
 ROOT = Path(__file__).parent.parent
 ALUMINA = ROOT / "problems/microstrip-x-band-alumina-n3.toml"
@@ -213,3 +215,44 @@ def test_tapped_layout_drawing(tmp_path):
         lay.taps[0]
     )  # centre line at the tap
     assert feed_in.y1 == pytest.approx(res1.y0)  # the feed touches the resonator's edge
+
+
+HOSTILE_NAMES = [
+    "demo\n# Hz S MA R 1",  # a second Touchstone option line
+    'x"/><script>alert(1)</script><title>',  # markup in SVG and Markdown
+    "\r\n0\nSECTION\n2\nENTITIES",  # DXF group codes
+    "$\\frac{$ 100 % & <b>",  # unbalanced matplotlib mathtext, entities
+    "y" * 5000,  # long
+]
+
+
+@pytest.mark.parametrize("name", HOSTILE_NAMES, ids=range(len(HOSTILE_NAMES)))
+def test_hostile_names_cannot_break_an_output_file(name, tmp_path):
+    """The problem-file reader refuses such names (see the bad-input corpus); a caller of the
+    API can still set one, so every writer escapes or flattens it. Each file is read back by an
+    independent reader: scikit-rf (Touchstone), an XML parser (SVG), ezdxf's audit (DXF)."""
+    import xml.etree.ElementTree as ET
+    from dataclasses import replace
+
+    import refine
+
+    p = replace(refine.load_problem(ALUMINA), name=name)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        sd = refine.seed(p)
+        r = refine.design(p, seed=sd, stopping=Stopping(max_evaluations=5))
+        refine.write_outputs(r, sd, tmp_path / "out")
+    out = tmp_path / "out"
+    net = Network(str(out / "response.s2p"))
+    np.testing.assert_allclose(net.z0, 50.0)
+    text = (out / "response.s2p").read_text()
+    assert sum(line.startswith("#") for line in text.splitlines()) == 1
+    root = ET.parse(out / "layout.svg").getroot()
+    title = root.find("{http://www.w3.org/2000/svg}title").text
+    assert title.startswith(export.one_line(name)[:50])
+    assert "<script" not in (out / "layout.svg").read_text()
+    doc = ezdxf.readfile(out / "layout.dxf")
+    assert not doc.audit().has_errors
+    report = (out / "report.md").read_text()
+    assert report.splitlines()[0].startswith("# ") and "<script" not in report
+    assert len(report.splitlines()[0]) < 250

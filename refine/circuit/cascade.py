@@ -87,14 +87,23 @@ class Element(Protocol):
 # --------------------------------------------------------------------------------------------
 
 
+#: the most attenuation one element is given (Np, about 260 dB): beyond it a line transmits
+#: nothing either way, and a chain of twenty such elements stays inside floating point
+MAX_NEPERS = 30.0
+
+
 def _cosh_sinh(x: ArrayLike) -> tuple[NDArray, Array]:
     """cosh and sinh of a complex array from real exp/cos/sin (several times faster than
-    complex exp); for a lossless argument (Re x = 0) cosh is returned as a real array."""
+    complex exp); for a lossless argument (Re x = 0) cosh is returned as a real array. The real
+    part is held within ±:data:`MAX_NEPERS`, so an absurdly long lossy line gives "no
+    transmission" instead of an overflow and NaN."""
     x = np.asarray(x)
     a, b = x.real, x.imag
     cb, sb = np.cos(b), np.sin(b)
     if not a.any():
         return cb, 1j * sb
+    if np.abs(a).max() > MAX_NEPERS:
+        a = np.clip(a, -MAX_NEPERS, MAX_NEPERS)
     ea = np.exp(a)
     eai = 1.0 / ea
     cha, sha = 0.5 * (ea + eai), 0.5 * (ea - eai)

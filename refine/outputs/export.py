@@ -10,9 +10,11 @@ import json
 import math
 import os
 import tempfile
+import unicodedata
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from xml.sax.saxutils import escape as xml_escape
 
 import numpy as np
 from numpy.typing import NDArray
@@ -55,7 +57,7 @@ def write_text_atomic(path: str | Path, text: str) -> Path:
 def touchstone_text(f: NDArray, s: NDArray, z_ref: float, comments: Sequence[str] = ()) -> str:
     """Touchstone 1.1 two-port text: ``# Hz S RI R z_ref``, columns f, S11, S21, S12, S22 as
     real/imaginary pairs (the two-port column order of the Touchstone specification)."""
-    lines = [f"! {c}" for c in comments]
+    lines = [f"! {one_line(c, 1000)}" for c in comments]
     lines.append(f"# Hz S RI R {z_ref:.10g}")
     order = ((0, 0), (1, 0), (0, 1), (1, 1))
     for k, fk in enumerate(np.asarray(f, float)):
@@ -214,13 +216,22 @@ def write_dxf(path: str | Path, layout: Layout, title: str = "") -> Path:
                 ((st.x0 + st.x1) / 2 * 1e3, st.y1 * 1e3 + 0.3 * h)
             )
         if title:
-            msp.add_text(title, height=0.25 * h, dxfattribs={"layer": "labels"}).set_placement(
+            msp.add_text(one_line(title), height=0.25 * h, dxfattribs={"layer": "labels"}).set_placement(
                 (strips[0].x0 * 1e3, -3 * h)
             )
         doc.header["$INSUNITS"] = 4  # millimetres
         doc.saveas(tmp)
 
     return write_atomic(path, writer)
+
+
+def one_line(text: str, limit: int = 200) -> str:
+    """``text`` as a single printable line of at most ``limit`` characters: control characters
+    (line breaks included) become spaces, and a longer text is cut with an ellipsis. Every
+    writer passes free text (the problem's name) through it, so no name can start a new line
+    in a Touchstone header or a DXF text."""
+    flat = "".join(" " if unicodedata.category(c) in ("Cc", "Zl", "Zp") else c for c in text)
+    return flat if len(flat) <= limit else flat[: limit - 1] + "…"
 
 
 def svg_text(layout: Layout, title: str = "") -> str:
@@ -234,14 +245,14 @@ def svg_text(layout: Layout, title: str = "") -> str:
     w, h = x1 - x0, y1 - y0
     parts = [
         f'<svg xmlns="http://www.w3.org/2000/svg" width="{w:.4f}mm" height="{h:.4f}mm" viewBox="{x0:.5f} {-y1:.5f} {w:.5f} {h:.5f}">',
-        f"<title>{title or 'refine layout'}</title>",
+        f"<title>{xml_escape(one_line(title or 'refine layout'))}</title>",
         f'<rect x="{x0:.5f}" y="{-y1:.5f}" width="{w:.5f}" height="{h:.5f}" fill="white"/>',
         '<g id="copper" fill="#b87333" stroke="none">',
     ]
     for s in strips:
         parts.append(
             f'<rect x="{s.x0 * 1e3:.5f}" y="{-s.y1 * 1e3:.5f}" width="{(s.x1 - s.x0) * 1e3:.5f}" '
-            f'height="{(s.y1 - s.y0) * 1e3:.5f}"><title>{s.name}</title></rect>'
+            f'height="{(s.y1 - s.y0) * 1e3:.5f}"><title>{xml_escape(s.name)}</title></rect>'
         )
     parts.append("</g></svg>")
     return "\n".join(parts) + "\n"

@@ -98,7 +98,8 @@ def write_outputs(
         "not met": "DOES NOT MEET THE MASK",
         "infeasible": "INFEASIBLE: DOES NOT MEET THE MASK",
     }[r.status.value]
-    title = p.name
+    title = export.one_line(p.name)
+    plot_title = title.replace("$", r"\$")  # a name is text, never matplotlib mathtext
     written = []
     written.append(
         export.write_json(out / "summary.json", report.summary(r, sd, spread, power_w, notes))
@@ -120,8 +121,10 @@ def write_outputs(
     if r.layout is not None:
         written.append(export.write_dxf(out / "layout.dxf", r.layout, f"{title} ({status})"))
         written.append(export.write_svg(out / "layout.svg", r.layout, f"{title} ({status})"))
-        written.append(plot.layout_png(out / "layout.png", r.layout, title))
-    written.append(plot.response_png(out / "response.png", f, s_ref, s_seed, p.mask, title, status))
+        written.append(plot.layout_png(out / "layout.png", r.layout, plot_title))
+    written.append(
+        plot.response_png(out / "response.png", f, s_ref, s_seed, p.mask, plot_title, status)
+    )
     written.append(
         export.write_text_atomic(out / "report.md", report.report_md(r, sd, spread, power_w, notes))
     )

@@ -8,6 +8,7 @@ the ~3 kV/mm of dry air at sea level; common practice, no source) across the gap
 
 from __future__ import annotations
 
+import html
 import math
 import warnings
 from dataclasses import asdict
@@ -20,6 +21,7 @@ from refine.circuit.layout import Layout
 from refine.circuit.response import layout_build, strip_medium_for
 from refine.optimise import seed as job
 from refine.optimise.refiner import RefineResult, Status
+from refine.outputs import export
 from refine.physics import gap_fixture
 from refine.physics.substrate import Substrate
 from refine.spec.coupling import Coupling
@@ -172,7 +174,7 @@ def report_md(
     r: RefineResult, sd: job.Seed, spread: dict, power_w: float, warnings_: list[str]
 ) -> str:
     p = r.problem
-    lines = [f"# {p.name}", ""]
+    lines = [f"# {html.escape(export.one_line(p.name))}", ""]
     verdict = {
         Status.MET: "**The refined design meets the mask.**",
         Status.NOT_MET: "**NOT MET: the best design found does not meet the mask.** The outputs describe that best design.",

@@ -36,6 +36,7 @@ from __future__ import annotations
 import math
 import re
 import tomllib
+import unicodedata
 from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
@@ -49,6 +50,7 @@ from refine.spec.fab import FabRules
 from refine.spec.mask import Mask, Stopband
 
 MEDIUM_KINDS = ("microstrip", "stripline", "ideal")
+MAX_NAME = 200  # characters of a problem's name (it titles every output file)
 EXTERNAL_KINDS = tuple(c.value for c in Coupling)
 RESONATOR_WIDTHS = ("free", "feed")
 GAP_MODELS = {**strip.GAP_MODELS, "ideal": ()}
@@ -263,6 +265,13 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
     name = data.get("name")
     if not isinstance(name, str) or not name.strip():
         raise r.fail("name", name, "must be a non-empty string")
+    if len(name) > MAX_NAME:
+        raise ProblemError(
+            f"{source}: name = {name[:40]!r}... ({len(name)} characters): must be at most "
+            f"{MAX_NAME} characters"
+        )
+    if any(unicodedata.category(c) in ("Cc", "Zl", "Zp") for c in name):
+        raise r.fail("name", name, "must be one line of text (no line breaks or control characters)")
 
     resp = r.table(
         data,
