@@ -216,9 +216,9 @@ def write_dxf(path: str | Path, layout: Layout, title: str = "") -> Path:
                 ((st.x0 + st.x1) / 2 * 1e3, st.y1 * 1e3 + 0.3 * h)
             )
         if title:
-            msp.add_text(one_line(title), height=0.25 * h, dxfattribs={"layer": "labels"}).set_placement(
-                (strips[0].x0 * 1e3, -3 * h)
-            )
+            msp.add_text(
+                one_line(title), height=0.25 * h, dxfattribs={"layer": "labels"}
+            ).set_placement((strips[0].x0 * 1e3, -3 * h))
         doc.header["$INSUNITS"] = 4  # millimetres
         doc.saveas(tmp)
 

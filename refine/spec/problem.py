@@ -271,7 +271,9 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
             f"{MAX_NAME} characters"
         )
     if any(unicodedata.category(c) in ("Cc", "Zl", "Zp") for c in name):
-        raise r.fail("name", name, "must be one line of text (no line breaks or control characters)")
+        raise r.fail(
+            "name", name, "must be one line of text (no line breaks or control characters)"
+        )
 
     resp = r.table(
         data,
