@@ -498,7 +498,14 @@ def _cmd_study(args: argparse.Namespace) -> int:
     print(f"{st.name}: {len(st.designs)} designs over {', '.join(st.axes)} on {where}", flush=True)
     try:
         frame = study.run_study(
-            st, args.out, args.workers, client, args.resume, args.force, study.progress_printer()
+            st,
+            args.out,
+            args.workers,
+            client,
+            args.resume,
+            args.force,
+            study.progress_printer(),
+            lambda note: print(f"note: {note}", file=sys.stderr, flush=True),
         )
     finally:
         if client is not None:

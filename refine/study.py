@@ -32,6 +32,7 @@ import json
 import math
 import os
 import sys
+import threading
 import time
 import tomllib
 import warnings
@@ -42,7 +43,8 @@ from pathlib import Path
 from typing import Any
 
 from refine.optimise.refiner import refine_problem
-from refine.outputs.export import write_atomic, write_json
+from refine.outputs.export import write_atomic, write_json, write_text_atomic
+from refine.outputs.files import OutputError, locked_folder
 from refine.spec.problem import ProblemError, parse_problem
 from refine.tolerance import montecarlo as tolerance
 from refine.validity import ModelRangeWarning
@@ -75,10 +77,15 @@ class Study:
 
 
 def _set(d: dict, dotted: str, value: Any) -> None:
+    """Set the problem-file key ``dotted`` ("medium.eps_r") in ``d``; a ValueError when a part
+    of the path is a value, not a table ("response.order.x")."""
     *path, last = dotted.split(".")
     t = d
-    for k in path:
+    for depth, k in enumerate(path):
         t = t.setdefault(k, {})
+        if not isinstance(t, dict):
+            where = ".".join(path[: depth + 1])
+            raise ValueError(f"{where} is a value in the problem file, not a table of keys")
     t[last] = copy.deepcopy(value)
 
 
@@ -140,7 +147,10 @@ def load_study(path: str | Path, allow_many: bool = False) -> Study:
                 d.get("response", {}).pop("bandwidth", None)
             if key == "response.bandwidth":
                 d.get("response", {}).pop("fractional_bandwidth", None)
-            _set(d, key, value)
+            try:
+                _set(d, key, value)
+            except ValueError as e:
+                raise StudyError(f"{p}: axes.{key}: {e}") from None
             label[key] = value
         d["name"] = f"{name} #{len(designs)}"
         try:
@@ -195,11 +205,48 @@ def run_design(index: int, problem_dict: dict, source: str, yield_samples: int) 
     return row
 
 
+PARENT_POLL_S = 1.0  # how often a pool worker checks that the study that started it is alive
+
+
+def watch_parent(parent_pid: int) -> None:
+    """Run in each pool worker as it starts: a daemon thread ends the worker when the study
+    process that started it is gone (killed with SIGKILL, say, which gives the pool no chance
+    to stop its workers); otherwise they would run on, orphaned, until their queue is empty."""
+
+    def watch() -> None:
+        while True:
+            time.sleep(PARENT_POLL_S)
+            if os.getppid() != parent_pid:
+                os._exit(1)
+
+    threading.Thread(target=watch, name="refine-parent-watch", daemon=True).start()
+
+
 def _append(store: Path, row: dict) -> None:
     with open(store, "a", encoding="utf-8") as fh:
         fh.write(json.dumps(row, default=str) + "\n")
         fh.flush()
         os.fsync(fh.fileno())
+
+
+def _repair_store(store: Path) -> int:
+    """Rewrite the store (atomically) without lines that do not parse, such as the last line
+    of a run killed while writing it; returns how many were dropped. Appending after a torn
+    line would otherwise glue the next row onto it."""
+    if not store.exists():
+        return 0
+    text = store.read_text(encoding="utf-8")
+    good, bad = [], 0
+    for line in text.splitlines():
+        try:
+            json.loads(line)
+            good.append(line)
+        except json.JSONDecodeError:
+            bad += 1
+    torn_end = bool(text) and not text.endswith("\n")
+    if bad or torn_end:
+        write_text_atomic(store, "".join(x + "\n" for x in good))
+    return bad
 
 
 def _read_store(store: Path) -> dict[int, dict]:
@@ -237,15 +284,43 @@ def run_study(
     resume: bool = False,
     force: bool = False,
     progress: Callable[[int, int, dict], None] | None = None,
+    say: Callable[[str], None] | None = None,
 ):
-    """Run every design not yet in the store; return the full results table (pandas)."""
-    import pandas as pd  # deferred: pandas costs start-up time to every other verb
+    """Run every design not yet in the store; return the full results table (pandas).
 
+    The folder is locked for the run (a second run into it stops at once); a results store or
+    header that is a symbolic link is refused, never written through; on ``resume`` a last line
+    cut short by a kill is dropped from the store (``say`` is told) and that design runs again."""
     out = Path(out)
-    store = out / "results.jsonl"
-    header = out / "study.json"
     if out.exists() and not out.is_dir():
         raise StudyError(f"--out {out}: exists and is not a folder")
+    for name in ("results.jsonl", "study.json", "results.csv", "results.parquet"):
+        if (out / name).is_symlink():
+            raise StudyError(
+                f"--out {out}: {name} is a symbolic link; refine never writes through a link "
+                "(remove it or choose another folder)"
+            )
+    try:
+        with locked_folder(out, True, ()) as folder:
+            return _run_study(study, folder, workers, client, resume, force, progress, say)
+    except OutputError as e:
+        raise StudyError(str(e)) from None
+
+
+def _run_study(
+    study: Study,
+    out: Path,
+    workers: int | None,
+    client: Any,
+    resume: bool,
+    force: bool,
+    progress: Callable[[int, int, dict], None] | None,
+    say: Callable[[str], None] | None,
+) -> Any:
+    import pandas as pd  # deferred: pandas costs start-up time to every other verb
+
+    store = out / "results.jsonl"
+    header = out / "study.json"
     if header.exists():
         old = json.loads(header.read_text())
         if not resume and not force:
@@ -269,6 +344,13 @@ def run_study(
             "axes": study.axes,
         },
     )
+    if resume:
+        dropped = _repair_store(store)
+        if dropped and say is not None:
+            say(
+                f"results.jsonl: dropped {dropped} line(s) cut short by an interrupted run; "
+                "those designs run again"
+            )
     done = _read_store(store) if resume else {}
     todo = [k for k in range(len(study.designs)) if k not in done]
     counts = {"met": 0, "not met": 0, "infeasible": 0}
@@ -294,7 +376,11 @@ def run_study(
         for a in args:
             finish(run_design(*a))
     else:
-        with ProcessPoolExecutor(max_workers=workers or os.cpu_count()) as pool:
+        with ProcessPoolExecutor(
+            max_workers=workers or os.cpu_count(),
+            initializer=watch_parent,
+            initargs=(os.getpid(),),
+        ) as pool:
             for fut in as_completed([pool.submit(run_design, *a) for a in args]):
                 finish(fut.result())
     rows = []

@@ -256,3 +256,53 @@ def test_hostile_names_cannot_break_an_output_file(name, tmp_path):
     report = (out / "report.md").read_text()
     assert report.splitlines()[0].startswith("# ") and "<script" not in report
     assert len(report.splitlines()[0]) < 250
+
+
+def test_output_links_are_never_written_through(tmp_path, capsys):
+    out = tmp_path / "out"
+    out.mkdir()
+    target = tmp_path / "precious.json"
+    target.write_text("keep me")
+    (out / "summary.json").symlink_to(target)
+    (out / "report.md").symlink_to(tmp_path / "nowhere.md")  # dangling
+    assert main(["design", str(ALUMINA), "--out", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "summary.json" in err and "report.md" in err and "symbolic link" in err
+    assert main(["design", str(ALUMINA), "--out", str(out), "--force"]) == 0
+    assert target.read_text() == "keep me"  # the link was replaced, not followed
+    assert not (out / "summary.json").is_symlink() and not (out / "report.md").is_symlink()
+    assert not (tmp_path / "nowhere.md").exists()
+
+
+@pytest.mark.slow
+def test_two_runs_into_one_folder_never_leave_a_mixed_set(tmp_path):
+    """Two real processes design two different problems into the same folder at once: the
+    folder is locked while a set is written, and the second run re-checks it under the lock,
+    so the folder always holds one problem's complete set and the other run says why not."""
+    import subprocess
+    import sys
+
+    other = ROOT / "problems/ms-alumina-tap-10g-n3-8pct.toml"
+    for trial in range(2):
+        out = tmp_path / f"out{trial}"
+        cmd = [sys.executable, "-m", "refine.cli", "design"]
+        procs = [
+            subprocess.Popen(
+                [*cmd, str(p), "--out", str(out)],
+                stdout=subprocess.DEVNULL,
+                stderr=subprocess.PIPE,
+                text=True,
+            )
+            for p in (ALUMINA, other)
+        ]
+        errs = [p.communicate(timeout=300)[1] for p in procs]
+        codes = [p.returncode for p in procs]
+        assert sorted(codes) == [0, 2], (codes, errs)
+        loser = errs[codes.index(2)]
+        assert "already holds" in loser or "another refine run is writing there" in loser
+        summary = json.loads((out / "summary.json").read_text())
+        layout = json.loads((out / "layout.json").read_text())
+        assert summary["layout_m"]["gaps"] == layout["gaps"]
+        report = (out / "report.md").read_text().splitlines()[0]
+        assert report == f"# {summary['problem']}"
+        assert summary["problem"] in (out / "response.s2p").read_text().splitlines()[0]

@@ -81,6 +81,10 @@ def test_bundled_study_loads():
             'name = "x"\nbase = "{b}"\n[axes]\n"response.order" = [3]\n[options]\nyield_samples = -1\n',
             "options.yield_samples = -1: must be an integer in 0..100000",
         ),
+        (
+            'name = "x"\nbase = "{b}"\n[axes]\n"response.order.x" = [1]\n',
+            "axes.response.order.x: response.order is a value in the problem file, not a table",
+        ),
     ],
 )
 def test_bad_study_files(tmp_path, text, message):
@@ -196,3 +200,74 @@ def test_study_verb_writes_table_and_plots(tmp_path, capsys):
         assert (out / name).exists(), name
     assert "met 3, not met 1, infeasible 0" in capsys.readouterr().out
     assert main(["study", str(_small(tmp_path)), "--out", str(out), "--workers", "0"]) == 2
+
+
+def test_a_torn_last_line_is_repaired_on_resume(tmp_path):
+    """A kill while a row is being written leaves a partial last line; resume drops it (and
+    says so) instead of gluing the next row onto it."""
+    p = _small(tmp_path)
+    out = tmp_path / "out"
+    full = study.run_study(study.load_study(p), out, workers=1)
+    store = out / "results.jsonl"
+    lines = store.read_text().splitlines()
+    store.write_text("\n".join(lines[:2]) + "\n" + lines[2][: len(lines[2]) // 2])  # torn
+    notes = []
+    again = study.run_study(study.load_study(p), out, workers=1, resume=True, say=notes.append)
+    rows = [json.loads(line) for line in store.read_text().splitlines()]  # every line parses
+    assert sorted(r["index"] for r in rows) == [0, 1, 2, 3]
+    assert notes and "dropped 1 line" in notes[0]
+    assert _rows(again) == _rows(full)
+
+
+def test_a_symbolic_link_in_the_study_folder_is_refused(tmp_path):
+    p = _small(tmp_path)
+    out = tmp_path / "out"
+    out.mkdir()
+    target = tmp_path / "elsewhere.jsonl"
+    target.write_text("")
+    (out / "results.jsonl").symlink_to(target)
+    with pytest.raises(study.StudyError, match=r"results\.jsonl is a symbolic link"):
+        study.run_study(study.load_study(p), out, workers=1)
+    assert target.read_text() == ""
+
+
+@pytest.mark.slow
+def test_pool_workers_do_not_outlive_a_killed_study(tmp_path):
+    """SIGKILL of the study process alone (not its group): its pool workers see their parent
+    gone and exit within a few seconds."""
+    psutil = pytest.importorskip("psutil")
+    p = _write(
+        tmp_path,
+        f'''name = "orphans"
+base = "{ALUMINA_BASE}"
+[axes]
+"response.fractional_bandwidth" = [0.01, 0.02, 0.03, 0.05, 0.08, 0.12]
+"response.order" = [3, 5]
+''',
+    )
+    proc = subprocess.Popen(
+        [
+            *[sys.executable, "-m", "refine.cli", "study", str(p)],
+            "--out",
+            str(tmp_path / "o"),
+            "--workers",
+            "2",
+        ],
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+        start_new_session=True,
+    )
+    parent = psutil.Process(proc.pid)
+    deadline = time.time() + 60
+    workers = []
+    while time.time() < deadline and len(workers) < 2:
+        workers = [c for c in parent.children(recursive=True) if c.is_running()]
+        time.sleep(0.1)
+    assert len(workers) >= 2, "the pool must be running before the kill"
+    time.sleep(1.0)
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()
+    _, alive = psutil.wait_procs(workers, timeout=10)
+    for w in alive:  # clean up before failing
+        w.kill()
+    assert not alive, f"{len(alive)} worker(s) outlived the killed study"

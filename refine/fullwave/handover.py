@@ -10,7 +10,7 @@ from pathlib import Path
 
 from refine.fullwave.verify import FieldCheck
 from refine.outputs import export, plot
-from refine.outputs.files import prepare_folder
+from refine.outputs.files import locked_folder
 
 FILES = ("fullwave.s2p", "fullwave.png", "fullwave.json", "fullwave.md")
 SECTION = "## Field-solver check"
@@ -94,9 +94,12 @@ def section_md(c: FieldCheck) -> str:
 
 def write_check(c: FieldCheck, out: str | Path, force: bool = False) -> list[Path]:
     """Write the check's files into ``out``; refresh report.md and summary.json there if a
-    design was written to the same folder."""
-    out = prepare_folder(out, force, FILES)
-    out.mkdir(parents=True, exist_ok=True)
+    design was written to the same folder (the folder is locked meanwhile)."""
+    with locked_folder(out, force, FILES) as folder:
+        return _write_check(c, folder)
+
+
+def _write_check(c: FieldCheck, out: Path) -> list[Path]:
     p = c.problem
     comp = c.comparison
     status = (

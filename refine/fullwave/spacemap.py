@@ -53,7 +53,7 @@ from refine.fullwave import verify
 from refine.optimise.minimax import Stopping, minimax
 from refine.optimise.space import DesignSpace, mirror_ties, snap_layout, step_space
 from refine.outputs import export
-from refine.outputs.files import prepare_folder
+from refine.outputs.files import locked_folder
 from refine.spec.coupling import Coupling
 from refine.spec.problem import Problem
 
@@ -416,7 +416,11 @@ def correct(
 def write_corrected(sm: Correction, out: str | Path, force: bool = False) -> list[Path]:
     """The best layout found (JSON, DXF: the round with the largest field-solver margin) and
     the history of the rounds."""
-    out = prepare_folder(out, force, FILES)
+    with locked_folder(out, force, FILES) as folder:
+        return _write_corrected(sm, folder)
+
+
+def _write_corrected(sm: Correction, out: Path) -> list[Path]:
     names = FILES
     lay = sm.layouts[sm.best]
     rounds = [

@@ -7,6 +7,10 @@ file is written atomically; an existing output file is never replaced unless ``f
 
 from __future__ import annotations
 
+import fcntl
+import os
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
@@ -43,17 +47,55 @@ class OutputError(ValueError):
 
 def prepare_folder(out: str | Path, force: bool, names: tuple[str, ...] = OUTPUT_FILES) -> Path:
     """Check (before anything is computed or written) that ``out`` may receive the files
-    ``names`` (the design's outputs by default)."""
+    ``names`` (the design's outputs by default). A symbolic link where an output goes is never
+    written through: without ``force`` it is refused like any other clash; with ``force`` the
+    link itself is replaced by the new file (its target is left alone)."""
     out = Path(out)
+    if out.is_symlink() and not out.is_dir():
+        raise OutputError(f"--out {out}: is a symbolic link that leads to no folder")
     if out.exists() and not out.is_dir():
         raise OutputError(f"--out {out}: exists and is not a folder")
     if out.is_dir() and not force:
-        clash = [n for n in names if (out / n).exists()]
+        clash = [n for n in names if (out / n).exists() or (out / n).is_symlink()]
+        links = [n for n in clash if (out / n).is_symlink()]
         if clash:
+            link_note = (
+                f" ({', '.join(links)} {'is a symbolic link' if len(links) == 1 else 'are symbolic links'}: "
+                "refine never writes through a link; --force replaces the link itself)"
+                if links
+                else ""
+            )
             raise OutputError(
                 f"--out {out}: already holds {', '.join(clash)}; use --force to replace them"
+                + link_note
             )
     return out
+
+
+@contextmanager
+def locked_folder(
+    out: str | Path, force: bool, names: tuple[str, ...] = OUTPUT_FILES
+) -> Iterator[Path]:
+    """``out``, created and held under an exclusive lock while a set of files is written into
+    it, so that two runs can never leave a mix of each other's files there. A second run that
+    finds the folder locked stops at once with :class:`OutputError`; one that gets the lock
+    after another run finished checks the folder again (:func:`prepare_folder`) and refuses to
+    replace what that run wrote unless ``force``. (POSIX ``flock`` on the folder itself: no lock
+    file is left behind.)"""
+    out = prepare_folder(out, force, names)
+    out.mkdir(parents=True, exist_ok=True)
+    fd = os.open(out, os.O_RDONLY)
+    try:
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            raise OutputError(
+                f"--out {out}: another refine run is writing there now; wait for it to finish "
+                "or choose another folder"
+            ) from None
+        yield prepare_folder(out, force, names)
+    finally:
+        os.close(fd)
 
 
 def sweep(problem: Problem, n: int = 2001) -> np.ndarray:
@@ -78,8 +120,11 @@ def write_outputs(
     r: RefineResult, sd: job.Seed, out: str | Path, power_w: float = 1.0, force: bool = False
 ) -> list[Path]:
     """Write every hand-over file; returns the paths written."""
-    out = prepare_folder(out, force)
-    out.mkdir(parents=True, exist_ok=True)
+    with locked_folder(out, force) as folder:
+        return _write_all(r, sd, folder, power_w)
+
+
+def _write_all(r: RefineResult, sd: job.Seed, out: Path, power_w: float) -> list[Path]:
     p = r.problem
     f = sweep(p)
     s_ref, s_seed = responses(r, f)
