@@ -205,7 +205,14 @@ def test_study_verb_writes_table_and_plots(tmp_path, capsys):
 def test_a_torn_last_line_is_repaired_on_resume(tmp_path):
     """A kill while a row is being written leaves a partial last line; resume drops it (and
     says so) instead of gluing the next row onto it."""
-    p = _small(tmp_path)
+    p = _write(
+        tmp_path,
+        f'''name = "quick"
+base = "{IDEAL}"
+[axes]
+"response.fractional_bandwidth" = [0.06, 0.08, 0.1, 0.12]
+''',
+    )
     out = tmp_path / "out"
     full = study.run_study(study.load_study(p), out, workers=1)
     store = out / "results.jsonl"
