@@ -3,7 +3,11 @@
 circuit paths give the same S-parameters and gradients as the record.
 
 Recorded by ``tests/golden/record.py`` at commit 1f2dbf0, before the one-circuit-layer
-restructuring. A deliberate change of behaviour re-records the file and says why in its commit.
+restructuring, and passed unchanged through it (to commit 6559560). Re-recorded once since, for
+deliberate model fixes (see that commit and CHANGELOG.md): Garg-Bahl's series capacitance held
+positive where the fit fails for wide strips, Kirschning-Jansen-Koster's negative shunt
+capacitance held at 0, stripline wide-gap forms that keep their digits. Statuses did not change.
+A deliberate change of behaviour re-records the file and says why in its commit.
 """
 
 from __future__ import annotations

@@ -34,6 +34,7 @@ Stripline gap and open end
 from __future__ import annotations
 
 import math
+import warnings
 from typing import NamedTuple
 
 import numpy as np
@@ -51,6 +52,9 @@ PF = 1e-12
 # published branches; outside it each branch is used exactly as published.
 GB_BLEND_CENTRE = 0.3
 GB_BLEND_FACTOR = 1.1
+# Garg-Bahl's series capacitance is held at least at this fraction of C_odd/2 (see
+# garg_bahl_gap: the fit goes negative for wide strips, outside its W/h range)
+GB_SERIES_FLOOR = 1e-3
 
 
 class GapCapacitances(NamedTuple):
@@ -120,6 +124,18 @@ def garg_bahl_gap(w: ArrayLike, s: ArrayLike, h: ArrayLike, eps_r: ArrayLike) ->
         p = np.imag(cs1c) / hstep / cs1  # d ln C / d (s/W) at 1 = d ln C / d ln(s/W) at 1
         cont = cs1 * (s / w) ** p
         c_series = np.where(x > 1.0, cont, c_series)
+    floor = GB_SERIES_FLOOR * 0.5 * c_odd
+    if np.any(np.real(c_series) < np.real(floor)):
+        # outside the fitted W/h (wide strips) the even-mode term overtakes the odd one and
+        # the fit's series capacitance falls through zero: hold it at a small positive floor
+        warnings.warn(
+            "Garg-Bahl gap: the fit's series capacitance falls below "
+            f"{GB_SERIES_FLOOR:g} of C_odd/2 (non-physical) at W/h up to "
+            f"{float(np.max(np.real(w) / h)):.3g}; held at that floor",
+            validity.ModelRangeWarning,
+            stacklevel=2,
+        )
+        c_series = np.where(np.real(c_series) < np.real(floor), floor, c_series)
     c_shunt = 0.5 * c_even
     return GapCapacitances(c_series, c_shunt, c_shunt)
 
@@ -204,6 +220,17 @@ def kirschning_jansen_koster_gap(
     )
     c_narrow = microstrip_open_end_capacitance(narrow, h, eps_r) * (q2 + q3) / (q2 + 1.0)
     c_wide = microstrip_open_end_capacitance(wide, h, eps_r) * (q2 + q4) / (q2 + 1.0)
+    if np.any(np.real(c_narrow) < 0.0) or np.any(np.real(c_wide) < 0.0):
+        # for unequal widths and small gaps (inside the stated range) the fit's narrow-side
+        # shunt capacitance goes negative; a shunt capacitance to ground cannot: hold it at 0
+        warnings.warn(
+            "Kirschning-Jansen-Koster gap: the fit's shunt capacitance is negative (unequal "
+            f"widths, s/h down to {float(np.min(np.real(sh))):.3g}); held at 0",
+            validity.ModelRangeWarning,
+            stacklevel=2,
+        )
+        c_narrow = np.where(np.real(c_narrow) < 0.0, 0.0 * c_narrow, c_narrow)
+        c_wide = np.where(np.real(c_wide) < 0.0, 0.0 * c_wide, c_wide)
     input_is_narrow = w1 <= w2
     c_in = np.where(input_is_narrow, c_narrow, c_wide)
     c_out = np.where(input_is_narrow, c_wide, c_narrow)
@@ -275,6 +302,19 @@ def stripline_gap(
     y0 = 1.0 / np.asarray(z0, float)
     v = C0 / np.sqrt(eps_r)
     x = np.pi * s / (2.0 * b)
-    c_series = y0 * b / (2.0 * np.pi * v) * np.log(1.0 / np.tanh(x))
-    c_shunt = -y0 * 2.0 * b / (2.0 * np.pi * v) * np.log(np.cosh(x))
+    # for wide gaps ln coth x and ln cosh x are taken in forms that keep their digits
+    # (coth x rounds to 1 beyond x ≈ 19 and cosh overflows beyond x ≈ 710)
+    # the direct forms keep about 1e-9 relative accuracy up to x = 8 (s/b ≈ 5)
+    wide = np.real(x) > 8.0
+    if not np.any(wide):
+        ln_coth, ln_cosh = np.log(1.0 / np.tanh(x)), np.log(np.cosh(x))
+    else:
+        xs = np.where(wide, 1.0, x)  # each form only sees where it is accurate
+        xw = np.where(wide, x, 9.0)
+        ln_coth = np.where(wide, np.log1p(2.0 / np.expm1(2.0 * xw)), np.log(1.0 / np.tanh(xs)))
+        ln_cosh = np.where(
+            wide, xw + np.log1p(np.exp(-2.0 * xw)) - math.log(2.0), np.log(np.cosh(xs))
+        )
+    c_series = y0 * b / (2.0 * np.pi * v) * ln_coth
+    c_shunt = -y0 * 2.0 * b / (2.0 * np.pi * v) * ln_cosh
     return GapCapacitances(c_series, c_shunt, c_shunt)
