@@ -26,7 +26,7 @@ from refine.optimise import seed as job
 from refine.optimise.minimax import Stopping, Strategy
 from refine.optimise.refiner import RefineResult, Status, refine_problem
 from refine.optimise.space import fab_violations
-from refine.outputs import export, plot
+from refine.outputs import export, plot, report
 from refine.outputs import files as outputs
 from refine.spec.coupling import Coupling
 from refine.spec.mask import MaskResult
@@ -34,6 +34,7 @@ from refine.spec.problem import ProblemError, load_problem
 from refine.synthesis import inverters as synthesis
 from refine.tolerance import centring
 from refine.tolerance import montecarlo as tolerance
+from refine.validity import InternalError
 from refine.version import VERSION
 
 
@@ -358,6 +359,9 @@ def _cmd_design(args: argparse.Namespace) -> int:
             f"snapped to the shop's {grid * 1e6:g} um grid: worst margin "
             f"{r.unsnapped_margin:+.2f} dB before, {r.snapped_margin:+.2f} dB after"
         )
+    loss = report.loss_note(r)
+    if loss is not None:
+        print(loss)
     print()
     print(refined_table(r))
     if r.status is not Status.MET:
@@ -785,9 +789,19 @@ def main(argv: Sequence[str] | None = None) -> int:
     args = ap.parse_args(argv)
     try:
         return int(args.run(args))
+    except InternalError as e:
+        print(f"refine: internal error: {e}", file=sys.stderr)
+        return 3
     except (ProblemError, UsageError, ValueError, OSError) as e:
         print(f"refine: error: {e}", file=sys.stderr)
         return 2
+    except KeyboardInterrupt:
+        print(
+            "refine: interrupted; every file already written is complete (each is written "
+            "whole or not at all), the rest were not written",
+            file=sys.stderr,
+        )
+        return 130
 
 
 if __name__ == "__main__":

@@ -68,3 +68,19 @@ def check(
     if v is not None:
         warnings.warn(str(v), ModelRangeWarning, stacklevel=stacklevel)
     return v
+
+
+class InternalError(RuntimeError):
+    """Something refine computed is not a number where a number must be: a defect of refine,
+    never a verdict. The command reports it (exit 3) instead of printing a NaN status."""
+
+
+def require_finite(what: str, values: ArrayLike) -> None:
+    """Raise :class:`InternalError` naming ``what`` if any of ``values`` is NaN or infinite."""
+    arr = np.asarray(values)
+    if not np.all(np.isfinite(arr)):
+        bad = int(np.size(arr) - np.count_nonzero(np.isfinite(arr)))
+        raise InternalError(
+            f"{what}: {bad} of {np.size(arr)} values are not finite numbers; this is a defect "
+            "of refine, not a verdict on the design (please report it with the problem file)"
+        )

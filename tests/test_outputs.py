@@ -306,3 +306,59 @@ def test_two_runs_into_one_folder_never_leave_a_mixed_set(tmp_path):
         report = (out / "report.md").read_text().splitlines()[0]
         assert report == f"# {summary['problem']}"
         assert summary["problem"] in (out / "response.s2p").read_text().splitlines()[0]
+
+
+def test_a_nan_anywhere_is_an_internal_error_never_a_status(tmp_path, capsys, monkeypatch):
+    from refine.spec.mask import Mask, MaskResult
+
+    original = Mask.evaluate
+
+    def poisoned(self, f, s11, s21):
+        res = original(self, f, s11, s21)
+        return MaskResult({k: float("nan") for k in res.worst}, res.where)
+
+    monkeypatch.setattr(Mask, "evaluate", poisoned)
+    out = tmp_path / "out"
+    assert main(["design", str(ALUMINA), "--out", str(out)]) == 3
+    captured = capsys.readouterr()
+    assert "internal error" in captured.err and "not finite numbers" in captured.err
+    assert "status:" not in captured.out and not out.exists()
+
+
+def test_an_air_substrate_designs_without_nan(tmp_path, capsys):
+    text = ALUMINA.read_text().replace("eps_r = 9.8", "eps_r = 1.0")
+    assert "eps_r = 1.0" in text
+    p = tmp_path / "air.toml"
+    p.write_text(text)
+    out = tmp_path / "out"
+    code = main(["design", str(p), "--out", str(out)])
+    assert code in (0, 1)
+    summary = json.loads((out / "summary.json").read_text())
+    assert all(np.isfinite(v) for v in summary["worst_margins_db"].values())
+    assert "nan" not in (out / "response.s2p").read_text().lower()
+
+
+def test_a_mask_without_an_insertion_loss_limit_gets_the_passband_loss_said(tmp_path):
+    """A mask that limits return loss but not insertion loss would pass a matched absorber:
+    the report states the design's passband loss, and warns above 3 dB."""
+    from dataclasses import replace
+
+    import refine
+    from refine.outputs import report
+
+    p = refine.load_problem(ROOT / "problems/ms-alumina-10g-n3-auto.toml")
+    assert p.mask.max_insertion_loss_db is None and p.mask.min_return_loss_db is not None
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        sd = refine.seed(p)
+        r = refine.design(p, seed=sd)
+        note = report.loss_note(r)
+        assert note is not None and "no insertion-loss limit" in note and "WARNING" not in note
+        refine.write_outputs(r, sd, tmp_path / "out")
+        assert note in json.loads((tmp_path / "out/summary.json").read_text())["warnings"]
+        # the same copper on a lossy board (loss tangent 0.05, poor metal): more than 3 dB
+        lossy = replace(
+            p, substrate=replace(p.strip_substrate, loss_tangent=0.05, conductivity=1e6)
+        )
+        loud = report.loss_note(replace(r, problem=lossy))
+    assert loud is not None and loud.startswith("WARNING") and "absorbing power" in loud

@@ -38,6 +38,7 @@ from refine.spec.mask import MaskResult
 from refine.spec.problem import Problem
 from refine.synthesis.diagnose import Diagnosis, diagnose
 from refine.synthesis.realise import Realisation
+from refine.validity import require_finite
 
 
 class Status(enum.Enum):
@@ -266,6 +267,11 @@ def refine_problem(
             "the refiner found nothing better than the closed-form seed; the seed is returned"
         )
         layout, res, z = seed_layout, seed_res, space.to_free(space.clip(p_seed))
+    require_finite(f"{problem.name}: refined margins", list(res.worst.values()))
+    require_finite(f"{problem.name}: closed-form seed margins", list(seed_res.worst.values()))
+    require_finite(
+        f"{problem.name}: refined layout", [*layout.gaps, *layout.lengths, *layout.widths]
+    )
     violations = fab_violations(fab, layout)
     if res.passed and not violations:
         status = Status.MET
@@ -436,6 +442,7 @@ def _refine_ideal(
             "the refiner found nothing better than the closed-form seed; the seed is returned"
         )
         p, res, z = p_seed, seed_res, space.to_free(p_seed)
+    require_finite(f"{problem.name}: refined margins", list(res.worst.values()))
     status = Status.MET if res.passed else Status.NOT_MET
     return RefineResult(
         problem,

@@ -28,6 +28,7 @@ from refine.spec.coupling import Coupling
 from refine.spec.problem import Problem
 from refine.synthesis import inverters
 from refine.synthesis.realise import range_report
+from refine.validity import require_finite
 
 OUTPUT_FILES = (
     "summary.json",
@@ -128,6 +129,8 @@ def _write_all(r: RefineResult, sd: job.Seed, out: Path, power_w: float) -> list
     p = r.problem
     f = sweep(p)
     s_ref, s_seed = responses(r, f)
+    require_finite(f"{p.name}: refined response", s_ref)
+    require_finite(f"{p.name}: closed-form seed response", s_seed)
     spread = spread_verdicts(p, r.layout) if r.layout is not None else {}
     notes: list[str] = []
     if r.layout is not None:
@@ -138,6 +141,9 @@ def _write_all(r: RefineResult, sd: job.Seed, out: Path, power_w: float) -> list
             notes = [
                 "tapped feed: the gap and line models were used; the T-junction is not modelled"
             ]
+    loss = report.loss_note(r)
+    if loss is not None:
+        notes = [loss, *notes]
     status = {
         "met": "meets the mask",
         "not met": "DOES NOT MEET THE MASK",

@@ -18,7 +18,12 @@ import numpy as np
 from refine import validity
 from refine.circuit import cascade
 from refine.circuit.layout import Layout
-from refine.circuit.response import layout_build, strip_medium_for
+from refine.circuit.response import (
+    evaluate_electrical,
+    evaluate_layout,
+    layout_build,
+    strip_medium_for,
+)
 from refine.optimise import seed as job
 from refine.optimise.refiner import RefineResult, Status
 from refine.outputs import export
@@ -27,6 +32,37 @@ from refine.physics.substrate import Substrate
 from refine.spec.coupling import Coupling
 
 BREAKDOWN_V_PER_M = 1.0e6  # conservative: 1 kV/mm
+
+
+ABSORBER_DB = 3.0  # passband insertion loss above which a design "meets" return loss by loss
+
+
+def loss_note(r: RefineResult) -> str | None:
+    """When the mask limits return loss but not insertion loss, the refined design's passband
+    insertion loss in words (a matched absorber would meet such a mask); None otherwise."""
+    p = r.problem
+    m = p.mask
+    if m.max_insertion_loss_db is not None or m.min_return_loss_db is None:
+        return None
+    f = np.linspace(m.passband_start, m.passband_stop, 201)
+    if r.layout is None:
+        caps, thetas = r.electrical
+        s = evaluate_electrical(caps, thetas, p.f0, p.z_ref, f)
+    else:
+        s = evaluate_layout(p, r.layout, f)
+    il = -20.0 * np.log10(np.maximum(np.abs(s[:, 1, 0]), 1e-300))
+    mid = float(np.interp(m.midband, f, il))
+    worst = float(np.max(il))
+    text = (
+        f"the mask sets no insertion-loss limit; the design's passband insertion loss is "
+        f"{mid:.2f} dB at midband and {worst:.2f} dB at worst"
+    )
+    if worst > ABSORBER_DB:
+        text = (
+            f"WARNING: {text}: more than {ABSORBER_DB:g} dB, so much of its return loss comes "
+            "from absorbing power; add mask.midband_insertion_loss_db if that matters"
+        )
+    return text
 
 
 def gap_voltages(r: RefineResult, power_w: float) -> list[float]:

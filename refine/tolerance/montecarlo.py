@@ -38,6 +38,7 @@ from refine.circuit.model import strip_model_for
 from refine.circuit.response import strip_medium_for
 from refine.physics.substrate import Substrate
 from refine.spec.problem import Problem
+from refine.validity import require_finite
 
 MAX_SAMPLES = 10**6
 CHUNK = (
@@ -292,6 +293,7 @@ def estimate_yield(
     f = yield_grid(problem)
     m = worst_margins(problem, s, f)
     nominal = worst_margins(problem, _as_samples(layout), f)[0]
+    require_finite(f"{problem.name}: Monte Carlo margins", m)
     k = int(np.sum(m >= 0.0))
     return YieldResult(
         samples,
