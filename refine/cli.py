@@ -195,7 +195,7 @@ def _cmd_synth(args: argparse.Namespace) -> int:
                 }
                 for g in real.gaps
             ]
-        print(json.dumps(export._clean(out), indent=2))
+        print(json.dumps(export.json_safe(out), indent=2))
         return 0
     print(
         f"{problem.name}: {d.family} N={d.order}"

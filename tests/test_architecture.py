@@ -111,10 +111,31 @@ def test_no_function_local_import_of_refine():
     assert not local, local
 
 
+def _private_attributes(path: Path) -> list[str]:
+    """``alias._name`` where ``alias`` is one of refine's modules imported into ``path``."""
+    tree = ast.parse(path.read_text())
+    aliases = {}
+    for node in ast.walk(tree):
+        if isinstance(node, ast.ImportFrom) and node.module and node.level == 0:
+            for a in node.names:
+                if f"{node.module}.{a.name}" in MODULES:
+                    aliases[a.asname or a.name] = f"{node.module}.{a.name}"
+    return [
+        f"{aliases[node.value.id]}.{node.attr}"
+        for node in ast.walk(tree)
+        if isinstance(node, ast.Attribute)
+        and isinstance(node.value, ast.Name)
+        and node.value.id in aliases
+        and node.attr.startswith("_")
+        and not node.attr.startswith("__")
+    ]
+
+
 def test_no_private_name_is_used_outside_its_module():
     used = []
-    for path in FILES:
+    for path in [*FILES, *sorted((ROOT / "tests").rglob("*.py"))]:
         for module, names, _ in _imports(path):
             used += [f"{_module(path)}: {module}.{n}" for n in names if n.startswith("_")]
+        used += [f"{_module(path)}: {name}" for name in _private_attributes(path)]
     used = [u for u in used if not u.endswith("._validate")]  # the shared checks, by design
     assert not used, used

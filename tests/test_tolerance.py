@@ -103,10 +103,10 @@ def test_sensitivity_matches_finite_difference_of_the_worst_margin():
         from dataclasses import replace
 
         up = tolerance.worst_margins(
-            ALUMINA, tolerance._as_samples(replace(LAY, gaps=tuple(gaps_up))), f
+            ALUMINA, tolerance.nominal_samples(replace(LAY, gaps=tuple(gaps_up))), f
         )[0]
         dn = tolerance.worst_margins(
-            ALUMINA, tolerance._as_samples(replace(LAY, gaps=tuple(gaps_dn))), f
+            ALUMINA, tolerance.nominal_samples(replace(LAY, gaps=tuple(gaps_dn))), f
         )[0]
     finally:
         w.__exit__(None, None, None)

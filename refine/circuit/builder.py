@@ -38,7 +38,6 @@ from numpy.typing import ArrayLike, NDArray
 from refine import _validate as v
 from refine._typing import Values
 from refine.circuit import cascade
-from refine.circuit.layout import Layout
 from refine.physics.ideal import IdealTEM
 from refine.physics.strip import (
     CENTRE_REFERENCED,
@@ -312,28 +311,6 @@ def _line_properties_shared(
         else:
             out.append(line_properties(medium, w, f, loss_factor))
     return out
-
-
-def layout_elements(
-    layout: Layout,
-    medium: StripMedium,
-    gap_model: str,
-    f: ArrayLike,
-    adjust: Adjustments | None = None,
-) -> list[cascade.Element]:
-    """Elements of a :class:`Layout`."""
-    return build(
-        layout.external,
-        medium,
-        gap_model,
-        layout.feed_width,
-        layout.widths,
-        layout.gaps,
-        layout.lengths,
-        layout.taps,
-        f,
-        adjust,
-    ).elements
 
 
 def ideal_elements(

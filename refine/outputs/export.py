@@ -14,6 +14,7 @@ import unicodedata
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 from xml.sax.saxutils import escape as xml_escape
 
 import numpy as np
@@ -262,12 +263,12 @@ def write_svg(path: str | Path, layout: Layout, title: str = "") -> Path:
     return write_text_atomic(path, svg_text(layout, title))
 
 
-def _clean(o):
+def json_safe(o: Any) -> Any:
     """JSON-safe copy: numpy scalars to Python, non-finite floats to None, tuples to lists."""
     if isinstance(o, dict):
-        return {str(k): _clean(v) for k, v in o.items()}
+        return {str(k): json_safe(v) for k, v in o.items()}
     if isinstance(o, (list, tuple)):
-        return [_clean(v) for v in o]
+        return [json_safe(v) for v in o]
     if isinstance(o, (np.floating, np.integer)):
         o = o.item()
     if isinstance(o, float) and not math.isfinite(o):
@@ -276,7 +277,7 @@ def _clean(o):
 
 
 def write_json(path: str | Path, data: dict) -> Path:
-    return write_text_atomic(path, json.dumps(_clean(data), indent=2, allow_nan=False) + "\n")
+    return write_text_atomic(path, json.dumps(json_safe(data), indent=2, allow_nan=False) + "\n")
 
 
 GENERATOR = f"refine {VERSION}"

@@ -149,7 +149,7 @@ def sample(layout: Layout, tol: Tolerances, n: int, seed: int, substrate=None) -
     )
 
 
-def _as_samples(layout: Layout) -> Samples:
+def nominal_samples(layout: Layout) -> Samples:
     """The nominal layout as a batch of one."""
     return Samples(
         np.array([layout.feed_width]),
@@ -263,7 +263,7 @@ def sensitivities(
         if sigma:  # not a layout dimension: a central difference of the nominal worst margin
             base = getattr(problem.substrate, name)
             h = 1e-4 * base
-            one = _as_samples(layout)
+            one = nominal_samples(layout)
             wm = []
             for x in (base + h, base - h):
                 er = np.array([x if name == "eps_r" else problem.strip_substrate.eps_r])
@@ -292,7 +292,7 @@ def estimate_yield(
     s = sample(layout, tol, samples, seed, problem.substrate)
     f = yield_grid(problem)
     m = worst_margins(problem, s, f)
-    nominal = worst_margins(problem, _as_samples(layout), f)[0]
+    nominal = worst_margins(problem, nominal_samples(layout), f)[0]
     require_finite(f"{problem.name}: Monte Carlo margins", m)
     k = int(np.sum(m >= 0.0))
     return YieldResult(
