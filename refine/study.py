@@ -13,6 +13,7 @@ Study file (TOML)::
     medium = [{kind = "microstrip", eps_r = 9.8, height = "0.635 mm"}, ...]   # a whole table
     [options]
     yield_samples = 0                                   # > 0 adds a Monte Carlo yield per design
+    max_evaluations = 300                               # the refiner's budget per design
 
 Execution: a local process pool (all cores) by default, or an existing Dask distributed cluster
 given its scheduler address. The design path is deterministic, so the rows are identical
@@ -42,6 +43,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+from refine.optimise.minimax import Stopping
 from refine.optimise.refiner import refine_problem
 from refine.outputs.export import write_atomic, write_json, write_text_atomic
 from refine.outputs.files import OutputError, locked_folder
@@ -51,7 +53,7 @@ from refine.validity import ModelRangeWarning
 
 MAX_DESIGNS = 500  # more combinations than this need --yes
 _TOP = {"name", "base", "axes", "options"}
-_OPTIONS = {"yield_samples"}
+_OPTIONS = {"yield_samples", "max_evaluations"}
 
 
 class StudyError(ValueError):
@@ -66,13 +68,15 @@ class Study:
     designs: list[dict]  # one problem dict per combination
     labels: list[dict]  # the axis values of each combination, for the table
     yield_samples: int
+    max_evaluations: int | None = None  # the refiner's budget per design; None: its default
 
     @property
     def fingerprint(self) -> str:
         """Identifies the combination list, so --resume refuses a changed study."""
-        text = json.dumps(
-            [self.labels, self.designs, self.yield_samples], sort_keys=True, default=str
-        )
+        parts: list[Any] = [self.labels, self.designs, self.yield_samples]
+        if self.max_evaluations is not None:
+            parts.append(self.max_evaluations)
+        text = json.dumps(parts, sort_keys=True, default=str)
         return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 
@@ -131,6 +135,11 @@ def load_study(path: str | Path, allow_many: bool = False) -> Study:
     ys = opts.get("yield_samples", 0)
     if isinstance(ys, bool) or not isinstance(ys, int) or not 0 <= ys <= 100_000:
         raise StudyError(f"{p}: options.yield_samples = {ys!r}: must be an integer in 0..100000")
+    me = opts.get("max_evaluations")
+    if me is not None and (
+        isinstance(me, bool) or not isinstance(me, int) or not 1 <= me <= 100_000
+    ):
+        raise StudyError(f"{p}: options.max_evaluations = {me!r}: must be an integer in 1..100000")
     keys = list(axes)
     n = math.prod(len(axes[k]) for k in keys)
     if n > MAX_DESIGNS and not allow_many:
@@ -159,17 +168,24 @@ def load_study(path: str | Path, allow_many: bool = False) -> Study:
             raise StudyError(f"{p}: the combination {label} is not a valid problem: {e}") from None
         designs.append(d)
         labels.append(label)
-    return Study(name.strip(), str(p), axes, designs, labels, ys)
+    return Study(name.strip(), str(p), axes, designs, labels, ys, me)
 
 
-def run_design(index: int, problem_dict: dict, source: str, yield_samples: int) -> dict:
+def run_design(
+    index: int,
+    problem_dict: dict,
+    source: str,
+    yield_samples: int,
+    max_evaluations: int | None = None,
+) -> dict:
     """One design through the full path; a plain function of plain data, so any executor can
     run it. Returns the table row (without the axis labels)."""
     t0 = time.perf_counter()
     problem = parse_problem(problem_dict, source)
+    stopping = None if max_evaluations is None else Stopping(max_evaluations=max_evaluations)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ModelRangeWarning)
-        r = refine_problem(problem)
+        r = refine_problem(problem, stopping=stopping)
         row = {
             "index": index,
             "status": r.status.value,
@@ -365,7 +381,10 @@ def _run_study(
         if progress is not None:
             progress(len(done), total, counts)
 
-    args = [(k, study.designs[k], f"{study.source}#{k}", study.yield_samples) for k in todo]
+    args = [
+        (k, study.designs[k], f"{study.source}#{k}", study.yield_samples, study.max_evaluations)
+        for k in todo
+    ]
     if client is not None:
         futures = [client.submit(run_design, *a, pure=False) for a in args]
         from distributed import as_completed as dask_completed

@@ -27,6 +27,8 @@ def _write(tmp_path, text, name="s.toml"):
 
 
 def _small(tmp_path):
+    # the refiner's budget per design is bounded: the N=3 8 % design cannot be met and would
+    # otherwise spend about 30 s proving it
     return _write(
         tmp_path,
         f'''name = "small"
@@ -34,6 +36,8 @@ base = "{IDEAL}"
 [axes]
 "response.fractional_bandwidth" = [0.04, 0.08]
 "response.order" = [3, 5]
+[options]
+max_evaluations = 60
 ''',
     )
 
@@ -80,6 +84,10 @@ def test_bundled_study_loads():
         (
             'name = "x"\nbase = "{b}"\n[axes]\n"response.order" = [3]\n[options]\nyield_samples = -1\n',
             "options.yield_samples = -1: must be an integer in 0..100000",
+        ),
+        (
+            'name = "x"\nbase = "{b}"\n[axes]\n"response.order" = [3]\n[options]\nmax_evaluations = 0\n',
+            "options.max_evaluations = 0: must be an integer in 1..100000",
         ),
         (
             'name = "x"\nbase = "{b}"\n[axes]\n"response.order.x" = [1]\n',
