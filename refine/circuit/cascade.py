@@ -100,9 +100,10 @@ def _cosh_sinh(x: ArrayLike) -> tuple[NDArray, Array]:
     x = np.asarray(x)
     a, b = x.real, x.imag
     cb, sb = np.cos(b), np.sin(b)
-    if not a.any():
+    largest = np.abs(a).max() if a.size else 0.0  # one pass: lossless test and overflow guard
+    if largest == 0.0:
         return cb, 1j * sb
-    if np.abs(a).max() > MAX_NEPERS:
+    if largest > MAX_NEPERS:
         a = np.clip(a, -MAX_NEPERS, MAX_NEPERS)
     ea = np.exp(a)
     eai = 1.0 / ea
