@@ -8,7 +8,9 @@ report list which dimensions are outside which model's range without raising any
 
 from __future__ import annotations
 
+import contextlib
 import warnings
+from collections.abc import Iterator
 from dataclasses import dataclass
 
 import numpy as np
@@ -54,6 +56,21 @@ def outside(
     return None
 
 
+_quiet = [0]  # depth of nested `unchecked` blocks
+
+
+@contextlib.contextmanager
+def unchecked() -> Iterator[None]:
+    """Skip range checks inside the block: the optimiser's inner loop, whose every point is
+    checked again on the verification grid, where the warnings and the report's range list come
+    from. Not thread-safe by design: refine evaluates in one thread per process."""
+    _quiet[0] += 1
+    try:
+        yield
+    finally:
+        _quiet[0] -= 1
+
+
 def check(
     model: str,
     quantity: str,
@@ -63,11 +80,21 @@ def check(
     *,
     stacklevel: int = 3,
 ) -> RangeViolation | None:
-    """Like :func:`outside`, and warn with :class:`ModelRangeWarning` when violated."""
+    """Like :func:`outside`, and warn with :class:`ModelRangeWarning` when violated (nothing is
+    checked inside an :func:`unchecked` block)."""
+    if _quiet[0]:
+        return None
     v = outside(model, quantity, values, lo, hi)
     if v is not None:
         warnings.warn(str(v), ModelRangeWarning, stacklevel=stacklevel)
     return v
+
+
+def warn(message: str, *, stacklevel: int = 3) -> None:
+    """Raise a :class:`ModelRangeWarning` with ``message`` (nothing inside :func:`unchecked`):
+    for a model that clamps or extrapolates a value rather than a range its inputs left."""
+    if not _quiet[0]:
+        warnings.warn(message, ModelRangeWarning, stacklevel=stacklevel)
 
 
 class InternalError(RuntimeError):

@@ -29,7 +29,6 @@ which dimension moves which element, for the exact gradient of :mod:`refine.circ
 from __future__ import annotations
 
 import enum
-from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -189,7 +188,19 @@ def build(
         return x[..., j, None] if batched else x[j]
 
     w = [pick(widths_a, j) for j in range(n)]
-    props = _line_properties_shared(medium, w, f, kl)
+    props = _line_properties_all(medium, widths_a, f, kl)
+    # every gap's π-network from one call of the gap model (the sides' widths stacked)
+    feed_a = np.asarray(v.positive_array("feed_width", feed) if validate else feed, float)
+    if coupling is Coupling.GAP:
+        feed_col = np.broadcast_to(feed_a[..., None], (*widths_a.shape[:-1], 1))
+        sides_w_a = np.concatenate([feed_col, widths_a, feed_col], axis=-1)
+    else:
+        sides_w_a = widths_a
+    caps = gap_capacitances(medium, gap_model, sides_w_a[..., :-1], sides_w_a[..., 1:], s_model)
+    c_series_all = np.asarray(caps.c_series)
+    if adj.c_series_factors is not None:
+        c_series_all = c_series_all * np.asarray(adj.c_series_factors, float)
+    c_in_all, c_out_all = np.asarray(caps.c_shunt_in), np.asarray(caps.c_shunt_out)
     els: list[cascade.Element] = []
     emap = ElementMap() if track else None
 
@@ -206,12 +217,12 @@ def build(
         s = pick(s_model, pos)
         ds = 1.0 if ds_model is None else pick(ds_model, pos)
         factor = 1.0 if adj.c_series_factors is None else adj.c_series_factors[pos]
-        line_in = props[sides[0]] if sides[0] is not None else None
-        line_out = props[sides[1]] if sides[1] is not None else None
-        parts = gap_elements(medium, gap_model, w_in, w_out, s, f, line_in, line_out, kl, factor)
-        if len(parts) == 3:  # half-gap lines on each side of the π-network
-            add(parts[0], [(Dim.GAP, pos, 0.5 * ds)], sides[0])
-        add(parts[len(parts) // 2], [], None)
+        pi = cascade.PiNetwork(pick(c_series_all, pos), pick(c_in_all, pos), pick(c_out_all, pos))
+        centred = gap_model in CENTRE_REFERENCED  # half-gap lines on each side of the π-network
+        if centred:
+            g_in, z_in = props[sides[0]] if sides[0] is not None else feed_props()
+            add(cascade.Line(g_in, z_in, 0.5 * s), [(Dim.GAP, pos, 0.5 * ds)], sides[0])
+        add(pi, [], None)
         if emap is not None:
             emap.gaps.append(
                 GapSlot(
@@ -225,8 +236,17 @@ def build(
                     factor,
                 )
             )
-        if len(parts) == 3:
-            add(parts[2], [(Dim.GAP, pos, 0.5 * ds)], sides[1])
+        if centred:
+            g_out, z_out = props[sides[1]] if sides[1] is not None else feed_props()
+            add(cascade.Line(g_out, z_out, 0.5 * s), [(Dim.GAP, pos, 0.5 * ds)], sides[1])
+
+    feed_cache: list[tuple[NDArray, NDArray]] = []
+
+    def feed_props() -> tuple[NDArray, NDArray]:
+        if not feed_cache:
+            fw = feed_a[..., None] if batched else float(feed_a)
+            feed_cache.append(line_properties(medium, fw, f, kl))
+        return feed_cache[0]
 
     def add_line(j: int, length: Values, moves: list[tuple[Dim, int, Values]]) -> None:
         add(cascade.Line(props[j][0], props[j][1], length), moves, j)
@@ -238,7 +258,6 @@ def build(
             emap.open_ends.append((len(els) - 1, j))
 
     if coupling is Coupling.GAP:
-        feed_a = np.asarray(v.positive_array("feed_width", feed) if validate else feed, float)
         feed_w = feed_a[..., None] if batched else float(feed_a)
         sides_w = [feed_w, *w, feed_w]
         for k in range(n + 1):
@@ -295,22 +314,19 @@ def gap_elements(
     return [cascade.Line(g_in, z_in, half), pi, cascade.Line(g_out, z_out, half)]
 
 
-def _line_properties_shared(
-    medium: StripMedium, widths: Sequence[Values], f: NDArray, loss_factor: float
+def _line_properties_all(
+    medium: StripMedium, widths: NDArray, f: NDArray, loss_factor: float
 ) -> list[tuple[NDArray, NDArray]]:
-    """Line properties per resonator, computed once per distinct width (the common case is one
-    width for every resonator of an unbatched layout)."""
-    out: list[tuple[NDArray, NDArray]] = []
-    cache: dict[float, tuple[NDArray, NDArray]] = {}
-    for w in widths:
-        if np.size(w) == 1:
-            key = float(np.asarray(w).ravel()[0])
-            if key not in cache:
-                cache[key] = line_properties(medium, key, f, loss_factor)
-            out.append(cache[key])
-        else:
-            out.append(line_properties(medium, w, f, loss_factor))
-    return out
+    """Line properties of every resonator, ``(..., nf)`` each: for one design from one call of
+    the medium's model (for one width when the resonators share it, the common case)."""
+    n = widths.shape[-1]
+    if widths.ndim > 1:  # a batch (whose substrate may be a batch too): one call per resonator
+        return [line_properties(medium, widths[..., j, None], f, loss_factor) for j in range(n)]
+    if np.all(widths == widths[0]):
+        one = line_properties(medium, float(widths[0]), f, loss_factor)
+        return [one] * n
+    gamma, z_c = line_properties(medium, widths[:, None], f, loss_factor)
+    return [(gamma[j], z_c[j]) for j in range(n)]
 
 
 def ideal_elements(

@@ -21,7 +21,6 @@ builder's :class:`~refine.circuit.builder.ElementMap` says which dimension moves
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -44,7 +43,7 @@ from refine.physics.strip import (
     check_gap_model,
     gap_capacitances,
     medium_kind,
-    open_end_extension,
+    open_end_extensions,
 )
 from refine.spec.coupling import Coupling
 
@@ -165,19 +164,18 @@ class StripFilterModel:
         """The cascade elements of the design ``p`` (range warnings are the caller's)."""
         return self._build(p, False)[0]
 
-    def _gap_pi(self, w_in: float, w_out: float, s: complex) -> tuple[complex, complex, complex]:
+    def _gap_pis(self, w_in: NDArray, w_out: NDArray, s: NDArray) -> tuple[NDArray, ...]:
+        """(C_series, C_shunt_in, C_shunt_out) of many gaps from one gap-model call."""
         c = gap_capacitances(self.medium, self.gap_model, w_in, w_out, s)
-        return (
-            complex(np.asarray(c.c_series).ravel()[0]),
-            complex(np.asarray(c.c_shunt_in).ravel()[0]),
-            complex(np.asarray(c.c_shunt_out).ravel()[0]),
+        shape = np.broadcast_shapes(np.shape(w_in), np.shape(w_out), np.shape(s))
+        return tuple(
+            np.broadcast_to(np.asarray(x), shape) for x in (c.c_series, c.c_shunt_in, c.c_shunt_out)
         )
 
     def response(self, p: NDArray, gradient: bool = False) -> Response:
         """S11, S21 at the model's frequencies; with ``gradient`` also d/dp of both."""
         p = np.asarray(p, float)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", validity.ModelRangeWarning)  # reported separately
+        with validity.unchecked():  # the verification grid checks ranges and reports them
             els, emap = self._build(p, gradient)
             if not gradient:
                 t = cascade.s11_s21(els, self.f, self.z_ref)
@@ -197,15 +195,23 @@ class StripFilterModel:
                     ds11[idx] += fac * g.ds11[e]["length"]
                     ds21[idx] += fac * g.ds21[e]["length"]
             names = ("c_series", "c_shunt_in", "c_shunt_out")
-            for slot in emap.gaps:
-                idx = pos[(Dim.GAP, slot.position)]
-                s = slot.s_model
-                h = _CSTEP * s
-                dc = [x.imag / h for x in self._gap_pi(slot.w_in, slot.w_out, s + 1j * h)]
-                dc[0] *= slot.c_series_factor
-                for name, d in zip(names, dc, strict=True):
-                    ds11[idx] += slot.ds_model * d * g.ds11[slot.element][name]
-                    ds21[idx] += slot.ds_model * d * g.ds21[slot.element][name]
+            if emap.gaps:  # every gap's complex-step derivative from one gap-model call
+                slots = emap.gaps
+                s_m = np.array([sl.s_model for sl in slots])
+                h = _CSTEP * s_m
+                dcaps = self._gap_pis(
+                    np.array([sl.w_in for sl in slots]),
+                    np.array([sl.w_out for sl in slots]),
+                    s_m + 1j * h,
+                )
+                for k, slot in enumerate(slots):
+                    idx = pos[(Dim.GAP, slot.position)]
+                    for q, name in enumerate(names):
+                        d = dcaps[q][k].imag / h[k] * slot.ds_model
+                        if q == 0:
+                            d *= slot.c_series_factor
+                        ds11[idx] += d * g.ds11[slot.element][name]
+                        ds21[idx] += d * g.ds21[slot.element][name]
             if self.free_widths:
                 _, _, _, widths = self.split(p)
                 self._width_gradient(widths, emap, g, ds11, ds21)
@@ -221,39 +227,47 @@ class StripFilterModel:
     ) -> None:
         med, f = self.medium, self.f
         kl = 1.0 if self.adjust is None else self.adjust.loss_factor
+        n = self.order
         names = ("c_series", "c_shunt_in", "c_shunt_out")
-        for j in range(self.order):
-            i_w = self._position[(Dim.WIDTH, j)]
-            w = float(widths[j])
-            h = _FD * w
-            gp, zp = line_properties(med, w + h, f, kl)
-            gm, zm = line_properties(med, w - h, f, kl)
-            dgam, dz = (gp - gm) / (2 * h), (zp - zm) / (2 * h)
-            for e, jj in emap.lines:
-                if jj == j:
-                    ds11[i_w] += g.ds11[e]["gamma"] * dgam + g.ds11[e]["z_c"] * dz
-                    ds21[i_w] += g.ds21[e]["gamma"] * dgam + g.ds21[e]["z_c"] * dz
-            for slot in emap.gaps:
-                for side, res in enumerate(slot.resonators):
-                    if res != j:
-                        continue
-                    args_p = [slot.w_in, slot.w_out]
-                    args_m = [slot.w_in, slot.w_out]
-                    args_p[side] = w + h
-                    args_m[side] = w - h
-                    cp_ = self._gap_pi(args_p[0], args_p[1], slot.s_model)
-                    cm_ = self._gap_pi(args_m[0], args_m[1], slot.s_model)
-                    for k, (name, a, b) in enumerate(zip(names, cp_, cm_, strict=True)):
-                        d = (a.real - b.real) / (2 * h)
-                        if k == 0:
-                            d *= slot.c_series_factor
-                        ds11[i_w] += d * g.ds11[slot.element][name]
-                        ds21[i_w] += d * g.ds21[slot.element][name]
-            for e, jj in emap.open_ends:
-                if jj == j:  # a tapped stub's open-end extension follows its resonator's width
-                    dl = (open_end_extension(med, w + h) - open_end_extension(med, w - h)) / (2 * h)
-                    ds11[i_w] += dl * g.ds11[e]["length"]
-                    ds21[i_w] += dl * g.ds21[e]["length"]
+        w = np.asarray(widths, float)
+        h = _FD * w
+        # γ, z_c at every width ± its step: one call of the line model, (2n, nf)
+        gam, zc = line_properties(med, np.concatenate([w + h, w - h])[:, None], f, kl)
+        dgam = (gam[:n] - gam[n:]) / (2 * h[:, None])
+        dz = (zc[:n] - zc[n:]) / (2 * h[:, None])
+        col = [self._position[(Dim.WIDTH, j)] for j in range(n)]
+        for e, j in emap.lines:
+            ds11[col[j]] += g.ds11[e]["gamma"] * dgam[j] + g.ds11[e]["z_c"] * dz[j]
+            ds21[col[j]] += g.ds21[e]["gamma"] * dgam[j] + g.ds21[e]["z_c"] * dz[j]
+        # every gap side that is a resonator, both steps: one call of the gap model
+        moves = [
+            (slot, side, res)
+            for slot in emap.gaps
+            for side, res in enumerate(slot.resonators)
+            if res is not None
+        ]
+        if moves:
+            w_in = np.array([m[0].w_in for m in moves] * 2)
+            w_out = np.array([m[0].w_out for m in moves] * 2)
+            s_m = np.array([m[0].s_model for m in moves] * 2)
+            k = len(moves)
+            for i, (_, side, res) in enumerate(moves):
+                target = w_in if side == 0 else w_out
+                target[i] = w[res] + h[res]
+                target[k + i] = w[res] - h[res]
+            caps = self._gap_pis(w_in, w_out, s_m)
+            for i, (slot, _, res) in enumerate(moves):
+                for q, name in enumerate(names):
+                    d = (caps[q][i].real - caps[q][k + i].real) / (2 * h[res])
+                    if q == 0:
+                        d *= slot.c_series_factor
+                    ds11[col[res]] += d * g.ds11[slot.element][name]
+                    ds21[col[res]] += d * g.ds21[slot.element][name]
+        if emap.open_ends:  # a tapped stub's open-end extension follows its resonator's width
+            dl = (open_end_extensions(med, w + h) - open_end_extensions(med, w - h)) / (2 * h)
+            for e, j in emap.open_ends:
+                ds11[col[j]] += dl[j] * g.ds11[e]["length"]
+                ds21[col[j]] += dl[j] * g.ds21[e]["length"]
 
 
 @dataclass

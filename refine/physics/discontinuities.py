@@ -34,7 +34,6 @@ Stripline gap and open end
 from __future__ import annotations
 
 import math
-import warnings
 from typing import NamedTuple
 
 import numpy as np
@@ -128,12 +127,10 @@ def garg_bahl_gap(w: ArrayLike, s: ArrayLike, h: ArrayLike, eps_r: ArrayLike) ->
     if np.any(np.real(c_series) < np.real(floor)):
         # outside the fitted W/h (wide strips) the even-mode term overtakes the odd one and
         # the fit's series capacitance falls through zero: hold it at a small positive floor
-        warnings.warn(
+        validity.warn(
             "Garg-Bahl gap: the fit's series capacitance falls below "
             f"{GB_SERIES_FLOOR:g} of C_odd/2 (non-physical) at W/h up to "
-            f"{float(np.max(np.real(w) / h)):.3g}; held at that floor",
-            validity.ModelRangeWarning,
-            stacklevel=2,
+            f"{float(np.max(np.real(w) / h)):.3g}; held at that floor"
         )
         c_series = np.where(np.real(c_series) < np.real(floor), floor, c_series)
     c_shunt = 0.5 * c_even
@@ -223,11 +220,9 @@ def kirschning_jansen_koster_gap(
     if np.any(np.real(c_narrow) < 0.0) or np.any(np.real(c_wide) < 0.0):
         # for unequal widths and small gaps (inside the stated range) the fit's narrow-side
         # shunt capacitance goes negative; a shunt capacitance to ground cannot: hold it at 0
-        warnings.warn(
+        validity.warn(
             "Kirschning-Jansen-Koster gap: the fit's shunt capacitance is negative (unequal "
-            f"widths, s/h down to {float(np.min(np.real(sh))):.3g}); held at 0",
-            validity.ModelRangeWarning,
-            stacklevel=2,
+            f"widths, s/h down to {float(np.min(np.real(sh))):.3g}); held at 0"
         )
         c_narrow = np.where(np.real(c_narrow) < 0.0, 0.0 * c_narrow, c_narrow)
         c_wide = np.where(np.real(c_wide) < 0.0, 0.0 * c_wide, c_wide)

@@ -1,9 +1,10 @@
 """Record the golden outputs of every bundled problem (status, margins, evaluations, layout).
 
 Run from the project folder: ``python tests/golden/record.py``. The file it writes,
-``tests/data/golden-outputs.json``, is what ``tests/test_golden.py`` compares against: it was
-recorded before the one-circuit-layer restructuring and must not change unless a change of
-behaviour is intended and said in the commit.
+``tests/data/golden-outputs.json``, is what ``tests/test_golden.py`` compares against. It was
+recorded before the one-circuit-layer restructuring and is re-recorded only for an intended change
+of behaviour, said in the commit and in CHANGELOG.md (the last: the optimiser's faster polish
+and the batched physics calls, which move optimiser paths by round-off; every status unchanged).
 """
 
 from __future__ import annotations
