@@ -47,11 +47,11 @@ from refine.optimise.minimax import Stopping
 from refine.optimise.refiner import refine_problem
 from refine.outputs.export import write_atomic, write_json, write_text_atomic
 from refine.outputs.files import OutputError, locked_folder
+from refine.spec.limits import MAX_DESIGNS
 from refine.spec.problem import ProblemError, parse_problem
 from refine.tolerance import montecarlo as tolerance
 from refine.validity import ModelRangeWarning
 
-MAX_DESIGNS = 500  # more combinations than this need --yes
 _TOP = {"name", "base", "axes", "options"}
 _OPTIONS = {"yield_samples", "max_evaluations"}
 

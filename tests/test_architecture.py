@@ -22,6 +22,7 @@ LAYERS = [
     ("refine.outputs",),
     ("refine.study",),
     ("refine.fullwave",),
+    ("refine.commands",),
     ("refine.cli", "refine"),
 ]
 
@@ -106,8 +107,17 @@ def test_no_import_circle():
             visit(m, [])
 
 
+# the one exception: the command line loads a verb's modules when the verb runs (start-up time)
+LAZY = {("refine.cli", "refine")}
+
+
 def test_no_function_local_import_of_refine():
-    local = [f"{_module(p)}: {m}" for p in FILES for m, _, inside in _imports(p) if inside]
+    local = [
+        f"{_module(p)}: {m}"
+        for p in FILES
+        for m, _, inside in _imports(p)
+        if inside and (_module(p), m) not in LAZY
+    ]
     assert not local, local
 
 

@@ -285,3 +285,15 @@ def test_outside_range_warns_but_stays_finite():
     sl = Stripline(Substrate(2.2, 1.6e-3))
     with pytest.warns(ModelRangeWarning, match="Cohn stripline: W/b"):
         assert np.isfinite(sl.z0(30e-3))
+
+
+def test_constants_are_scipys():
+    """refine holds its own copy of three constants (start-up time); they are scipy's."""
+    import scipy.constants as sc
+
+    from refine.physics import constants
+
+    assert constants.C0 == sc.c
+    assert constants.MU0 == sc.mu_0
+    assert constants.EPS0 == sc.epsilon_0
+    assert constants.ETA0 == pytest.approx(376.730313412, rel=1e-10)  # CODATA 2022, Z0

@@ -305,17 +305,6 @@ def _times_column(kind: Kind, e: Any, col: tuple) -> tuple:
     return ea * r1 + eb * r2, ec * r1 + ed * r2
 
 
-def _bilinear(row: tuple, kind: Kind, de: Any, col: tuple) -> Array:
-    l1, l2 = row
-    r1, r2 = col
-    if kind is Kind.SERIES:
-        return l1 * de * r2
-    if kind is Kind.SHUNT:
-        return l2 * de * r1
-    da, db, dc, dd = de
-    return l1 * (da * r1 + db * r2) + l2 * (dc * r1 + dd * r2)
-
-
 def _omega(f: ArrayLike) -> NDArray[np.float64]:
     return 2.0 * np.pi * v.frequencies("f", f)
 
@@ -339,8 +328,8 @@ def chain_abcd(elements: Sequence[Element], f: ArrayLike) -> Abcd:
     _check_elements(elements)
     omega = _omega(f)
     m: tuple = (1.0, 0.0, 0.0, 1.0)
-    for e in elements:
-        m = _matrix_times(m, e.kind, e.value(omega))
+    for e, val in zip(elements, _values(elements, omega).vals, strict=True):
+        m = _matrix_times(m, e.kind, val)
     shape = np.broadcast_shapes(*(np.shape(x) for x in m), omega.shape)
     return Abcd(*(np.broadcast_to(np.asarray(x, dtype=complex), shape) for x in m))
 
@@ -392,12 +381,16 @@ def s11_s21(elements: Sequence[Element], f: ArrayLike, z_ref: float) -> Transmis
 
 class Gradient(NamedTuple):
     """S11, S21 ``(..., nf)`` and their derivatives: ``ds11[i][name]``, ``ds21[i][name]`` are
-    the derivatives with respect to parameter ``name`` of ``elements[i]``, each ``(..., nf)``."""
+    the derivatives with respect to parameter ``name`` of ``elements[i]``, each ``(..., nf)``;
+    ``stacked11[rows[(i, name)]]`` is the same array (for vectorised assembly)."""
 
     s11: Array
     s21: Array
     ds11: list[dict[str, Array]]
     ds21: list[dict[str, Array]]
+    stacked11: Array  # the same derivatives stacked, (P, ..., nf) ...
+    stacked21: Array
+    rows: dict[tuple[int, str], int]  # ... with row rows[(element, name)]
 
 
 def s11_s21_gradient(
@@ -413,44 +406,194 @@ def s11_s21_gradient(
     _check_elements(elements)
     z = v.positive("z_ref", z_ref)
     omega = _omega(f)
-    vals = [e.value(omega) for e in elements]
+    ev = _values(elements, omega)
+    vals = ev.vals
     k = len(elements)
 
-    rows_p: list[tuple] = []
-    rows_m: list[tuple] = []
-    lp: tuple = (1.0, z)
-    lm: tuple = (1.0, -z)
+    # forward pass: the prefix rows for Δ and N together, as one 2-vector of (2, ..., nf) arrays
+    lead = np.array([1.0, 1.0]).reshape(2, *([1] * (omega.ndim)))
+    row: tuple = (lead, np.array([z, -z]).reshape(lead.shape))
+    row_at: list[tuple] = []
     for e, val in zip(elements, vals, strict=True):
-        rows_p.append(lp)
-        rows_m.append(lm)
-        lp = _row_times(lp, e.kind, val)
-        lm = _row_times(lm, e.kind, val)
-    den = lp[0] + lp[1] / z
-    num = lm[0] + lm[1] / z
-
+        row_at.append(row)
+        row = _row_times(row, e.kind, val)
+    den_num = row[0] + row[1] / z
     cols: list[tuple] = [()] * k
     col: tuple = (1.0, 1.0 / z)
     for i in range(k - 1, -1, -1):
         cols[i] = col
         col = _times_column(elements[i].kind, vals[i], col)
 
-    shape = np.broadcast_shapes(np.shape(den), np.shape(num), omega.shape)
-    den = np.broadcast_to(np.asarray(den, dtype=complex), shape)
+    shape = np.broadcast_shapes(np.shape(den_num)[1:], omega.shape)
+    den = np.broadcast_to(np.asarray(den_num[0], dtype=complex), shape)
     s21 = np.asarray(2.0 / den, complex)
-    s11 = np.broadcast_to(np.asarray(num, dtype=complex), shape) / den
-    ds11: list[dict[str, Array]] = []
-    ds21: list[dict[str, Array]] = []
+    s11 = np.broadcast_to(np.asarray(den_num[1], dtype=complex), shape) / den
+    # prefix rows and suffix columns of every element, stacked: rows (2 [Δ, N], 2, k, ...)
+    rows = np.empty((2, 2, k, *shape), complex)
+    colv = np.empty((2, k, *shape), complex)
+    for i in range(k):
+        rows[:, 0, i], rows[:, 1, i] = row_at[i]
+        colv[0, i], colv[1, i] = cols[i]
+    index: dict[tuple[int, str], int] = {}
+    parts11: list[NDArray] = []
+    parts21: list[NDArray] = []
+    for at, name, (da, db, dc, dd) in _derivative_groups(elements, omega, wrt, ev):
+        # ∂Δ = l1 (dA r1 + dB r2) + l2 (dC r1 + dD r2); the column part is shared by Δ and N
+        sel = _selector(at)
+        r1, r2 = colv[0, sel], colv[1, sel]
+        u = _sum_of(da, r1, db, r2)
+        w = _sum_of(dc, r1, dd, r2)
+        d = _sum_of(u, rows[:, 0, sel], w, rows[:, 1, sel])  # (2, n, ...): ∂Δ, ∂N
+        parts21.append(-s21 * d[0] / den)
+        parts11.append((d[1] - s11 * d[0]) / den)
+        for i in at:
+            index[(int(i), name)] = len(index)
+    d11 = np.concatenate(parts11) if parts11 else np.zeros((0, *shape), complex)
+    d21 = np.concatenate(parts21) if parts21 else np.zeros((0, *shape), complex)
+    ds11: list[dict[str, Array]] = [{} for _ in elements]
+    ds21: list[dict[str, Array]] = [{} for _ in elements]
+    for (i, name), r in index.items():
+        ds11[i][name] = d11[r]
+        ds21[i][name] = d21[r]
+    return Gradient(s11, s21, ds11, ds21, d11, d21, index)
+
+
+_Entries = tuple[Any, Any, Any, Any]  # the four ABCD entries of a derivative; None is zero
+
+
+def _selector(at: NDArray[np.intp]) -> slice | NDArray[np.intp]:
+    """``at`` as a slice when it is evenly spaced (a view instead of a copy: lines and
+    π-networks alternate in a gap-coupled chain)."""
+    if at.size == 1:
+        return slice(int(at[0]), int(at[0]) + 1)
+    step = int(at[1] - at[0])
+    if step > 0 and np.all(np.diff(at) == step):
+        return slice(int(at[0]), int(at[-1]) + 1, step)
+    return at
+
+
+def _sum_of(a: Any, x: NDArray, b: Any, y: NDArray) -> Any:
+    """a·x + b·y where None stands for a zero coefficient (both None: 0)."""
+    if a is None:
+        return 0.0 if b is None else b * y
+    return a * x if b is None else a * x + b * y
+
+
+@dataclass
+class _Values:
+    """Every element's value at ``omega``, lines and π-networks computed together (one
+    vectorised pass per kind instead of one per element), with the stacked intermediates their
+    derivatives reuse."""
+
+    vals: list[Any]
+    shape: tuple[int, ...]
+    lines: list[int]
+    pis: list[int]
+    line_parts: tuple[NDArray, ...] = ()  # ch, sh, z_c, gamma, length: (n_lines, *shape)
+    pi_parts: tuple[NDArray, ...] = ()  # c_series, z, y1, y2: (n_pis, ...)
+
+
+def _values(elements: Sequence[Element], omega: NDArray[np.float64]) -> _Values:
+    lines = [i for i, e in enumerate(elements) if type(e) is Line]
+    pis = [i for i, e in enumerate(elements) if type(e) is PiNetwork]
+    vals: list[Any] = [None] * len(elements)
+    shapes = [omega.shape]
+    for i in lines:
+        e = elements[i]
+        assert isinstance(e, Line)
+        shapes += [np.shape(e.gamma), np.shape(e.z_c), np.shape(e.length)]
+    for i in pis:
+        e = elements[i]
+        assert isinstance(e, PiNetwork)
+        shapes += [np.shape(e.c_series), np.shape(e.c_shunt_in), np.shape(e.c_shunt_out)]
+    shape = np.broadcast_shapes(*shapes)
+    out = _Values(vals, shape, lines, pis)
+
+    def stack(idx: list[int], name: str) -> NDArray:
+        arr = np.empty((len(idx), *shape), complex)
+        for j, i in enumerate(idx):
+            arr[j] = getattr(elements[i], name)
+        return arr
+
+    if lines:
+        gamma, length, zc = stack(lines, "gamma"), stack(lines, "length"), stack(lines, "z_c")
+        ch, sh = _cosh_sinh(gamma * length)
+        b, c = zc * sh, sh / zc
+        for j, i in enumerate(lines):
+            vals[i] = Abcd(ch[j], b[j], c[j], ch[j])
+        out.line_parts = (ch, sh, zc, gamma, length)
+    if pis:
+
+        def column(name: str) -> NDArray:  # per-design values: (n,) or (n, ..., 1)
+            col = np.asarray([np.asarray(getattr(elements[i], name)) for i in pis])
+            return col[:, None] if col.ndim == 1 else col
+
+        cs = column("c_series")
+        z = -1j / (omega * cs)
+        y1 = 1j * omega * column("c_shunt_in")
+        y2 = 1j * omega * column("c_shunt_out")
+        a_, c_, d_ = 1.0 + z * y2, y1 + y2 + y1 * y2 * z, 1.0 + z * y1
+        for j, i in enumerate(pis):
+            vals[i] = Abcd(a_[j], z[j], c_[j], d_[j])
+        out.pi_parts = (cs, z, y1, y2)
     for i, e in enumerate(elements):
-        d11: dict[str, Array] = {}
-        d21: dict[str, Array] = {}
-        for name, de in e.derivatives(omega, wrt).items():
-            dden = _bilinear(rows_p[i], e.kind, de, cols[i])
-            dnum = _bilinear(rows_m[i], e.kind, de, cols[i])
-            d21[name] = np.broadcast_to(-s21 * dden / den, shape)
-            d11[name] = np.broadcast_to((dnum - s11 * dden) / den, shape)
-        ds11.append(d11)
-        ds21.append(d21)
-    return Gradient(s11, s21, ds11, ds21)
+        if vals[i] is None:
+            vals[i] = e.value(omega)
+    return out
+
+
+def _derivative_groups(
+    elements: Sequence[Element],
+    omega: NDArray[np.float64],
+    wrt: Collection[str] | None,
+    ev: _Values,
+) -> list[tuple[NDArray[np.intp], str, _Entries]]:
+    """Every element parameter's derivative as ABCD entries stacked over elements, ``(n,
+    *shape)``: all lines' (and all π-networks') derivatives in one vectorised pass per
+    parameter, any other element on its own."""
+    out: list[tuple[NDArray[np.intp], str, _Entries]] = []
+    shape = ev.shape
+
+    def want(name: str) -> bool:
+        return wrt is None or name in wrt
+
+    if ev.lines:
+        at = np.array(ev.lines)
+        ch, sh, zc, g, ln = ev.line_parts
+        if want("length"):
+            gsh = g * sh
+            out.append((at, "length", (gsh, g * zc * ch, g * ch / zc, gsh)))
+        if want("gamma"):
+            lsh = ln * sh
+            out.append((at, "gamma", (lsh, ln * zc * ch, ln * ch / zc, lsh)))
+        if want("z_c"):
+            out.append((at, "z_c", (None, sh, -sh / (zc * zc), None)))
+    if ev.pis:
+        at = np.array(ev.pis)
+        cs, z, y1, y2 = ev.pi_parts
+        jw = 1j * omega
+        if want("c_series"):
+            dz = -z / cs
+            out.append((at, "c_series", (y2 * dz, dz, y1 * y2 * dz, y1 * dz)))
+        if want("c_shunt_in"):
+            out.append((at, "c_shunt_in", (None, None, jw * (1.0 + y2 * z), jw * z)))
+        if want("c_shunt_out"):
+            out.append((at, "c_shunt_out", (jw * z, None, jw * (1.0 + y1 * z), None)))
+    grouped = set(ev.lines) | set(ev.pis)
+    for i, e in enumerate(elements):
+        if i in grouped:
+            continue
+        for name, de_ in e.derivatives(omega, wrt).items():
+            de: Any = de_
+            if e.kind is Kind.SERIES:
+                entries: _Entries = (None, np.broadcast_to(de, shape)[None], None, None)
+            elif e.kind is Kind.SHUNT:
+                entries = (None, None, np.broadcast_to(de, shape)[None], None)
+            else:
+                da, db, dc, dd = (np.broadcast_to(np.asarray(x, complex), shape)[None] for x in de)
+                entries = (da, db, dc, dd)
+            out.append((np.array([i]), name, entries))
+    return out
 
 
 def element_matrices(element: Element, f: ArrayLike) -> NDArray[np.complex128]:

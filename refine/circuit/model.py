@@ -25,9 +25,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.constants import c as C0
 
 from refine import validity
+from refine._typing import Values
 from refine.circuit import cascade
 from refine.circuit.builder import (
     Adjustments,
@@ -38,6 +38,7 @@ from refine.circuit.builder import (
     line_properties,
 )
 from refine.circuit.layout import Layout
+from refine.physics.constants import C0
 from refine.physics.strip import (
     StripMedium,
     check_gap_model,
@@ -185,16 +186,11 @@ class StripFilterModel:
             if self.free_widths:
                 wrt |= {"gamma", "z_c"}
             g = cascade.s11_s21_gradient(els, self.f, self.z_ref, wrt)
-            n_p = len(self.dims)
-            ds11 = np.zeros((n_p, self.f.size), complex)
-            ds21 = np.zeros((n_p, self.f.size), complex)
+            acc = _Chain(g.rows)
             pos = self._position
             for e, moves in enumerate(emap.lengths):
                 for kind, i, fac in moves:
-                    idx = pos[(kind, i)]
-                    ds11[idx] += fac * g.ds11[e]["length"]
-                    ds21[idx] += fac * g.ds21[e]["length"]
-            names = ("c_series", "c_shunt_in", "c_shunt_out")
+                    acc.add(pos[(kind, i)], e, "length", fac)
             if emap.gaps:  # every gap's complex-step derivative from one gap-model call
                 slots = emap.gaps
                 s_m = np.array([sl.s_model for sl in slots])
@@ -206,29 +202,21 @@ class StripFilterModel:
                 )
                 for k, slot in enumerate(slots):
                     idx = pos[(Dim.GAP, slot.position)]
-                    for q, name in enumerate(names):
+                    for q, name in enumerate(_PI_NAMES):
                         d = dcaps[q][k].imag / h[k] * slot.ds_model
-                        if q == 0:
-                            d *= slot.c_series_factor
-                        ds11[idx] += d * g.ds11[slot.element][name]
-                        ds21[idx] += d * g.ds21[slot.element][name]
+                        acc.add(
+                            idx, slot.element, name, d * (slot.c_series_factor if q == 0 else 1.0)
+                        )
             if self.free_widths:
                 _, _, _, widths = self.split(p)
-                self._width_gradient(widths, emap, g, ds11, ds21)
+                self._width_gradient(widths, emap, acc)
+            ds11, ds21 = acc.total(len(self.dims), g.stacked11, g.stacked21)
         return Response(g.s11, g.s21, ds11, ds21)
 
-    def _width_gradient(
-        self,
-        widths: NDArray,
-        emap: ElementMap,
-        g: cascade.Gradient,
-        ds11: NDArray[np.complex128],
-        ds21: NDArray[np.complex128],
-    ) -> None:
+    def _width_gradient(self, widths: NDArray, emap: ElementMap, acc: _Chain) -> None:
         med, f = self.medium, self.f
         kl = 1.0 if self.adjust is None else self.adjust.loss_factor
         n = self.order
-        names = ("c_series", "c_shunt_in", "c_shunt_out")
         w = np.asarray(widths, float)
         h = _FD * w
         # γ, z_c at every width ± its step: one call of the line model, (2n, nf)
@@ -237,8 +225,8 @@ class StripFilterModel:
         dz = (zc[:n] - zc[n:]) / (2 * h[:, None])
         col = [self._position[(Dim.WIDTH, j)] for j in range(n)]
         for e, j in emap.lines:
-            ds11[col[j]] += g.ds11[e]["gamma"] * dgam[j] + g.ds11[e]["z_c"] * dz[j]
-            ds21[col[j]] += g.ds21[e]["gamma"] * dgam[j] + g.ds21[e]["z_c"] * dz[j]
+            acc.add_spectrum(col[j], e, "gamma", dgam[j])
+            acc.add_spectrum(col[j], e, "z_c", dz[j])
         # every gap side that is a resonator, both steps: one call of the gap model
         moves = [
             (slot, side, res)
@@ -257,17 +245,56 @@ class StripFilterModel:
                 target[k + i] = w[res] - h[res]
             caps = self._gap_pis(w_in, w_out, s_m)
             for i, (slot, _, res) in enumerate(moves):
-                for q, name in enumerate(names):
+                for q, name in enumerate(_PI_NAMES):
                     d = (caps[q][i].real - caps[q][k + i].real) / (2 * h[res])
-                    if q == 0:
-                        d *= slot.c_series_factor
-                    ds11[col[res]] += d * g.ds11[slot.element][name]
-                    ds21[col[res]] += d * g.ds21[slot.element][name]
+                    acc.add(
+                        col[res], slot.element, name, d * (slot.c_series_factor if q == 0 else 1.0)
+                    )
         if emap.open_ends:  # a tapped stub's open-end extension follows its resonator's width
             dl = (open_end_extensions(med, w + h) - open_end_extensions(med, w - h)) / (2 * h)
             for e, j in emap.open_ends:
-                ds11[col[j]] += dl[j] * g.ds11[e]["length"]
-                ds21[col[j]] += dl[j] * g.ds21[e]["length"]
+                acc.add(col[j], e, "length", float(dl[j]))
+
+
+_PI_NAMES = ("c_series", "c_shunt_in", "c_shunt_out")
+
+
+class _Chain:
+    """The chain rule from element parameters to design dimensions, assembled in a few array
+    operations: d S / d dim = Σ (d param / d dim) · d S / d param, where each factor is a number
+    (a length, a capacitance's derivative) or a spectrum (a line's γ or z_c per frequency)."""
+
+    def __init__(self, index: dict[tuple[int, str], int]) -> None:
+        self.index = index
+        self.dims: list[int] = []
+        self.rows: list[int] = []
+        self.factors: list[float] = []
+        self.s_dims: list[int] = []
+        self.s_rows: list[int] = []
+        self.spectra: list[NDArray] = []
+
+    def add(self, dim: int, element: int, name: str, factor: Values) -> None:
+        self.dims.append(dim)
+        self.rows.append(self.index[(element, name)])
+        self.factors.append(float(np.real(factor)))
+
+    def add_spectrum(self, dim: int, element: int, name: str, factor: NDArray) -> None:
+        self.s_dims.append(dim)
+        self.s_rows.append(self.index[(element, name)])
+        self.spectra.append(factor)
+
+    def total(
+        self, n_dims: int, d11: NDArray, d21: NDArray
+    ) -> tuple[NDArray[np.complex128], NDArray[np.complex128]]:
+        both = np.stack([d11, d21])  # (2, P, nf)
+        weights = np.zeros((n_dims, both.shape[1]))
+        np.add.at(weights, (self.dims, self.rows), self.factors)
+        out = weights @ both  # (2, n_dims, nf)
+        if self.spectra:
+            part = np.stack(self.spectra) * both[:, self.s_rows]
+            for k in range(2):
+                np.add.at(out[k], self.s_dims, part[k])
+        return out[0], out[1]
 
 
 @dataclass

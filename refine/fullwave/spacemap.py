@@ -286,9 +286,7 @@ def rerefine(
         r = model.response(p, grad)
         return r.s11, r.s21, r.ds11, r.ds21
 
-    rec = minimax(
-        space, problem.mask, f, fn, space.start(), Stopping(200, None, 100.0, 1e-7), polish=False
-    )
+    rec = minimax(space, problem.mask, f, fn, space.start(), Stopping(200, None, 100.0, 1e-7))
     return model.layout(space.to_physical(rec.z))
 
 

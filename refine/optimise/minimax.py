@@ -27,7 +27,6 @@ and re-evaluated.
 
 from __future__ import annotations
 
-import enum
 import math
 import time
 from collections.abc import Callable
@@ -40,14 +39,8 @@ from numpy.typing import NDArray
 
 from refine import _validate as v
 from refine.optimise.space import DesignSpace
+from refine.optimise.strategy import Strategy
 from refine.spec.mask import Mask
-
-
-class Strategy(enum.Enum):
-    GRADIENT = "gradient"
-    DERIVATIVE_FREE = "derivative-free"
-    MULTISTART = "multistart"
-
 
 _NLOPT_ALGORITHM = {Strategy.GRADIENT: nlopt.LD_SLSQP, Strategy.DERIVATIVE_FREE: nlopt.LN_COBYLA}
 _POLISH = nlopt.LD_CCSAQ

@@ -38,9 +38,9 @@ from typing import NamedTuple
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
-from scipy.constants import c as C0
 
 from refine import validity
+from refine.physics.constants import C0
 from refine.physics.microstrip import hammerstad_jensen
 
 PF = 1e-12

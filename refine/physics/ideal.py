@@ -12,9 +12,9 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
-from scipy.constants import c as C0
 
 from refine import _validate as v
+from refine.physics.constants import C0
 
 
 @dataclass(frozen=True)
@@ -31,8 +31,8 @@ class IdealTEM:
     ) -> tuple[NDArray[np.complex128], NDArray[np.complex128]]:
         """(gamma, z_c) at frequencies ``f`` (Hz): gamma = j 2π f/c, z_c constant."""
         f = v.frequencies("f", f)
-        gamma = 1j * 2.0 * np.pi * f / C0
-        return gamma, np.full(f.shape, complex(self.z_c))
+        gamma: NDArray[np.complex128] = np.asarray(1j * 2.0 * np.pi * f / C0, complex)
+        return gamma, np.full(f.shape, complex(self.z_c), dtype=complex)
 
     @staticmethod
     def length_for_angle(theta: ArrayLike, f0: float) -> NDArray[np.float64]:

@@ -41,15 +41,11 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
-from scipy.constants import c as C0
-from scipy.constants import mu_0 as MU0
-from scipy.optimize import brentq
 
 from refine import _validate as v
 from refine import validity
+from refine.physics.constants import C0, ETA0, MU0
 from refine.physics.substrate import Substrate
-
-ETA0 = math.sqrt(MU0 / 8.8541878128e-12)  # 376.73 ohm, free-space wave impedance
 
 
 def hammerstad_jensen_z01(u: ArrayLike) -> NDArray:
@@ -200,6 +196,8 @@ def solve_log_width(z_of, z0: float, lo: float, hi: float, what: str, ratio: str
                 f"z0 = {z0:g} ohm is outside the range {what} can give, "
                 f"({z_lo:.4g}, {z_hi:.4g}) ohm for {lo:g} <= {ratio} <= {hi:g}"
             )
+        from scipy.optimize import brentq  # loaded on first use: 0.4 s at start-up otherwise
+
         return math.exp(brentq(lambda x: z_of(x) - z0, a, b, xtol=1e-14, rtol=1e-13))
 
 

@@ -22,11 +22,10 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
-from scipy.constants import c as C0
-from scipy.special import ellipk, ellipkm1
 
 from refine import _validate as v
 from refine import validity
+from refine.physics.constants import C0
 from refine.physics.microstrip import ETA0, solve_log_width, surface_resistance
 from refine.physics.substrate import Substrate
 
@@ -41,6 +40,8 @@ def cohn_z0(w_b: ArrayLike, eps_r: ArrayLike) -> NDArray:
     (k → 1, W/b ≲ 0.006) and a wide one (k' → 1, W/b ≳ 3.4, where the direct form loses every
     digit by W/b ≈ 12). In between, the direct form is used (both are the same function).
     """
+    from scipy.special import ellipk, ellipkm1  # loaded for stripline only (start-up time)
+
     x = np.pi * np.asarray(w_b, float) / 2.0
     sech2 = 1.0 / np.cosh(x) ** 2  # k²
     tanh2 = np.tanh(x) ** 2  # k'²

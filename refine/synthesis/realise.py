@@ -26,7 +26,6 @@ import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import brentq
 
 from refine import validity
 from refine.circuit import cascade
@@ -117,6 +116,8 @@ def _solve_gap(
             return None
         if e_hi > 0:
             return math.exp(hi)
+        from scipy.optimize import brentq  # loaded on first use (start-up time)
+
         return math.exp(brentq(err, lo, hi, xtol=1e-10))
 
 
