@@ -1,6 +1,7 @@
 """Microstrip and stripline media: scikit-rf's microstrip model, published and recomputed check
 values, unloaded Q from the cascade, validity warnings and bad input."""
 
+import math
 import warnings
 
 import numpy as np
@@ -297,3 +298,28 @@ def test_constants_are_scipys():
     assert constants.MU0 == sc.mu_0
     assert constants.EPS0 == sc.epsilon_0
     assert constants.ETA0 == pytest.approx(376.730313412, rel=1e-10)  # CODATA 2022, Z0
+
+
+@pytest.mark.parametrize(
+    "fn, a, b",
+    [
+        (lambda x: x**3 - 2.0, 0.0, 3.0),
+        (lambda x: math.exp(x) - 50.0, -5.0, 10.0),
+        (lambda x: math.log(x) + 0.3, 0.01, 100.0),
+        (lambda x: math.tanh(20 * (x - 0.7)), -3.0, 5.0),  # steep, nearly flat at the ends
+    ],
+)
+def test_bracketed_root_agrees_with_scipy_brentq(fn, a, b):
+    from scipy.optimize import brentq
+
+    from refine._roots import bracketed_root
+
+    want = brentq(fn, a, b, xtol=1e-14, rtol=1e-13)
+    assert bracketed_root(fn, a, b, xtol=1e-14, rtol=1e-13) == pytest.approx(want, abs=1e-12)
+
+
+def test_bracketed_root_needs_a_sign_change():
+    from refine._roots import bracketed_root
+
+    with pytest.raises(ValueError, match="no sign change"):
+        bracketed_root(lambda x: x * x + 1.0, -1.0, 1.0)

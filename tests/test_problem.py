@@ -216,3 +216,62 @@ def test_resonator_width_refused_for_the_ideal_medium():
     d["resonators"] = {"width": "feed"}
     with pytest.raises(ProblemError, match=r"resonators.width = 'feed': does not apply"):
         parse_problem(d, "x.toml")
+
+
+def _unit_strings():
+    import re
+    import tomllib
+
+    found: set[str] = set()
+
+    def walk(x):
+        if isinstance(x, dict):
+            for v in x.values():
+                walk(v)
+        elif isinstance(x, list):
+            for v in x:
+                walk(v)
+        elif isinstance(x, str) and re.match(r"\s*[-+0-9.]", x):
+            found.add(x)
+
+    for p in sorted((Path(__file__).parent.parent / "problems").rglob("*.toml")):
+        walk(tomllib.loads(p.read_text()))
+    return sorted(found)
+
+
+def test_plain_unit_strings_read_exactly_as_pint_reads_them():
+    """The fast reader of plain SI strings gives pint's value to the last bit, on every unit
+    string of the bundled problems and studies and on a few more spellings."""
+    import pint
+
+    from refine.spec.problem import plain_si
+
+    ureg = pint.UnitRegistry()
+    kinds = {"frequency": "Hz", "length": "m", "impedance": "ohm", "conductivity": "S/m"}
+    strings = [*_unit_strings(), "2.4GHz", "25 um", "25 µm", ".5 mm", "1e-3 m", "3 cm", "75 Ω"]
+    read = 0
+    for text in strings:
+        for kind, si in kinds.items():
+            x = plain_si(text, kind)
+            if x is not None:
+                assert x == ureg.Quantity(text.replace("Ω", "ohm")).to(si).magnitude, text
+                read += 1
+    assert read >= 40
+
+
+@pytest.mark.parametrize(
+    "text, kind",
+    [
+        ("20 mil", "length"),
+        ("0.025 in", "length"),
+        ("50 Ohm", "impedance"),
+        ("1 ms", "length"),
+        ("3 GHz + 10 MHz", "frequency"),
+        ("nan GHz", "frequency"),
+        ("5.8 MS/m", "conductivity"),
+    ],
+)
+def test_other_unit_strings_are_left_to_pint(text, kind):
+    from refine.spec.problem import plain_si
+
+    assert plain_si(text, kind) is None

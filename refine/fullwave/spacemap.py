@@ -43,7 +43,6 @@ from pathlib import Path
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.optimize import least_squares
 
 from refine.circuit.builder import Adjustments
 from refine.circuit.layout import Layout
@@ -102,6 +101,8 @@ def extract(
     best = None
     for other in (start, *others):
         z0 = np.clip(sp.to_free(sp.clip(model.vector(other))), lo, hi)
+        from scipy.optimize import least_squares  # loaded on first use (start-up time)
+
         sol = least_squares(resid, z0, bounds=(sp.lower, sp.upper), x_scale=0.01, diff_step=1e-4)
         if best is None or sol.cost < best.cost:
             best = sol
@@ -254,6 +255,8 @@ def extract_correction(
         starts.append(np.clip(_correction_to_q(groups, start), lo + 1e-9, hi - 1e-9))
     best = None
     for q0 in starts:
+        from scipy.optimize import least_squares  # loaded on first use (start-up time)
+
         sol = least_squares(resid, q0, bounds=(lo, hi), x_scale=0.1, diff_step=1e-4)
         if best is None or sol.cost < best.cost:
             best = sol

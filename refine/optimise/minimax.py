@@ -13,9 +13,11 @@ Strategies (our names, one mapping to nlopt):
 =====================  =============================================================
 ``gradient``           nlopt LD_SLSQP on the epigraph, analytic gradients; if it stalls
                        short of the target, nlopt LD_CCSAQ continues from its best point
-                       (slower per step with many constraints, but it does not stall) (default)
+                       (slower per step with many constraints, but it does not stall); if
+                       that stalls too, up to two restarts from perturbed points, within
+                       the evaluation budget (default)
 ``derivative-free``    nlopt LN_COBYLA on the epigraph, no gradients (the baseline)
-``multistart``         ``gradient`` from the seed, then from perturbed starts until met
+``multistart``         ``gradient`` with up to four perturbed restarts until met
 =====================  =============================================================
 
 One entry, :func:`minimax`, serves every caller: the refiner, yield centring and EM-corrected
@@ -49,6 +51,7 @@ SLSQP_RESTARTS = 2
 STALL_EVALUATIONS = 40  # a run that gains less than STALL_DB in this many evaluations has stalled
 STALL_DB = 0.01
 POLISH_EVALUATIONS = 80
+GRADIENT_RESTARTS = 2  # the gradient strategy restarts from a perturbed point when it stalls
 # CCSAQ solves a dual subproblem at every step; nlopt's default lets that inner solve run to
 # 1e-14 relative or 100 000 evaluations, which on a 150–180-sample grid cost ~0.4 s a step
 # (85–92 % of the N=9 alumina problem's time). A few hundred inner evaluations give the
@@ -307,21 +310,32 @@ def minimax(
             aggregate=aggregate,
             progress=progress,
         )
-    if strategy is Strategy.GRADIENT:
-        return _gradient_then_polish(space, mask, f, fn, z0, stopping, extra, thorough, progress)
-    if strategy is not Strategy.MULTISTART:
+    if strategy not in (Strategy.GRADIENT, Strategy.MULTISTART):
         return _run_nlopt(strategy, space, mask, f, fn, z0, stopping, extra, progress=progress)
     t0 = time.perf_counter()
-    rec = _gradient_then_polish(space, mask, f, fn, z0, stopping, extra, thorough)
+    rec = _gradient_then_polish(space, mask, f, fn, z0, stopping, extra, thorough, progress)
     rng = np.random.default_rng(seed)
     total, hist = rec.evaluations, list(rec.history)
-    for _ in range(restarts):
-        if rec.worst_margin >= stopping.target_margin_db:
+    for k in range(restarts if strategy is Strategy.MULTISTART else GRADIENT_RESTARTS):
+        left = None if stopping.max_evaluations is None else stopping.max_evaluations - total
+        if rec.worst_margin >= min(stopping.target_margin_db, POLISH_BELOW_DB) or (
+            left is not None and left < STALL_EVALUATIONS
+        ):
             break
         if stopping.max_seconds is not None and time.perf_counter() - t0 > stopping.max_seconds:
             break
-        start = np.clip(rec.z + rng.normal(0.0, 0.03, rec.z.size), space.lower, space.upper)
-        r = _gradient_then_polish(space, mask, f, fn, start, stopping, extra, thorough)
+        # alternately near the start and near the best point: a stall point perturbed by a few
+        # per cent mostly falls back into the same trap
+        base = z0 if k % 2 == 0 else rec.z
+        start = np.clip(base + rng.normal(0.0, 0.03, rec.z.size), space.lower, space.upper)
+        rest = Stopping(left, stopping.max_seconds, stopping.target_margin_db, stopping.xtol_rel)
+        done = total
+
+        def report(n: int, worst: float, done: int = done) -> None:
+            if progress is not None:
+                progress(done + n, worst)
+
+        r = _gradient_then_polish(space, mask, f, fn, start, rest, extra, thorough, report)
         total += r.evaluations
         hist += r.history
         if r.worst_margin > rec.worst_margin:

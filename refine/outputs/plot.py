@@ -84,7 +84,9 @@ def response_png(
     import matplotlib.pyplot as plt
 
     ghz = f * 1e-9
-    fig, axes = plt.subplots(1, 2, figsize=(12, 4.6), gridspec_kw={"width_ratios": [1.6, 1]})
+    fig, axes = plt.subplots(
+        1, 2, figsize=(12, 4.6), gridspec_kw={"width_ratios": [1.6, 1]}, layout="constrained"
+    )
     lo, hi = mask.passband_start, mask.passband_stop
     span = hi - lo
     zoom = (f >= lo - 1.5 * span) & (f <= hi + 1.5 * span)
@@ -130,7 +132,6 @@ def response_png(
         ax.set_title(name)
     axes[0].legend(loc="lower left", fontsize=7)
     fig.suptitle(f"{title} — {status}", fontsize=11)
-    fig.tight_layout()
 
     return _save(fig, path, 120)
 
@@ -144,7 +145,7 @@ def layout_png(path: str | Path, layout: Layout, title: str) -> Path:
     from matplotlib.patches import Rectangle
 
     strips = copper(layout)
-    fig, ax = plt.subplots(figsize=(12, 3.8))
+    fig, ax = plt.subplots(figsize=(12, 3.8), layout="constrained")
     for st in strips:
         ax.add_patch(
             Rectangle(
@@ -194,7 +195,6 @@ def layout_png(path: str | Path, layout: Layout, title: str) -> Path:
     ax.set_aspect("equal")
     ax.set_xlabel("mm")
     ax.set_title(f"{title} — copper to scale, dimensions in mm unless marked", fontsize=10)
-    fig.tight_layout()
 
     return _save(fig, path, 130)
 
@@ -208,7 +208,7 @@ def yield_png(
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    fig, ax = plt.subplots(figsize=(8, 4.2))
+    fig, ax = plt.subplots(figsize=(8, 4.2), layout="constrained")
     ax.hist(margins, bins=60, color="tab:blue", alpha=0.8)
     ax.axvline(0.0, color="tab:red", lw=1.5, label="mask limit (0 dB)")
     ax.axvline(nominal, color="black", lw=1, ls="--", label=f"nominal design {nominal:+.2f} dB")
@@ -217,7 +217,6 @@ def yield_png(
     ax.set_title(f"{title}\n{subtitle}", fontsize=10)
     ax.legend(fontsize=8)
     ax.grid(True, alpha=0.3)
-    fig.tight_layout()
 
     return _save(fig, path, 120)
 
@@ -238,7 +237,7 @@ def study_pngs(out: str | Path, frame, title: str) -> list[Path]:
 
     out = Path(out)
     written = []
-    fig, ax = plt.subplots(figsize=(8, 4.6))
+    fig, ax = plt.subplots(figsize=(8, 4.6), layout="constrained")
     keys = ["order", "external", "min_gap_m"]
     for i, (grp, rows) in enumerate(frame.groupby(keys, dropna=False)):
         rows = rows.sort_values("fbw")
@@ -262,10 +261,9 @@ def study_pngs(out: str | Path, frame, title: str) -> list[Path]:
     ax.set_title(f"{title}: closed-form seed (dashed) vs refined (solid)", fontsize=10)
     ax.grid(True, alpha=0.3)
     ax.legend(fontsize=7)
-    fig.tight_layout()
     written.append(_save(fig, out / "study-return-loss.png", 120))
 
-    fig, ax = plt.subplots(figsize=(8, 4.6))
+    fig, ax = plt.subplots(figsize=(8, 4.6), layout="constrained")
     met = frame[frame["status"] == "met"]
     for i, ((order, ext), rows) in enumerate(frame.groupby(["order", "external"])):
         gaps = sorted(rows["min_gap_m"].dropna().unique())
@@ -289,6 +287,5 @@ def study_pngs(out: str | Path, frame, title: str) -> list[Path]:
     ax.set_title(f"{title}: feasibility under the fab rules", fontsize=10)
     ax.grid(True, alpha=0.3)
     ax.legend(fontsize=7)
-    fig.tight_layout()
     written.append(_save(fig, out / "study-feasibility.png", 120))
     return written

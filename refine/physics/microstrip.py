@@ -44,6 +44,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from refine import _validate as v
 from refine import validity
+from refine._roots import bracketed_root
 from refine.physics.constants import C0, ETA0, MU0
 from refine.physics.substrate import Substrate
 
@@ -196,9 +197,7 @@ def solve_log_width(z_of, z0: float, lo: float, hi: float, what: str, ratio: str
                 f"z0 = {z0:g} ohm is outside the range {what} can give, "
                 f"({z_lo:.4g}, {z_hi:.4g}) ohm for {lo:g} <= {ratio} <= {hi:g}"
             )
-        from scipy.optimize import brentq  # loaded on first use: 0.4 s at start-up otherwise
-
-        return math.exp(brentq(lambda x: z_of(x) - z0, a, b, xtol=1e-14, rtol=1e-13))
+        return math.exp(bracketed_root(lambda x: z_of(x) - z0, a, b, xtol=1e-14, rtol=1e-13))
 
 
 @dataclass(frozen=True)

@@ -22,12 +22,14 @@ clipped silently.
 from __future__ import annotations
 
 import math
+import sys
 import warnings
 from dataclasses import dataclass
 
 import numpy as np
 
 from refine import validity
+from refine._roots import bracketed_root
 from refine.circuit import cascade
 from refine.circuit.builder import gap_elements
 from refine.circuit.layout import Layout
@@ -116,9 +118,7 @@ def _solve_gap(
             return None
         if e_hi > 0:
             return math.exp(hi)
-        from scipy.optimize import brentq  # loaded on first use (start-up time)
-
-        return math.exp(brentq(err, lo, hi, xtol=1e-10))
+        return math.exp(bracketed_root(err, lo, hi, xtol=1e-10, rtol=4 * sys.float_info.epsilon))
 
 
 def realise(
