@@ -8,7 +8,7 @@ import warnings
 
 import numpy as np
 import pytest
-from conftest import PROBLEMS
+from conftest import PROBLEMS, ROOT
 
 import refine
 from refine.circuit import cascade
@@ -123,3 +123,35 @@ def test_one_resonator_tapped_filter_subtracts_both_taps():
     ).elements
     lines = [e for e in els if isinstance(e, cascade.Line)]
     assert len(lines) == 1 and float(np.asarray(lines[0].length)) == pytest.approx(2.5e-3)
+
+
+@pytest.mark.parametrize(
+    "stem", ["ms-alumina-8g-n9-3pct", "ms-pcb-tap-3g5-n4-2pct", "sl-ptfe-tap-1g6-n3-1pct"]
+)
+@pytest.mark.parametrize("free", [False, True])
+def test_a_batch_of_designs_gives_each_designs_response_and_gradient(stem, free):
+    """Yield centring evaluates its perturbed designs as one batch: the batch must give, design
+    by design, what one design alone gives (S and the exact gradient)."""
+    from refine import load_problem, seed
+    from refine.circuit.model import strip_model_for
+    from refine.circuit.response import strip_medium_for
+    from refine.optimise.minimax import optimiser_grid
+
+    p = load_problem(ROOT / "problems" / f"{stem}.toml")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        lay = seed(p).strip_realisation.layout
+    f = optimiser_grid(p.mask, lay.order)
+    m = strip_model_for(strip_medium_for(p), p.gap_model, p.z_ref, lay, f, free)
+    x = m.vector(lay)
+    batch = x * (1 + 0.01 * np.random.default_rng(1).standard_normal((4, x.size)))
+    rb = m.response(batch, True)
+    assert rb.ds11 is not None and rb.ds21 is not None
+    assert rb.s11.shape == (4, f.size) and rb.ds11.shape == (4, x.size, f.size)
+    for b in range(4):
+        r = m.response(batch[b], True)
+        assert r.ds11 is not None and r.ds21 is not None
+        np.testing.assert_allclose(rb.s11[b], r.s11, rtol=0, atol=1e-13)
+        np.testing.assert_allclose(rb.s21[b], r.s21, rtol=0, atol=1e-13)
+        np.testing.assert_allclose(rb.ds11[b], r.ds11, rtol=0, atol=1e-12 * np.abs(r.ds11).max())
+        np.testing.assert_allclose(rb.ds21[b], r.ds21, rtol=0, atol=1e-12 * np.abs(r.ds21).max())

@@ -85,11 +85,11 @@ class GapSlot:
 
     element: int
     position: int
-    w_in: float
-    w_out: float
+    w_in: Values  # a number for one design, ``(B,)`` for a batch of B designs
+    w_out: Values
     resonators: tuple[int | None, int | None]
-    s_model: float
-    ds_model: float
+    s_model: Values
+    ds_model: Values
     c_series_factor: float
 
 
@@ -145,7 +145,7 @@ def build(
     validate: bool = True,
 ) -> Built:
     """The cascade elements of an end-coupled filter (see the module docstring for the circuit
-    and the shapes). ``track`` (one design only) also returns the :class:`ElementMap`;
+    and the shapes). ``track`` (one design, or a 1-D batch) also returns the :class:`ElementMap`;
     ``validate`` False skips the argument checks for a caller that made them once."""
     coupling = Coupling(coupling)
     f = v.frequencies("f", f) if validate else np.asarray(f, float)
@@ -167,8 +167,8 @@ def build(
         taps_a = v.positive_array("taps", taps) if validate else np.asarray(taps, float)
         if taps_a.shape[-1] != 2:
             raise ValueError(f"a tapped filter needs 2 taps, got {taps_a.shape[-1]}")
-    if track and widths_a.ndim != 1:
-        raise ValueError("a tracked build is for one design: widths must be 1-D")
+    if track and widths_a.ndim > 2:
+        raise ValueError("a tracked build is for one design or a 1-D batch: widths (n,) or (B, n)")
     adj = adjust or Adjustments()
     if adj.length_offsets is not None:
         lengths_a = lengths_a + np.asarray(adj.length_offsets, float)
@@ -186,6 +186,11 @@ def build(
 
     def pick(x: NDArray, j: int) -> Values:
         return x[..., j, None] if batched else x[j]
+
+    def per_design(x: Values) -> Values:  # a column (B, 1) -> (B,); a number stays a number
+        if batched:
+            return np.broadcast_to(np.asarray(x, float), (*widths_a.shape[:-1], 1))[..., 0]
+        return float(np.asarray(x).ravel()[0])
 
     w = [pick(widths_a, j) for j in range(n)]
     props = _line_properties_all(medium, widths_a, f, kl)
@@ -228,11 +233,11 @@ def build(
                 GapSlot(
                     len(els) - 1,
                     pos,
-                    float(np.asarray(w_in).ravel()[0]),
-                    float(np.asarray(w_out).ravel()[0]),
+                    per_design(w_in),
+                    per_design(w_out),
                     sides,
-                    float(np.asarray(s).ravel()[0]),
-                    float(np.asarray(ds).ravel()[0]),
+                    per_design(s),
+                    per_design(ds),
                     factor,
                 )
             )

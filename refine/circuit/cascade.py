@@ -411,7 +411,7 @@ def s11_s21_gradient(
     k = len(elements)
 
     # forward pass: the prefix rows for Δ and N together, as one 2-vector of (2, ..., nf) arrays
-    lead = np.array([1.0, 1.0]).reshape(2, *([1] * (omega.ndim)))
+    lead = np.array([1.0, 1.0]).reshape(2, *([1] * len(ev.shape)))
     row: tuple = (lead, np.array([z, -z]).reshape(lead.shape))
     row_at: list[tuple] = []
     for e, val in zip(elements, vals, strict=True):

@@ -110,15 +110,19 @@ class StripFilterModel:
     # -- mapping between vectors and layouts -------------------------------------------------
 
     def split(self, p: NDArray) -> tuple[NDArray, NDArray, NDArray | None, NDArray]:
+        """Gaps, lengths, taps (or None) and widths of ``p`` (one design, or ``(B, n)``)."""
         n, g = self.order, self._n_gaps
-        gaps = p[:g]
-        lengths = p[g : g + n]
+        gaps = p[..., :g]
+        lengths = p[..., g : g + n]
         k = g + n
         taps = None
         if self.external is Coupling.TAP:
-            taps = p[k : k + 2]
+            taps = p[..., k : k + 2]
             k += 2
-        widths = p[k : k + n] if self.free_widths else np.asarray(self.fixed_widths, float)
+        if self.free_widths:
+            widths = p[..., k : k + n]
+        else:
+            widths = np.broadcast_to(np.asarray(self.fixed_widths, float), (*p.shape[:-1], n))
         return gaps, lengths, taps, widths
 
     def layout(self, p: NDArray) -> Layout:
@@ -174,8 +178,13 @@ class StripFilterModel:
         )
 
     def response(self, p: NDArray, gradient: bool = False) -> Response:
-        """S11, S21 at the model's frequencies; with ``gradient`` also d/dp of both."""
+        """S11, S21 at the model's frequencies; with ``gradient`` also d/dp of both.
+
+        ``p`` is one design ``(n_params,)``, giving ``(nf,)`` and ``(n_params, nf)``, or a batch
+        ``(B, n_params)`` evaluated in one pass, giving ``(B, nf)`` and ``(B, n_params, nf)``."""
         p = np.asarray(p, float)
+        if p.ndim not in (1, 2):
+            raise ValueError(f"p must be (n_params,) or (B, n_params), got shape {p.shape}")
         with validity.unchecked():  # the verification grid checks ranges and reports them
             els, emap = self._build(p, gradient)
             if not gradient:
@@ -186,7 +195,7 @@ class StripFilterModel:
             if self.free_widths:
                 wrt |= {"gamma", "z_c"}
             g = cascade.s11_s21_gradient(els, self.f, self.z_ref, wrt)
-            acc = _Chain(g.rows)
+            acc = _Chain(g.rows, None if p.ndim == 1 else p.shape[0])
             pos = self._position
             for e, moves in enumerate(emap.lengths):
                 for kind, i, fac in moves:
@@ -203,7 +212,7 @@ class StripFilterModel:
                 for k, slot in enumerate(slots):
                     idx = pos[(Dim.GAP, slot.position)]
                     for q, name in enumerate(_PI_NAMES):
-                        d = dcaps[q][k].imag / h[k] * slot.ds_model
+                        d = np.imag(dcaps[q][k]) / h[k] * slot.ds_model
                         acc.add(
                             idx, slot.element, name, d * (slot.c_series_factor if q == 0 else 1.0)
                         )
@@ -217,12 +226,14 @@ class StripFilterModel:
         med, f = self.medium, self.f
         kl = 1.0 if self.adjust is None else self.adjust.loss_factor
         n = self.order
-        w = np.asarray(widths, float)
+        w = np.asarray(widths, float)  # (n,) or (B, n)
         h = _FD * w
-        # γ, z_c at every width ± its step: one call of the line model, (2n, nf)
-        gam, zc = line_properties(med, np.concatenate([w + h, w - h])[:, None], f, kl)
-        dgam = (gam[:n] - gam[n:]) / (2 * h[:, None])
-        dz = (zc[:n] - zc[n:]) / (2 * h[:, None])
+        # γ, z_c at every width ± its step: one call of the line model, (2n, [B,] nf)
+        steps = np.moveaxis(np.concatenate([w + h, w - h], axis=-1), -1, 0)[..., None]
+        gam, zc = line_properties(med, steps, f, kl)
+        hh = np.moveaxis(h, -1, 0)[..., None]
+        dgam = (gam[:n] - gam[n:]) / (2 * hh)
+        dz = (zc[:n] - zc[n:]) / (2 * hh)
         col = [self._position[(Dim.WIDTH, j)] for j in range(n)]
         for e, j in emap.lines:
             acc.add_spectrum(col[j], e, "gamma", dgam[j])
@@ -241,19 +252,19 @@ class StripFilterModel:
             k = len(moves)
             for i, (_, side, res) in enumerate(moves):
                 target = w_in if side == 0 else w_out
-                target[i] = w[res] + h[res]
-                target[k + i] = w[res] - h[res]
+                target[i] = w[..., res] + h[..., res]
+                target[k + i] = w[..., res] - h[..., res]
             caps = self._gap_pis(w_in, w_out, s_m)
             for i, (slot, _, res) in enumerate(moves):
                 for q, name in enumerate(_PI_NAMES):
-                    d = (caps[q][i].real - caps[q][k + i].real) / (2 * h[res])
+                    d = (np.real(caps[q][i]) - np.real(caps[q][k + i])) / (2 * h[..., res])
                     acc.add(
                         col[res], slot.element, name, d * (slot.c_series_factor if q == 0 else 1.0)
                     )
         if emap.open_ends:  # a tapped stub's open-end extension follows its resonator's width
             dl = (open_end_extensions(med, w + h) - open_end_extensions(med, w - h)) / (2 * h)
             for e, j in emap.open_ends:
-                acc.add(col[j], e, "length", float(dl[j]))
+                acc.add(col[j], e, "length", dl[..., j])
 
 
 _PI_NAMES = ("c_series", "c_shunt_in", "c_shunt_out")
@@ -262,13 +273,15 @@ _PI_NAMES = ("c_series", "c_shunt_in", "c_shunt_out")
 class _Chain:
     """The chain rule from element parameters to design dimensions, assembled in a few array
     operations: d S / d dim = Σ (d param / d dim) · d S / d param, where each factor is a number
-    (a length, a capacitance's derivative) or a spectrum (a line's γ or z_c per frequency)."""
+    (a length, a capacitance's derivative) or a spectrum (a line's γ or z_c per frequency); for
+    a batch of B designs, one of each per design."""
 
-    def __init__(self, index: dict[tuple[int, str], int]) -> None:
+    def __init__(self, index: dict[tuple[int, str], int], batch: int | None = None) -> None:
         self.index = index
+        self.batch = batch
         self.dims: list[int] = []
         self.rows: list[int] = []
-        self.factors: list[float] = []
+        self.factors: list[Values] = []
         self.s_dims: list[int] = []
         self.s_rows: list[int] = []
         self.spectra: list[NDArray] = []
@@ -276,7 +289,7 @@ class _Chain:
     def add(self, dim: int, element: int, name: str, factor: Values) -> None:
         self.dims.append(dim)
         self.rows.append(self.index[(element, name)])
-        self.factors.append(float(np.real(factor)))
+        self.factors.append(np.real(factor) if self.batch else float(np.real(factor)))
 
     def add_spectrum(self, dim: int, element: int, name: str, factor: NDArray) -> None:
         self.s_dims.append(dim)
@@ -286,14 +299,27 @@ class _Chain:
     def total(
         self, n_dims: int, d11: NDArray, d21: NDArray
     ) -> tuple[NDArray[np.complex128], NDArray[np.complex128]]:
-        both = np.stack([d11, d21])  # (2, P, nf)
-        weights = np.zeros((n_dims, both.shape[1]))
-        np.add.at(weights, (self.dims, self.rows), self.factors)
-        out = weights @ both  # (2, n_dims, nf)
+        """d S11, d S21 per dimension: ``(n_dims, nf)``, or ``(B, n_dims, nf)`` for a batch."""
+        both = np.stack([d11, d21])  # (2, P, [B,] nf)
+        if self.batch is None:
+            weights = np.zeros((n_dims, both.shape[1]))
+            np.add.at(weights, (self.dims, self.rows), np.asarray(self.factors, float))
+            out = weights @ both  # (2, n_dims, nf)
+            if self.spectra:
+                part = np.stack(self.spectra) * both[:, self.s_rows]
+                for k in range(2):
+                    np.add.at(out[k], self.s_dims, part[k])
+            return out[0], out[1]
+        b, nf = self.batch, both.shape[-1]
+        factors = np.array([np.broadcast_to(x, (b,)) for x in self.factors])  # (M, B)
+        wts = np.zeros((n_dims, both.shape[1], b))
+        np.add.at(wts, (self.dims, self.rows), factors)
+        out = np.einsum("dpb,kpbf->kbdf", wts, both)  # (2, B, n_dims, nf)
         if self.spectra:
-            part = np.stack(self.spectra) * both[:, self.s_rows]
+            spectra = np.array([np.broadcast_to(x, (b, nf)) for x in self.spectra])
+            part = spectra * both[:, self.s_rows]  # (2, M, B, nf)
             for k in range(2):
-                np.add.at(out[k], self.s_dims, part[k])
+                np.add.at(np.moveaxis(out[k], 1, 0), self.s_dims, part[k])
         return out[0], out[1]
 
 

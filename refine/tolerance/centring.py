@@ -81,20 +81,17 @@ def centre_for_yield(
         if perturbed is not None and nominal is not None:
             offsets[1:, i] = perturbed[:, k] - nominal[k]
 
-    n_f = f.size
     f_all = np.tile(f, design_samples + 1)
 
     def fn(p: NDArray, grad: bool):
-        s11 = np.empty(f_all.size, complex)
-        s21 = np.empty(f_all.size, complex)
-        ds11 = np.zeros((len(p), f_all.size), complex) if grad else None
-        ds21 = np.zeros((len(p), f_all.size), complex) if grad else None
-        for k, off in enumerate(offsets):
-            r = model.response(np.maximum(p + off, 1e-9), grad)
-            sl = slice(k * n_f, (k + 1) * n_f)
-            s11[sl], s21[sl] = r.s11, r.s21
-            if ds11 is not None and ds21 is not None:
-                ds11[:, sl], ds21[:, sl] = r.ds11, r.ds21
+        # the nominal design and every sample in one batched evaluation, laid end to end
+        r = model.response(np.maximum(p + offsets, 1e-9), grad)
+        s11, s21 = r.s11.reshape(-1), r.s21.reshape(-1)
+        if r.ds11 is None or r.ds21 is None:
+            return s11, s21, None, None
+        n_p = len(p)  # (B, n_p, nf) -> (n_p, B·nf)
+        ds11 = np.moveaxis(r.ds11, 1, 0).reshape(n_p, -1)
+        ds21 = np.moveaxis(r.ds21, 1, 0).reshape(n_p, -1)
         return s11, s21, ds11, ds21
 
     stacked_mask = StackedMask(problem.mask, f, design_samples + 1)
