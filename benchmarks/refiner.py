@@ -53,6 +53,9 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument(
         "--baseline-budget", type=int, default=2000, help="evaluations allowed to COBYLA"
     )
+    ap.add_argument(
+        "--readme", action="store_true", help="rewrite the refiner-speed block in README.md"
+    )
     args = ap.parse_args(argv)
     paths = [p for p in sorted((ROOT / "problems").glob("*.toml")) if p.stem.startswith(args.only)]
     paths = [p for p in paths if re.search(r"Expected outcome: feasible", p.read_text())]
@@ -61,6 +64,7 @@ def main(argv: list[str] | None = None) -> int:
         f"{'COBYLA: to meet':>17}{'used':>6}{'time':>8}{'met':>5}"
     )
     ours_e, base_e, ratio, ours_t, base_t = [], [], [], [], []
+    slowest: tuple[float, str, int, bool, bool] = (0.0, "", 0, False, False)
     met_ours = met_base = 0
     for p in paths:
         a = run(p, Strategy.GRADIENT, 300)
@@ -77,6 +81,8 @@ def main(argv: list[str] | None = None) -> int:
             base_t.append(b.wall_time)
         if am and bm and ka and kb:
             ratio.append(ka / kb)
+        if a.wall_time > slowest[0]:
+            slowest = (a.wall_time, p.stem, a.evaluations, am, bm)
         print(
             f"{p.stem:<36}{ka or '-':>14}{a.evaluations:>6}{a.wall_time:>7.1f}s{'yes' if am else 'no':>5}"
             f"{kb or '-':>17}{b.evaluations:>6}{b.wall_time:>7.1f}s{'yes' if bm else 'no':>5}",
@@ -99,6 +105,28 @@ def main(argv: list[str] | None = None) -> int:
             f"median ratio of evaluations (ours/COBYLA) on the {len(ratio)} problems both met: "
             f"{statistics.median(ratio):.3f} (1/{1 / statistics.median(ratio):.1f})"
         )
+    if args.readme and ours_e and ratio:
+        mr = statistics.median(ratio)
+        rows = [
+            "| | refine (`gradient`) | COBYLA |",
+            "|---|---|---|",
+            f"| problems met | {met_ours} / {n} | {met_base} / {n} |",
+            f"| median evaluations until the mask is first met | "
+            f"{statistics.median(ours_e):.0f} | "
+            f"{statistics.median(base_e) if base_e else float('nan'):.0f} |",
+            f"| median ratio of evaluations, problems both met | {mr:.2f} (1/{1 / mr:.1f}) | 1 |",
+            f"| slowest for refine: {slowest[1]} | {slowest[2]} evaluations, {slowest[0]:.1f} s, "
+            f"{'met' if slowest[3] else 'not met'} | {'met' if slowest[4] else 'not met'} |",
+        ]
+        readme = ROOT / "README.md"
+        old = readme.read_text()
+        a, b = "<!-- refiner-speed:start -->", "<!-- refiner-speed:end -->"
+        if a not in old or b not in old:
+            raise SystemExit(f"README.md has no {a} ... {b} block; nothing was changed")
+        head, rest = old.split(a, 1)
+        _, tail = rest.split(b, 1)
+        stamp = f"`python benchmarks/refiner.py --readme` wrote this table ({n} feasible problems)"
+        readme.write_text(f"{head}{a}\n{stamp}:\n\n" + "\n".join(rows) + f"\n{b}{tail}")
     return 0
 
 

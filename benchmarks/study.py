@@ -1,7 +1,8 @@
 """Design-study throughput: the same 40-design study on 1 local worker, 2 local workers and a
 2-worker Dask LocalCluster (loopback), side by side in one run.
 
-    python benchmarks/study.py
+    python benchmarks/study.py            # print
+    python benchmarks/study.py --readme   # and rewrite the block in README.md
 
 Prints wall times and the speed-up of each over the single worker, and checks that the three
 tables agree row for row (wall times aside).
@@ -59,9 +60,27 @@ def main() -> int:
             times["Dask LocalCluster, 2 workers"] = time.perf_counter() - t0
     base = times["1 local worker"]
     ref = frames["1 local worker"].drop(columns=["wall_time_s"]).to_dict("records")
+    parts = []
+    all_same = True
     for label, t in times.items():
         same = frames[label].drop(columns=["wall_time_s"]).to_dict("records") == ref
+        all_same &= same
         print(f"{label:<30} {t:7.1f} s   speed-up {base / t:4.2f}x   rows identical: {same}")
+        parts.append(f"{label} {t:.1f} s" + ("" if t == base else f" ({base / t:.2f}×)"))
+    if "--readme" in sys.argv[1:]:
+        readme = ROOT / "README.md"
+        old = readme.read_text()
+        a, b = "<!-- study-speed:start -->", "<!-- study-speed:end -->"
+        if a not in old or b not in old:
+            raise SystemExit(f"README.md has no {a} ... {b} block; nothing was changed")
+        head, rest = old.split(a, 1)
+        _, tail = rest.split(b, 1)
+        line = (
+            "`python benchmarks/study.py --readme` (the 40-design study, side by side in one "
+            f"run): {', '.join(parts)}; rows "
+            + ("identical." if all_same else "NOT identical.")
+        )
+        readme.write_text(f"{head}{a}\n{line}\n{b}{tail}")
     return 0
 
 
