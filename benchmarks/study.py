@@ -77,8 +77,7 @@ def main() -> int:
         _, tail = rest.split(b, 1)
         line = (
             "`python benchmarks/study.py --readme` (the 40-design study, side by side in one "
-            f"run): {', '.join(parts)}; rows "
-            + ("identical." if all_same else "NOT identical.")
+            f"run): {', '.join(parts)}; rows " + ("identical." if all_same else "NOT identical.")
         )
         readme.write_text(f"{head}{a}\n{line}\n{b}{tail}")
     return 0
