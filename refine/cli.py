@@ -47,7 +47,8 @@ def build_parser() -> argparse.ArgumentParser:
         help="the main job: seed, diagnose, refine, verify",
         description="Closed-form seed, feasibility diagnosis, refinement under the fab rules, "
         "verification on a dense grid; prints the summary. Exit code 0 when the mask is met, 1 "
-        "when it is not (with the diagnosis), 2 on bad input.",
+        "when it is not (with the diagnosis) or when --fullwave's field-solver check does not "
+        "meet it, 2 on bad input.",
     )
     p.add_argument("problem", help="problem file (TOML)")
     p.add_argument(

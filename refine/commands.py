@@ -382,13 +382,26 @@ def _cmd_design(args: argparse.Namespace) -> int:
         if args.fullwave is not None:
             print()
             print(f"field solver check (mesh {args.fullwave}) ...", flush=True)
-            check = verify.check_layout(problem, r.strip_layouts[0], args.fullwave)
+            check = verify.check_layout(problem, r.strip_layouts[0], args.fullwave, progress=_say)
             written = handover.write_check(check, args.out, force=True)
             print(
                 f"{check.runs} engine runs, {check.seconds:.0f} s: {check.comparison.summary_line()}"
             )
             print("wrote " + ", ".join(w.name for w in written))
+            em = check.comparison.em_mask
+            print(
+                f"verdict: circuit model {'met' if r.status is Status.MET else 'NOT met'} "
+                f"({r.worst_margin:+.2f} dB); field solver, mesh {args.fullwave}: "
+                f"{'met' if em.passed else 'NOT met'} ({em.worst_margin:+.2f} dB)"
+            )
+            if not em.passed:
+                return 1  # a design the field solver rejects is not met, whatever the model says
     return 0 if r.status is Status.MET else 1
+
+
+def _say(line: str) -> None:
+    """A progress line of a long run, printed at once."""
+    print(line, flush=True)
 
 
 def _fullwave_ready(problem, args: argparse.Namespace) -> None:
@@ -586,7 +599,7 @@ def _cmd_fullwave(args: argparse.Namespace) -> int:
         written = handover.write_check(check, out, args.force)
         written += spacemap.write_corrected(sm, out, args.force)
     else:
-        check = verify.check_layout(problem, lay, args.mesh)
+        check = verify.check_layout(problem, lay, args.mesh, progress=_say)
         written = handover.write_check(check, out, args.force)
     print(f"{check.runs} engine runs, {check.seconds:.0f} s")
     print(_table(["figure", "field solver", "circuit model"], check.comparison.rows()))

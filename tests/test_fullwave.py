@@ -344,7 +344,7 @@ def test_space_mapping_meets_the_mask_on_a_stand_in_fine_model(monkeypatch, meth
     assert r.status.value == "met"
     fine = replace(p, substrate=replace(p.substrate, eps_r=10.1))
 
-    def fake_check(problem, layout, mesh="coarse", workdir=None, threads=0):
+    def fake_check(problem, layout, mesh="coarse", workdir=None, threads=0, progress=None):
         f = verify.em_frequencies(problem)
         s_f = evaluate_layout(fine, layout, f)
         s_c = evaluate_layout(problem, layout, f)
@@ -447,7 +447,7 @@ def _stand_in(monkeypatch):
 
     monkeypatch.setattr(engine, "find_engine", lambda: engine.Engine("python3", "openEMS test"))
 
-    def fake_check(problem, layout, mesh="coarse", workdir=None, threads=0):
+    def fake_check(problem, layout, mesh="coarse", workdir=None, threads=0, progress=None):
         fine = replace(problem, substrate=replace(problem.substrate, eps_r=10.1))
         f = verify.em_frequencies(problem)
         s_f = evaluate_layout(fine, layout, f)
@@ -517,11 +517,32 @@ def test_design_with_fullwave_refuses_early_without_the_engine(monkeypatch, tmp_
         engine.find_engine.cache_clear()
 
 
-def test_design_with_fullwave_puts_the_comparison_in_the_report(monkeypatch, tmp_path):
+def test_design_with_fullwave_puts_the_comparison_in_the_report(monkeypatch, tmp_path, capsys):
+    """The stand-in field solver detunes the design: the command exits 1 (not met), and the
+    report has one verdict at its top, both models side by side, that the rest agrees with."""
     _stand_in(monkeypatch)
     out = tmp_path / "out"
-    assert main(["design", str(TAP_PROBLEM), "--out", str(out), "--fullwave", "coarse"]) == 0
+    assert main(["design", str(TAP_PROBLEM), "--out", str(out), "--fullwave", "coarse"]) == 1
+    assert "field solver, mesh coarse: NOT met" in capsys.readouterr().out
     report = (out / "report.md").read_text()
     assert "## Field-solver check" in report and "mask NOT met on the field solver" in report
+    top = report.split("## Specification")[0]
+    assert "NOT MET ON THE FIELD SOLVER" in top and "The refined design meets the mask" not in top
+    assert "| circuit model | met |" in top and "| field solver (mesh `coarse`) | NOT met |" in top
+    assert json.loads((out / "summary.json").read_text())["meets_mask_on_field_solver"] is False
     assert "## Gap models against the field solver" in report
     assert (out / "fullwave.s2p").exists()
+
+
+def test_job_size_counts_cells_and_courant_steps():
+    """The size announced before a field solve: cells of the mesh, and the simulated time over
+    the Courant step of its smallest cells, 1/(c·sqrt(Σ 1/Δ²)) (the usual 3-D FDTD stability
+    limit; common practice, no source)."""
+    job = {
+        "mesh": {"x": [0.0, 1e-4, 3e-4], "y": [0.0, 2e-4, 4e-4, 6e-4], "z": [0.0, 5e-5]},
+        "max_time": 1e-9,
+    }
+    cells, steps = engine.job_size(job)
+    assert cells == 2 * 3 * 1
+    dt = 1.0 / (299_792_458.0 * (1 / 1e-4**2 + 1 / 2e-4**2 + 1 / 5e-5**2) ** 0.5)
+    assert steps == pytest.approx(1e-9 / dt, abs=1)

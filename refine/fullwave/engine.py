@@ -11,11 +11,14 @@ from __future__ import annotations
 
 import functools
 import json
+import math
 import os
+import re
 import subprocess
 import sys
 import tempfile
 import time
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -98,12 +101,40 @@ def available() -> bool:
     return True
 
 
-def run(job: dict, workdir: str | Path | None = None, timeout: float = 6 * 3600) -> dict:
+Progress = Callable[[str], None]
+PROGRESS_EVERY = 20.0  # seconds between progress lines while the engine runs
+_STEP = re.compile(r"Timestep:\s*(\d+)")
+C0 = 299_792_458.0
+
+
+def job_size(job: dict) -> tuple[int, int]:
+    """(cells, time steps at most) of a job: the mesh's cell count, and its simulated time over
+    the Courant time step of its smallest cells (the engine may stop sooner, on its energy
+    criterion)."""
+    axes = [np.diff(np.asarray(job["mesh"][a], float)) for a in ("x", "y", "z")]
+    cells = int(np.prod([d.size for d in axes]))
+    dt = 1.0 / (C0 * math.sqrt(sum(1.0 / float(d.min()) ** 2 for d in axes)))
+    return cells, math.ceil(float(job["max_time"]) / dt)
+
+
+def run(
+    job: dict,
+    workdir: str | Path | None = None,
+    timeout: float = 6 * 3600,
+    progress: Progress | None = None,
+    label: str = "field solve",
+) -> dict:
     """Run one job; returns the result arrays (see the solver script) plus ``seconds``.
 
     workdir : keep the engine's files there (a fresh temporary folder otherwise, removed after).
+    progress : told the job's size before it starts, then every :data:`PROGRESS_EVERY` seconds
+        the time step reached and an estimate of the time left (an upper bound: the engine
+        stops early once the fields have decayed).
     """
     engine = find_engine()
+    cells, steps = job_size(job)
+    if progress is not None:
+        progress(f"{label}: {cells:,} cells, at most {steps:,} time steps")
     with tempfile.TemporaryDirectory(prefix="refine-fdtd-") as tmp:
         work = Path(workdir) if workdir is not None else Path(tmp)
         work.mkdir(parents=True, exist_ok=True)
@@ -112,22 +143,39 @@ def run(job: dict, workdir: str | Path | None = None, timeout: float = 6 * 3600)
         job_path.write_text(json.dumps(job))
         out_path.unlink(missing_ok=True)
         t0 = time.perf_counter()
-        try:
-            proc = subprocess.run(
-                [engine.python, str(SCRIPT), str(job_path), str(out_path)],
-                capture_output=True,
-                text=True,
-                timeout=timeout,
-                check=False,
-                cwd=work,
-            )
-        except subprocess.TimeoutExpired as exc:
-            raise EngineFailed(f"the field solve took longer than {timeout:.0f} s") from exc
+        log: list[str] = []
+        with subprocess.Popen(
+            [engine.python, str(SCRIPT), str(job_path), str(out_path)],
+            stdout=subprocess.PIPE,
+            stderr=subprocess.STDOUT,
+            text=True,
+            cwd=work,
+        ) as proc:
+            assert proc.stdout is not None
+            last = t0
+            for line in proc.stdout:
+                log.append(line)
+                now = time.perf_counter()
+                if now - t0 > timeout:
+                    proc.kill()
+                    raise EngineFailed(f"the field solve took longer than {timeout:.0f} s")
+                m = _STEP.search(line)
+                if progress is not None and m and now - last >= PROGRESS_EVERY:
+                    last = now
+                    done = int(m.group(1))
+                    left = (now - t0) * max(steps - done, 0) / max(done, 1)
+                    progress(
+                        f"  {label}: time step {done:,} of at most {steps:,} "
+                        f"({100 * done / max(steps, 1):.0f} %), {now - t0:.0f} s, "
+                        f"at most about {left:.0f} s left"
+                    )
+            returncode = proc.wait()
         seconds = time.perf_counter() - t0
-        (work / "engine.log").write_text(proc.stdout + proc.stderr)
-        if proc.returncode != 0 or not out_path.exists():
-            tail = "\n".join((proc.stdout + proc.stderr).strip().splitlines()[-15:])
-            raise EngineFailed(f"the field solve failed (exit {proc.returncode}):\n{tail}")
+        text = "".join(log)
+        (work / "engine.log").write_text(text)
+        if returncode != 0 or not out_path.exists():
+            tail = "\n".join(text.strip().splitlines()[-15:])
+            raise EngineFailed(f"the field solve failed (exit {returncode}):\n{tail}")
         with np.load(out_path) as data:
             result = {k: data[k] for k in data.files}
     result["seconds"] = seconds

@@ -11,6 +11,7 @@ from pathlib import Path
 from refine.fullwave.verify import FieldCheck
 from refine.outputs import export, plot
 from refine.outputs.files import locked_folder
+from refine.outputs.report import VERDICT_END, VERDICT_START, combined_verdict
 
 FILES = ("fullwave.s2p", "fullwave.png", "fullwave.json", "fullwave.md")
 SECTION = "## Field-solver check"
@@ -129,14 +130,27 @@ def _write_check(c: FieldCheck, out: Path) -> list[Path]:
     md = section_md(c)
     written.append(export.write_text_atomic(out / "fullwave.md", f"# {p.name}\n\n{md}"))
     report = out / "report.md"
+    summary = out / "summary.json"
+    data = json.loads(summary.read_text()) if summary.exists() else None
     if report.exists():
         text = report.read_text()
         pattern = re.compile(rf"^{re.escape(SECTION)}\n.*?(?=^## |\Z)", re.S | re.M)
         text = pattern.sub("", text).rstrip("\n") + "\n\n" + md
+        if data is not None and VERDICT_START in text and VERDICT_END in text:
+            # one verdict at the top, circuit model and field solver side by side
+            head, rest = text.split(VERDICT_START, 1)
+            _, tail = rest.split(VERDICT_END, 1)
+            both = combined_verdict(
+                bool(data["meets_mask"]),
+                float(data["worst_margin_db"]),
+                comp.em_mask.passed,
+                comp.em_mask.worst_margin,
+                c.mesh,
+            )
+            text = f"{head}{VERDICT_START}\n{both}\n{VERDICT_END}{tail}"
         written.append(export.write_text_atomic(report, text))
-    summary = out / "summary.json"
-    if summary.exists():
-        data = json.loads(summary.read_text())
+    if data is not None:
         data["field_solver"] = check_dict(c)
+        data["meets_mask_on_field_solver"] = comp.em_mask.passed
         written.append(export.write_json(summary, data))
     return written

@@ -63,6 +63,7 @@ def solve(
     workdir: str | Path | None = None,
     threads: int = 0,
     lossy: bool = True,
+    progress: engine.Progress | None = None,
 ) -> FieldSolve:
     """Field-solve a structure; see :mod:`refine.fullwave.geometry` for the model.
 
@@ -81,7 +82,7 @@ def solve(
 
     thru_st = st.thru(far_edge=float(mesh.y[-1]))
     jt = geometry.job(thru_st, mesh, substrate, band, f, base, 1, threads, lossy)
-    rt = engine.run(jt, sub("thru"))
+    rt = engine.run(jt, sub("thru"), progress=progress, label="thru run")
     zc = {1: rt["zc1"], 2: rt["zc2"]}
     beta = {1: rt["beta1"], 2: rt["beta2"]}
     if st.feeds[0].axis != st.feeds[1].axis or st.feeds[1].axis == "y":
@@ -90,7 +91,7 @@ def solve(
     states = []
     for k in (1,) if st.symmetric else (1, 2):
         jd = geometry.job(st, mesh, substrate, band, f, base + ringing, k, threads, lossy)
-        r = engine.run(jd, sub(f"excite-{k}"))
+        r = engine.run(jd, sub(f"excite-{k}"), progress=progress, label=f"excitation {k}")
         runs += 1
         seconds += float(r["seconds"])
         tail = max(tail, float(r[f"tail{k}"]))

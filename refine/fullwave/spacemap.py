@@ -380,7 +380,7 @@ def correct(
     notes: list[str] = []
     for k in range(max_runs):
         wd = Path(workdir) / f"round-{k + 1}" if workdir is not None else None
-        c = verify.check_layout(problem, cur, mesh, wd)
+        c = verify.check_layout(problem, cur, mesh, wd, progress=progress)
         checks.append(c)
         say(
             f"field solve {k + 1}: worst mask margin {c.comparison.em_mask.worst_margin:+.2f} dB, "

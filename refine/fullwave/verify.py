@@ -16,7 +16,7 @@ from numpy.typing import NDArray
 
 from refine import _validate as v
 from refine.circuit.layout import Layout
-from refine.fullwave import compare, geometry, solve, waves
+from refine.fullwave import compare, engine, geometry, solve, waves
 from refine.outputs.files import evaluate_layout
 from refine.spec.problem import Problem
 
@@ -94,8 +94,10 @@ def check_layout(
     workdir: str | Path | None = None,
     threads: int = 0,
     lossy: bool = True,
+    progress: engine.Progress | None = None,
 ) -> FieldCheck:
-    """Field-solve a layout on its problem's substrate and compare with the circuit model.
+    """Field-solve a layout on its problem's substrate and compare with the circuit model;
+    ``progress`` receives a line before each engine run and while it runs.
 
     lossy False: PEC strips on a lossless substrate in the field solver (a diagnostic: the
     circuit model keeps its losses)."""
@@ -114,7 +116,9 @@ def check_layout(
         length = geometry.feed_length(sub, layout.feed_width, band[1], res)
         st = geometry.layout_structure(layout, sub, length)
         wd = Path(workdir) / f"mesh-{k}" if workdir is not None else None
-        solves.append(solve.solve(st, sub, f, problem.z_ref, res, ring, band, wd, threads, lossy))
+        solves.append(
+            solve.solve(st, sub, f, problem.z_ref, res, ring, band, wd, threads, lossy, progress)
+        )
     s_em = solves[-1].s
     comp = compare.compare(f, s_em, s_model, problem.mask)
     extra = None

@@ -206,6 +206,43 @@ def field_verdicts(r: RefineResult) -> list[dict]:
     return layout_verdicts(r.layout, r.problem.substrate)
 
 
+VERDICT_START = "<!-- verdict:start -->"
+VERDICT_END = "<!-- verdict:end -->"
+
+
+def combined_verdict(
+    circuit_met: bool, circuit_margin: float, field_met: bool, field_margin: float, mesh: str
+) -> str:
+    """The report's one verdict once a field-solver check has run: both results side by side,
+    and a headline that neither contradicts."""
+    if circuit_met and field_met:
+        head = "**The design meets the mask on the circuit model and on the field solver.**"
+    elif circuit_met:
+        head = (
+            "**NOT MET ON THE FIELD SOLVER: the circuit model meets the mask, the field-solver "
+            "check does not.** Treat the design as not met until a finer check or a measurement "
+            "says otherwise."
+        )
+    elif field_met:
+        head = (
+            "**NOT MET on the circuit model; the field-solver check meets the mask.** The two "
+            "models disagree: do not rely on either alone."
+        )
+    else:
+        head = "**NOT MET on the circuit model nor on the field solver.**"
+    return "\n".join(
+        [
+            head,
+            "",
+            "| model | mask | worst margin |",
+            "|---|---|---|",
+            f"| circuit model | {'met' if circuit_met else 'NOT met'} | {circuit_margin:+.2f} dB |",
+            f"| field solver (mesh `{mesh}`) | {'met' if field_met else 'NOT met'} | "
+            f"{field_margin:+.2f} dB |",
+        ]
+    )
+
+
 def report_md(
     r: RefineResult, sd: job.Seed, spread: dict, power_w: float, warnings_: list[str]
 ) -> str:
@@ -217,7 +254,9 @@ def report_md(
         Status.INFEASIBLE: "**INFEASIBLE: no design meeting the mask exists under these fab rules** (see the diagnosis). The outputs describe the best design found.",
     }[r.status]
     lines += [
+        VERDICT_START,
         verdict,
+        VERDICT_END,
         "",
         f"Worst margin {r.worst_margin:+.2f} dB on the verification grid (closed-form seed {r.seed_worst_margin:+.2f} dB); "
         f"{r.evaluations} evaluations, {r.wall_time:.1f} s, strategy `{r.strategy}`.",
