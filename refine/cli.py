@@ -7,7 +7,8 @@ Verbs
 ``refine fullwave LAYOUT --problem PROBLEM``  full-wave check of a layout (needs openEMS).
 
 Exit codes: 0 mask met; 1 completed but the mask is not met; 2 bad input (message, no
-traceback); 3 internal error; 130 interrupted.
+traceback); 3 internal error; 4 a field-solver check that cannot tell within its mesh
+uncertainty; 130 interrupted.
 
 Only the parser is loaded at start-up; a verb's modules (numpy, scipy, nlopt, matplotlib, the
 models) load when it runs, so ``refine --help`` and a mistyped option answer at once.
@@ -47,8 +48,8 @@ def build_parser() -> argparse.ArgumentParser:
         help="the main job: seed, diagnose, refine, verify",
         description="Closed-form seed, feasibility diagnosis, refinement under the fab rules, "
         "verification on a dense grid; prints the summary. Exit code 0 when the mask is met, 1 "
-        "when it is not (with the diagnosis) or when --fullwave's field-solver check does not "
-        "meet it, 2 on bad input.",
+        "when it is not (with the diagnosis) or when --fullwave's field-solver check shows it not "
+        "met beyond its mesh uncertainty, 4 when that check cannot tell, 2 on bad input.",
     )
     p.add_argument("problem", help="problem file (TOML)")
     p.add_argument(
@@ -101,9 +102,10 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p.add_argument(
         "--fullwave",
-        choices=["coarse", "fine", "converged"],
+        choices=["pair", "converged", "coarse", "fine"],
         help="after writing the outputs, check the layout with the field solver (openEMS) on "
-        "this mesh and add the comparison to the report (minutes per run)",
+        "these meshes and add the comparison to the report (see refine fullwave --help; "
+        "minutes to hours)",
     )
     p.set_defaults(run="design")
     p = sub.add_parser(
@@ -167,16 +169,19 @@ def build_parser() -> argparse.ArgumentParser:
         "engine openEMS and compare with the circuit model: writes fullwave.s2p, fullwave.png "
         "(overlay with the mask), fullwave.json and fullwave.md, and adds the comparison to "
         "report.md and summary.json when DIR holds a design. Exit code 0 when the field-solver "
-        "response meets the mask, 1 when not, 2 on bad input or a missing engine.",
+        "response meets the mask beyond its mesh uncertainty, 1 when it does not beyond it, 4 "
+        "when the meshes cannot tell, 2 on bad input or a missing engine.",
     )
     p.add_argument("layout", help="layout file (JSON)")
     p.add_argument("--problem", required=True, help="problem file (TOML)")
     p.add_argument(
         "--mesh",
-        choices=["coarse", "fine", "converged"],
-        default="coarse",
-        help="coarse (50 um edge cells), fine (25 um), or converged (three meshes, "
-        "extrapolated); default: %(default)s",
+        choices=["pair", "converged", "coarse", "fine"],
+        default="pair",
+        help="pair: two meshes (edge cells 50 um, or half the smallest gap, and half that), "
+        "whose difference estimates the error; converged: three meshes, extrapolated; coarse "
+        "(50 um) or fine (25 um): one mesh, whose verdict is always undecided; default: "
+        "%(default)s",
     )
     p.add_argument(
         "--correct",

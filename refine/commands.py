@@ -15,6 +15,7 @@ from pathlib import Path
 from refine import study
 from refine.circuit.response import evaluate_electrical, evaluate_layout, verification_grid
 from refine.fullwave import engine, handover, spacemap, verify
+from refine.fullwave.uncertainty import MeshVerdict
 from refine.optimise import seed as job
 from refine.optimise.minimax import Stopping, Strategy
 from refine.optimise.refiner import RefineResult, Status, refine_problem
@@ -388,15 +389,18 @@ def _cmd_design(args: argparse.Namespace) -> int:
                 f"{check.runs} engine runs, {check.seconds:.0f} s: {check.comparison.summary_line()}"
             )
             print("wrote " + ", ".join(w.name for w in written))
-            em = check.comparison.em_mask
             print(
                 f"verdict: circuit model {'met' if r.status is Status.MET else 'NOT met'} "
                 f"({r.worst_margin:+.2f} dB); field solver, mesh {args.fullwave}: "
-                f"{'met' if em.passed else 'NOT met'} ({em.worst_margin:+.2f} dB)"
+                f"{check.verdict_sentence()}"
             )
-            if not em.passed:
-                return 1  # a design the field solver rejects is not met, whatever the model says
+            if r.status is Status.MET:  # the field solver's verdict decides a met design
+                return FIELD_EXIT[check.verdict]
     return 0 if r.status is Status.MET else 1
+
+
+# exit codes of a field check: met / not met beyond the mesh uncertainty, undecided at the mesh
+FIELD_EXIT = {MeshVerdict.MET: 0, MeshVerdict.NOT_MET: 1, MeshVerdict.UNDECIDED: 4}
 
 
 def _say(line: str) -> None:
@@ -604,8 +608,9 @@ def _cmd_fullwave(args: argparse.Namespace) -> int:
     print(f"{check.runs} engine runs, {check.seconds:.0f} s")
     print(_table(["figure", "field solver", "circuit model"], check.comparison.rows()))
     print(check.comparison.summary_line())
+    print(f"verdict: {check.verdict_sentence()}")
     print(f"wrote {len(written)} files to {out}: " + ", ".join(w.name for w in written))
-    return 0 if check.comparison.em_mask.passed else 1
+    return FIELD_EXIT[check.verdict]
 
 
 COMMANDS = {

@@ -447,19 +447,27 @@ def _stand_in(monkeypatch):
 
     monkeypatch.setattr(engine, "find_engine", lambda: engine.Engine("python3", "openEMS test"))
 
-    def fake_check(problem, layout, mesh="coarse", workdir=None, threads=0, progress=None):
-        fine = replace(problem, substrate=replace(problem.substrate, eps_r=10.1))
+    def fake_check(problem, layout, mesh="pair", workdir=None, threads=0, progress=None):
+        # two "meshes": eps_r 10.104 on the coarse one, 10.1 on the fine one (a small mesh
+        # uncertainty, so that the verdicts are decided)
         f = verify.em_frequencies(problem)
-        s_f = evaluate_layout(fine, layout, f)
         s_c = evaluate_layout(problem, layout, f)
-        res = geometry.MESHES["coarse"]
-        st_ = geometry.layout_structure(layout, problem.substrate, 5e-3)
-        m = geometry.build_mesh(st_, problem.substrate, f.max(), res)
-        fs = solve.FieldSolve(
-            f, s_f, None, problem.z_ref, None, None, m, res, 2, 1.5, 1e-4, "openEMS test"
+        comps, solves = [], []
+        for eps, res in ((10.104, geometry.MESHES["coarse"]), (10.1, geometry.MESHES["fine"])):
+            other = replace(problem, substrate=replace(problem.substrate, eps_r=eps))
+            s_f = evaluate_layout(other, layout, f)
+            st_ = geometry.layout_structure(layout, problem.substrate, 5e-3)
+            m = geometry.build_mesh(st_, problem.substrate, f.max(), res)
+            solves.append(
+                solve.FieldSolve(
+                    f, s_f, None, problem.z_ref, None, None, m, res, 2, 1.5, 1e-4, "openEMS test"
+                )
+            )
+            comps.append(compare.compare(f, s_f, s_c, problem.mask))
+        figures = verify.mesh_figures([50e-6, 25e-6], comps)
+        return verify.FieldCheck(
+            problem, layout, mesh, f, s_f, s_c, comps[-1], tuple(solves), None, figures
         )
-        comp = compare.compare(f, s_f, s_c, problem.mask)
-        return verify.FieldCheck(problem, layout, mesh, f, s_f, s_c, comp, (fs,), None)
 
     monkeypatch.setattr(verify, "check_layout", fake_check)
 
@@ -523,13 +531,15 @@ def test_design_with_fullwave_puts_the_comparison_in_the_report(monkeypatch, tmp
     _stand_in(monkeypatch)
     out = tmp_path / "out"
     assert main(["design", str(TAP_PROBLEM), "--out", str(out), "--fullwave", "coarse"]) == 1
-    assert "field solver, mesh coarse: NOT met" in capsys.readouterr().out
+    assert "field solver, mesh coarse: not met beyond the mesh uncertainty" in (
+        capsys.readouterr().out
+    )
     report = (out / "report.md").read_text()
     assert "## Field-solver check" in report and "mask NOT met on the field solver" in report
     top = report.split("## Specification")[0]
     assert "NOT MET ON THE FIELD SOLVER" in top and "The refined design meets the mask" not in top
     assert "| circuit model | met |" in top and "| field solver (mesh `coarse`) | NOT met |" in top
-    assert json.loads((out / "summary.json").read_text())["meets_mask_on_field_solver"] is False
+    assert json.loads((out / "summary.json").read_text())["meets_mask_on_field_solver"] == "not met"
     assert "## Gap models against the field solver" in report
     assert (out / "fullwave.s2p").exists()
 
@@ -546,3 +556,48 @@ def test_job_size_counts_cells_and_courant_steps():
     assert cells == 2 * 3 * 1
     dt = 1.0 / (299_792_458.0 * (1 / 1e-4**2 + 1 / 2e-4**2 + 1 / 5e-5**2) ** 0.5)
     assert steps == pytest.approx(1e-9 / dt, abs=1)
+
+
+def test_mesh_uncertainty_and_the_three_way_verdict():
+    """Two halved meshes: the change is the finer one's error (first order). Three meshes: the
+    observed order (here exactly 1 and 2) gives Richardson's error estimate; a non-monotone
+    ladder gives its largest change. The verdict is decided only outside margin ± uncertainty."""
+    from refine.fullwave import uncertainty as u
+
+    assert u.mesh_uncertainty([50e-6], [1.0]) is None
+    assert u.mesh_uncertainty([50e-6, 25e-6], [1.3, 1.0]) == pytest.approx(0.3)
+    # X(h) = X0 + a h: changes 0.4, 0.2 -> p = 1, error of the finest 0.2
+    assert u.mesh_uncertainty([4.0, 2.0, 1.0], [1.8, 1.4, 1.2]) == pytest.approx(0.2)
+    # X(h) = X0 + a h²: changes 0.48, 0.12 -> p = 2, error 0.12 / 3
+    assert u.mesh_uncertainty([4.0, 2.0, 1.0], [1.64, 1.16, 1.04]) == pytest.approx(0.04)
+    assert u.mesh_uncertainty([4.0, 2.0, 1.0], [1.0, 1.5, 1.2]) == pytest.approx(0.5)
+    fig = lambda m, unc: u.Figure("worst mask margin", "dB", (m,), unc)  # noqa: E731
+    assert u.verdict(fig(0.5, 0.3)) is u.MeshVerdict.MET
+    assert u.verdict(fig(-0.5, 0.3)) is u.MeshVerdict.NOT_MET
+    assert u.verdict(fig(0.2, 0.3)) is u.MeshVerdict.UNDECIDED
+    assert u.verdict(fig(-0.2, 0.3)) is u.MeshVerdict.UNDECIDED
+    assert u.verdict(fig(5.0, None)) is u.MeshVerdict.UNDECIDED  # one mesh never decides
+    assert "12.5 um" in u.sentence(fig(0.2, 0.3), 25e-6)
+
+
+def test_one_mesh_check_is_undecided_and_exits_4(monkeypatch, tmp_path, capsys):
+    """A check on one mesh cannot bound its error: the command says undecided, names the mesh
+    that would decide, and exits 4 (neither met nor not met)."""
+    out = tmp_path / "out"
+    assert main(["design", str(TAP_PROBLEM), "--out", str(out)]) == 0
+    _stand_in(monkeypatch)
+    inner = verify.check_layout
+
+    def one_mesh(*args, **kwargs):
+        c = inner(*args, **kwargs)
+        return replace(c, figures=(), solves=c.solves[-1:])
+
+    monkeypatch.setattr(verify, "check_layout", one_mesh)
+    code = main(
+        ["fullwave", str(out / "layout.json"), "--problem", str(TAP_PROBLEM), "--mesh", "fine"]
+    )
+    assert code == 4
+    text = capsys.readouterr().out
+    assert "undecided at this mesh" in text and "12.5 um" in text
+    data = json.loads((out / "summary.json").read_text())
+    assert data["meets_mask_on_field_solver"] == "undecided"

@@ -8,11 +8,17 @@ import json
 import re
 from pathlib import Path
 
+from refine.fullwave.uncertainty import MeshVerdict
 from refine.fullwave.verify import FieldCheck
 from refine.outputs import export, plot
 from refine.outputs.files import locked_folder
 from refine.outputs.report import VERDICT_END, VERDICT_START, combined_verdict
 
+FIELD_STATE = {
+    MeshVerdict.MET: "met",
+    MeshVerdict.NOT_MET: "not met",
+    MeshVerdict.UNDECIDED: "undecided",
+}
 FILES = ("fullwave.s2p", "fullwave.png", "fullwave.json", "fullwave.md")
 SECTION = "## Field-solver check"
 
@@ -48,6 +54,16 @@ def check_dict(c: FieldCheck) -> dict:
             "circuit_model": {"passed": comp.model_mask.passed, "worst": comp.model_mask.worst},
         },
         "extrapolated": c.extrapolated,
+        "mesh_verdict": c.verdict.name.lower().replace("_", " "),
+        "mesh_figures": [
+            {
+                "figure": fig.name,
+                "unit": fig.unit,
+                "per_mesh": list(fig.per_mesh),
+                "uncertainty": fig.uncertainty,
+            }
+            for fig in c.figures
+        ],
     }
 
 
@@ -63,12 +79,29 @@ def section_md(c: FieldCheck) -> str:
         f"the finest), {c.runs} engine runs in {c.seconds:.0f} s. Strips are zero-thickness "
         "sheets; dielectric loss at the band centre; reference planes as in the circuit model.",
         "",
-        f"**{comp.summary_line()}.**",
+        f"**Verdict: {c.verdict_sentence()}.**",
+        "",
+        f"{comp.summary_line()}.",
         "",
         "| figure | field solver | circuit model |",
         "|---|---|---|",
     ]
     lines += [f"| {a} | {b} | {m} |" for a, b, m in comp.rows()]
+    if len(c.figures) and len(c.figures[0].per_mesh) > 1:
+        scale = {"Hz": (1e-6, "MHz"), "dB": (1.0, "dB")}
+        lines += [
+            "",
+            "Mesh uncertainty (edge cells " + cells + " um, coarsest first; the uncertainty is "
+            "the finest mesh's estimated error):",
+            "",
+            "| figure | per mesh | uncertainty |",
+            "|---|---|---|",
+        ]
+        for fig in c.figures:
+            k, unit = scale.get(fig.unit, (1.0, fig.unit))
+            per = ", ".join(f"{x * k:.2f}" for x in fig.per_mesh)
+            unc = "—" if fig.uncertainty is None else f"± {fig.uncertainty * k:.2f} {unit}"
+            lines.append(f"| {fig.name} | {per} {unit} | {unc} |")
     if c.extrapolated:
         lines += [
             "",
@@ -140,17 +173,19 @@ def _write_check(c: FieldCheck, out: Path) -> list[Path]:
             # one verdict at the top, circuit model and field solver side by side
             head, rest = text.split(VERDICT_START, 1)
             _, tail = rest.split(VERDICT_END, 1)
+            margin = c.figure("worst mask margin")
             both = combined_verdict(
                 bool(data["meets_mask"]),
                 float(data["worst_margin_db"]),
-                comp.em_mask.passed,
-                comp.em_mask.worst_margin,
+                FIELD_STATE[c.verdict],
+                f"{margin.value:+.2f} dB"
+                + ("" if margin.uncertainty is None else f" ± {margin.uncertainty:.2f} dB"),
                 c.mesh,
             )
             text = f"{head}{VERDICT_START}\n{both}\n{VERDICT_END}{tail}"
         written.append(export.write_text_atomic(report, text))
     if data is not None:
         data["field_solver"] = check_dict(c)
-        data["meets_mask_on_field_solver"] = comp.em_mask.passed
+        data["meets_mask_on_field_solver"] = FIELD_STATE[c.verdict]
         written.append(export.write_json(summary, data))
     return written

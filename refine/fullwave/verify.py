@@ -1,9 +1,12 @@
 """Field-solver check of a layout against its problem: EM response, circuit-model response on
 the same frequencies, and the comparison figures.
 
-Mesh choices: "coarse" (50 µm edge cells, or half the smallest gap), "fine" (25 µm), or
-"converged": three meshes halving from the coarse one, the comparison figures extrapolated to
-zero cell size (Richardson) and the S-parameters those of the finest mesh.
+Mesh choices: "pair" (the default: the coarse mesh and one with half its edge cells, whose
+difference estimates the finer one's error), "converged" (three meshes halving from the coarse
+one, the comparison figures extrapolated to zero cell size by Richardson), or one mesh alone,
+"coarse" (50 µm edge cells, or half the smallest gap) or "fine" (25 µm), whose verdict is then
+always undecided (see :mod:`refine.fullwave.uncertainty`). The S-parameters are the finest
+mesh's.
 """
 
 from __future__ import annotations
@@ -16,11 +19,11 @@ from numpy.typing import NDArray
 
 from refine import _validate as v
 from refine.circuit.layout import Layout
-from refine.fullwave import compare, engine, geometry, solve, waves
+from refine.fullwave import compare, engine, geometry, solve, uncertainty, waves
 from refine.outputs.files import evaluate_layout
 from refine.spec.problem import Problem
 
-MESH_CHOICES = ("coarse", "fine", "converged")
+MESH_CHOICES = ("pair", "converged", "coarse", "fine")
 
 
 class FieldCheckError(ValueError):
@@ -68,6 +71,32 @@ class FieldCheck:
     comparison: compare.Comparison
     solves: tuple[solve.FieldSolve, ...]
     extrapolated: dict[str, float] | None
+    figures: tuple[uncertainty.Figure, ...] = ()  # per mesh, with the finest mesh's uncertainty
+
+    def figure(self, name: str) -> uncertainty.Figure:
+        """A comparison figure with its mesh uncertainty ("worst mask margin", "centre",
+        "3 dB bandwidth", "worst in-band return loss"); one mesh's value, no uncertainty, when
+        the check did not record it."""
+        for fig in self.figures:
+            if fig.name == name:
+                return fig
+        em = self.comparison.em
+        value = {
+            "worst mask margin": self.comparison.em_mask.worst_margin,
+            "centre": em.centre,
+            "3 dB bandwidth": em.bandwidth,
+            "worst in-band return loss": em.worst_return_loss,
+        }[name]
+        return uncertainty.Figure(name, "", (value,), None)
+
+    @property
+    def verdict(self) -> uncertainty.MeshVerdict:
+        """Met / not met beyond the mesh uncertainty, or undecided at this mesh."""
+        return uncertainty.verdict(self.figure("worst mask margin"))
+
+    def verdict_sentence(self) -> str:
+        cell = self.solves[-1].resolution.edge_cell if self.solves else 50e-6
+        return uncertainty.sentence(self.figure("worst mask margin"), cell)
 
     @property
     def seconds(self) -> float:
@@ -80,10 +109,10 @@ class FieldCheck:
 
 def resolutions(mesh: str, layout: Layout) -> list[geometry.Resolution]:
     v.one_of("mesh", mesh, MESH_CHOICES)
-    if mesh == "converged":
+    if mesh in ("pair", "converged"):
         d = min(geometry.MESHES["coarse"].edge_cell, 0.5 * min(layout.gaps))
-        base = geometry.Resolution("converged", d)
-        return [base, base.halved(1), base.halved(2)]
+        base = geometry.Resolution(mesh, d)
+        return [base.halved(k) for k in range(2 if mesh == "pair" else 3)]
     return [geometry.MESHES[mesh]]
 
 
@@ -122,9 +151,10 @@ def check_layout(
     s_em = solves[-1].s
     comp = compare.compare(f, s_em, s_model, problem.mask)
     extra = None
+    figs = [compare.compare(f, s.s, s_model, problem.mask) for s in solves]
+    cells = [s.resolution.edge_cell for s in solves]
+    figures = mesh_figures(cells, figs)
     if len(solves) == 3:
-        figs = [compare.compare(f, s.s, s_model, problem.mask) for s in solves]
-        cells = [s.resolution.edge_cell for s in solves]
         extra = {
             "centre": waves.richardson(cells, [c.em.centre for c in figs]).value,
             "bandwidth": waves.richardson(cells, [c.em.bandwidth for c in figs]).value,
@@ -132,4 +162,24 @@ def check_layout(
                 cells, [c.em.worst_return_loss for c in figs]
             ).value,
         }
-    return FieldCheck(problem, layout, mesh, f, s_em, s_model, comp, tuple(solves), extra)
+    return FieldCheck(problem, layout, mesh, f, s_em, s_model, comp, tuple(solves), extra, figures)
+
+
+def mesh_figures(
+    cells: list[float], comparisons: list[compare.Comparison]
+) -> tuple[uncertainty.Figure, ...]:
+    """The figures a verdict rests on, per mesh (coarsest first), with the finest mesh's
+    uncertainty estimated from them."""
+    pick = {
+        "centre": ("Hz", lambda c: c.em.centre),
+        "3 dB bandwidth": ("Hz", lambda c: c.em.bandwidth),
+        "worst in-band return loss": ("dB", lambda c: c.em.worst_return_loss),
+        "worst mask margin": ("dB", lambda c: c.em_mask.worst_margin),
+    }
+    out = []
+    for name, (unit, get) in pick.items():
+        values = tuple(float(get(c)) for c in comparisons)
+        out.append(
+            uncertainty.Figure(name, unit, values, uncertainty.mesh_uncertainty(cells, values))
+        )
+    return tuple(out)

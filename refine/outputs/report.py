@@ -211,25 +211,32 @@ VERDICT_END = "<!-- verdict:end -->"
 
 
 def combined_verdict(
-    circuit_met: bool, circuit_margin: float, field_met: bool, field_margin: float, mesh: str
+    circuit_met: bool, circuit_margin: float, field: str, field_margin: str, mesh: str
 ) -> str:
     """The report's one verdict once a field-solver check has run: both results side by side,
-    and a headline that neither contradicts."""
-    if circuit_met and field_met:
+    and a headline that neither contradicts. ``field`` is "met", "not met" or "undecided" (beyond
+    or within the mesh uncertainty); ``field_margin`` its worst margin as text."""
+    if circuit_met and field == "met":
         head = "**The design meets the mask on the circuit model and on the field solver.**"
+    elif circuit_met and field == "undecided":
+        head = (
+            "**UNDECIDED ON THE FIELD SOLVER: the circuit model meets the mask; the field-solver "
+            "check cannot tell within its mesh uncertainty.** A finer mesh would decide."
+        )
     elif circuit_met:
         head = (
             "**NOT MET ON THE FIELD SOLVER: the circuit model meets the mask, the field-solver "
             "check does not.** Treat the design as not met until a finer check or a measurement "
             "says otherwise."
         )
-    elif field_met:
+    elif field == "met":
         head = (
             "**NOT MET on the circuit model; the field-solver check meets the mask.** The two "
             "models disagree: do not rely on either alone."
         )
     else:
-        head = "**NOT MET on the circuit model nor on the field solver.**"
+        head = "**NOT MET on the circuit model; the field solver does not show it met either.**"
+    label = {"met": "met", "not met": "NOT met", "undecided": "undecided"}[field]
     return "\n".join(
         [
             head,
@@ -237,8 +244,7 @@ def combined_verdict(
             "| model | mask | worst margin |",
             "|---|---|---|",
             f"| circuit model | {'met' if circuit_met else 'NOT met'} | {circuit_margin:+.2f} dB |",
-            f"| field solver (mesh `{mesh}`) | {'met' if field_met else 'NOT met'} | "
-            f"{field_margin:+.2f} dB |",
+            f"| field solver (mesh `{mesh}`) | {label} | {field_margin} |",
         ]
     )
 
