@@ -22,6 +22,8 @@ import sys
 import warnings
 from pathlib import Path
 
+from readme_block import replace_block
+
 from refine.optimise.minimax import Stopping, Strategy
 from refine.optimise.refiner import Status, refine_problem
 from refine.spec.problem import load_problem
@@ -118,15 +120,8 @@ def main(argv: list[str] | None = None) -> int:
             f"| slowest for refine: {slowest[1]} | {slowest[2]} evaluations, {slowest[0]:.1f} s, "
             f"{'met' if slowest[3] else 'not met'} | {'met' if slowest[4] else 'not met'} |",
         ]
-        readme = ROOT / "README.md"
-        old = readme.read_text()
-        a, b = "<!-- refiner-speed:start -->", "<!-- refiner-speed:end -->"
-        if a not in old or b not in old:
-            raise SystemExit(f"README.md has no {a} ... {b} block; nothing was changed")
-        head, rest = old.split(a, 1)
-        _, tail = rest.split(b, 1)
         stamp = f"`python benchmarks/refiner.py --readme` wrote this table ({n} feasible problems)"
-        readme.write_text(f"{head}{a}\n{stamp}:\n\n" + "\n".join(rows) + f"\n{b}{tail}")
+        replace_block("refiner-speed", f"{stamp}:\n\n" + "\n".join(rows))
     return 0
 
 

@@ -15,6 +15,8 @@ import tempfile
 import time
 from pathlib import Path
 
+from readme_block import replace_block
+
 from refine import study
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -68,18 +70,11 @@ def main() -> int:
         print(f"{label:<30} {t:7.1f} s   speed-up {base / t:4.2f}x   rows identical: {same}")
         parts.append(f"{label} {t:.1f} s" + ("" if t == base else f" ({base / t:.2f}×)"))
     if "--readme" in sys.argv[1:]:
-        readme = ROOT / "README.md"
-        old = readme.read_text()
-        a, b = "<!-- study-speed:start -->", "<!-- study-speed:end -->"
-        if a not in old or b not in old:
-            raise SystemExit(f"README.md has no {a} ... {b} block; nothing was changed")
-        head, rest = old.split(a, 1)
-        _, tail = rest.split(b, 1)
         line = (
             "`python benchmarks/study.py --readme` (the 40-design study, side by side in one "
             f"run): {', '.join(parts)}; rows " + ("identical." if all_same else "NOT identical.")
         )
-        readme.write_text(f"{head}{a}\n{line}\n{b}{tail}")
+        replace_block("study-speed", line)
     return 0
 
 

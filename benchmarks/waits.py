@@ -32,6 +32,7 @@ import warnings
 from pathlib import Path
 
 import numpy as np
+from readme_block import replace_block
 
 from refine import load_problem, seed
 from refine.circuit.model import strip_model_for
@@ -144,15 +145,8 @@ def main(argv: list[str] | None = None) -> int:
     text = table(rows())
     print(text)
     if args.readme:
-        readme = ROOT / "README.md"
-        old = readme.read_text()
-        a, b = "<!-- speed:start -->", "<!-- speed:end -->"
-        if a not in old or b not in old:
-            raise SystemExit(f"README.md has no {a} ... {b} block; nothing was changed")
-        head, rest = old.split(a, 1)
-        _, tail = rest.split(b, 1)
         stamp = "`python benchmarks/waits.py --readme` wrote this table"
-        readme.write_text(f"{head}{a}\n{stamp}:\n\n{text}\n{b}{tail}")
+        replace_block("speed", f"{stamp}:\n\n{text}")
     return 0
 
 
