@@ -244,3 +244,47 @@ def test_problem_file_can_hold_the_resonators_at_the_feed_width():
     assert all(w == r.layout.feed_width for w in r.layout.widths)
     free = refine_problem(p, stopping=Stopping(target_margin_db=1.0))
     assert any(w > 1.2 * free.layout.feed_width for w in free.layout.widths)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize(
+    "path",
+    [p for p in PROBLEMS if load_problem(p).resonator_width == "free"],
+    ids=lambda p: p.stem,
+)
+def test_refined_widths_stay_inside_the_gap_models_range(path):
+    """With [resonators] width = "free" the refiner keeps every resonator inside the W/h range
+    its gap model states (or at the feed width when the feed itself is outside it)."""
+    r = _result(path)
+    p = r.problem
+    rng = p.width_range
+    if rng is None or r.layout is None:
+        return
+    h = p.strip_substrate.height
+    lo = min(rng[0] * h, r.layout.feed_width)
+    hi = max(rng[1] * h, r.layout.feed_width)
+    assert all(lo * (1 - 1e-9) <= w <= hi * (1 + 1e-9) for w in r.layout.widths), (
+        [w / h for w in r.layout.widths],
+        rng,
+    )
+
+
+def test_width_range_bounds_the_design_space():
+    """layout_space intersects the width bounds with the model's range (in W/h)."""
+    from refine.optimise.space import layout_space
+
+    p = load_problem(PROBLEMS[0].parent / "microstrip-x-band-alumina-n3.toml")
+    sd = job.seed(p)
+    lay = sd.strip_realisation.layout
+    from refine.circuit.model import strip_model_for
+    from refine.circuit.response import strip_medium_for
+
+    model = strip_model_for(strip_medium_for(p), p.gap_model, p.z_ref, lay, np.array([p.f0]), True)
+    h = p.strip_substrate.height
+    free = layout_space(p.fab, h, model, lay)
+    inside = layout_space(p.fab, h, model, lay, width_range=(0.5, 2.0))
+    w_free = [v for v in free.variables if v.name.startswith("width")]
+    w_in = [v for v in inside.variables if v.name.startswith("width")]
+    assert max(v.upper for v in w_free) == pytest.approx(3 * lay.feed_width)
+    assert max(v.upper for v in w_in) == pytest.approx(2.0 * h)
+    assert p.width_range == (0.5, 2.0)  # Garg–Bahl's fitted W/h range

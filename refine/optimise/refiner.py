@@ -179,7 +179,9 @@ def refine_problem(
     if problem.mask.max_insertion_loss_db is not None:
         f_opt = np.unique(np.append(f_opt, problem.mask.midband))
     model = factory(f_opt)
-    space = layout_space(fab, problem.strip_substrate.height, model, seed_layout)
+    space = layout_space(
+        fab, problem.strip_substrate.height, model, seed_layout, width_range=problem.width_range
+    )
     p_seed = model.vector(seed_layout)
     seed_res, _ = _verify(problem, factory, p_seed)
     extra = _length_constraint(problem, model, space)

@@ -172,10 +172,13 @@ def layout_space(
     model: StripFilterModel,
     seed: Layout,
     symmetric: bool = True,
+    width_range: tuple[float, float] | None = None,
 ) -> DesignSpace:
     """The refiner's variables for a strip layout: gaps from the shop's minimum to
     max(4 s, 2 h, 2 s_min), lengths ±25/30 %, taps inside the end resonators, widths from
-    max(W_feed/2, W_min) to 3 W_feed; mirror-tied when ``symmetric``."""
+    max(W_feed/2, W_min) to 3 W_feed, and inside ``width_range`` (W/h, the gap model's stated
+    range) when given, though never narrower than the feed allows; mirror-tied when
+    ``symmetric``."""
     p0 = model.vector(seed)
     variables: list[Variable] = []
     gaps, lengths, taps, widths = model.split(p0)
@@ -199,12 +202,16 @@ def layout_space(
         k += 2
     if model.free_widths:
         lo_w = max(0.5 * seed.feed_width, fab.min_width or 0.0)
+        hi_w = 3.0 * seed.feed_width
+        if width_range is not None:  # inside the model's range, but the feed width stays legal
+            lo_w = max(lo_w, min(width_range[0] * height, seed.feed_width))
+            hi_w = min(hi_w, max(width_range[1] * height, seed.feed_width))
+            if fab.grid is not None:  # bounds on the grid, so that snapping stays inside them
+                g = fab.grid
+                lo_w, hi_w = math.ceil(lo_w / g - 1e-9) * g, math.floor(hi_w / g + 1e-9) * g
+        hi_w = max(hi_w, 1.01 * lo_w)
         for j, w in enumerate(widths):
-            variables.append(
-                Variable(
-                    model.names[k + j], max(w, lo_w), lo_w, max(3.0 * seed.feed_width, 1.01 * lo_w)
-                )
-            )
+            variables.append(Variable(model.names[k + j], min(max(w, lo_w), hi_w), lo_w, hi_w))
     return DesignSpace(variables, layout_ties(model) if symmetric else ())
 
 

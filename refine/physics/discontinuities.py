@@ -54,6 +54,8 @@ GB_BLEND_FACTOR = 1.1
 # Garg-Bahl's series capacitance is held at least at this fraction of C_odd/2 (see
 # garg_bahl_gap: the fit goes negative for wide strips, outside its W/h range)
 GB_SERIES_FLOOR = 1e-3
+GB_GAP_WH = (0.5, 2.0)  # Garg–Bahl gap: the W/h range of its fit
+KJK_GAP_WH = (0.1, 3.0)  # Kirschning–Jansen–Koster gap: its stated W/h range
 
 
 class GapCapacitances(NamedTuple):
@@ -107,7 +109,7 @@ def garg_bahl_gap(w: ArrayLike, s: ArrayLike, h: ArrayLike, eps_r: ArrayLike) ->
     w = np.asarray(w)
     s = np.asarray(s)
     h = np.asarray(h, float)
-    validity.check("Garg-Bahl gap", "W/h", np.real(w) / h, 0.5, 2.0)
+    validity.check("Garg-Bahl gap", "W/h", np.real(w) / h, *GB_GAP_WH)
     validity.check("Garg-Bahl gap", "eps_r", eps_r, 2.5, 15.0)
     validity.check("Garg-Bahl gap", "s/W", np.real(s / w), 0.1, 1.0)
     c_odd, c_even = _garg_bahl_raw(w, s, h, eps_r)
@@ -191,8 +193,7 @@ def kirschning_jansen_koster_gap(
         "Kirschning-Jansen-Koster gap",
         "W/h",
         np.concatenate([np.ravel(w1), np.ravel(w2)]) / h,
-        0.1,
-        3.0,
+        *KJK_GAP_WH,
     )
     validity.check("Kirschning-Jansen-Koster gap", "eps_r", eps_r, 6.0, 13.0)
     validity.check("Kirschning-Jansen-Koster gap", "s/h", np.real(s) / h, 0.1, None)

@@ -24,6 +24,12 @@ GAP_MODELS: dict[str, tuple[str, ...]] = {
     "stripline": ("altschuler-oliner",),
 }
 
+# the strip widths (W/h) each gap model was fitted over: the refiner keeps resonators inside
+GAP_MODEL_WH: dict[str, tuple[float, float]] = {
+    "garg-bahl": discontinuities.GB_GAP_WH,
+    "kirschning-jansen-koster": discontinuities.KJK_GAP_WH,
+}
+
 # gap models whose reference planes are at the gap centre (the circuit adds a half-gap line on
 # each side to move them to the strip ends)
 CENTRE_REFERENCED = frozenset({"altschuler-oliner"})

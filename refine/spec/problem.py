@@ -22,8 +22,11 @@ Schema (keys marked * are required)::
     [fab]                                    * for microstrip and stripline
     min_gap *, min_width, grid, gap_tolerance, width_tolerance, max_total_length
     [coupling]  external = "gap" | "tap"     (default "gap")
-    [resonators] width = "free" | "feed"     (default "free": the refiner may widen them;
-                                              "feed": every resonator at the feed line width)
+    [resonators] width = "free" | "feed" | "free-beyond-models"
+                                             (default "free": the refiner may change them within
+                                              the gap model's stated W/h range; "feed": every
+                                              resonator at the feed line width; the last: up to
+                                              three feed widths, outside the model's range)
     [models]    gap = microstrip: "garg-bahl" (default) | "kirschning-jansen-koster";
                       stripline: "altschuler-oliner" (default); not for "ideal"
     [mask]                                   *
@@ -52,7 +55,7 @@ from refine.spec.mask import Mask, Stopband
 MEDIUM_KINDS = ("microstrip", "stripline", "ideal")
 MAX_NAME = 200  # characters of a problem's name (it titles every output file)
 EXTERNAL_KINDS = tuple(c.value for c in Coupling)
-RESONATOR_WIDTHS = ("free", "feed")
+RESONATOR_WIDTHS = ("free", "feed", "free-beyond-models")
 GAP_MODELS = {**strip.GAP_MODELS, "ideal": ()}
 
 
@@ -78,7 +81,8 @@ class Problem:
     gap_model: str
     mask: Mask
     source: str = "<memory>"
-    resonator_width: str = "free"  # "free": refinable; "feed": held at the z_ref line width
+    resonator_width: str = "free"  # refinable within the gap model's range; "feed": z_ref width
+    # ("free-beyond-models": refinable outside the gap model's range too)
 
     @property
     def strip_substrate(self) -> Substrate:
@@ -97,7 +101,15 @@ class Problem:
     @property
     def free_widths(self) -> bool:
         """Whether the refiner may change the resonator widths (strip media)."""
-        return self.resonator_width == "free"
+        return self.resonator_width in ("free", "free-beyond-models")
+
+    @property
+    def width_range(self) -> tuple[float, float] | None:
+        """The W/h range refinable resonator widths stay in: the gap model's stated range, or
+        None with ``[resonators] width = "free-beyond-models"`` (or a model without one)."""
+        if self.resonator_width == "free-beyond-models":
+            return None
+        return strip.GAP_MODEL_WH.get(self.gap_model)
 
     @property
     def band_edges(self) -> tuple[float, float]:

@@ -66,7 +66,9 @@ def centre_for_yield(
     if free_widths is None:
         free_widths = problem.free_widths
     model = strip_model_for(medium, problem.gap_model, problem.z_ref, layout, f, free_widths)
-    space = layout_space(fab, problem.strip_substrate.height, model, layout)
+    space = layout_space(
+        fab, problem.strip_substrate.height, model, layout, width_range=problem.width_range
+    )
     p0 = model.vector(layout)
     smp = sample(layout, tol, design_samples, seed, problem.substrate)  # its geometry is used below
     offsets = np.zeros((design_samples + 1, len(model.dims)))  # row 0: the nominal layout itself
