@@ -375,7 +375,9 @@ def _cmd_design(args: argparse.Namespace) -> int:
     if args.centre_yield:
         r = _centre(problem, r, args)
     if args.out is not None:
-        written = outputs.write_outputs(r, sd, args.out, args.power, args.force)
+        written = outputs.write_outputs(
+            r, sd, args.out, args.power, args.force, said=outputs.CLI_NAMES
+        )
         print()
         print(f"wrote {len(written)} files to {args.out}: " + ", ".join(w.name for w in written))
         if r.status is not Status.MET:

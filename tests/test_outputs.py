@@ -362,3 +362,31 @@ def test_a_mask_without_an_insertion_loss_limit_gets_the_passband_loss_said(tmp_
         )
         loud = report.loss_note(replace(r, problem=lossy))
     assert loud is not None and loud.startswith("WARNING") and "absorbing power" in loud
+
+
+def test_the_api_names_its_own_parameters_when_it_refuses_a_folder(tmp_path):
+    """write_outputs called from Python says out=... and force=True, not the command's options."""
+    import refine
+
+    p = refine.load_problem(ROOT / "problems" / "ideal-cheb-n3-20pct.toml")
+    sd = refine.seed(p)
+    r = refine.design(p, seed=sd)
+    refine.write_outputs(r, sd, tmp_path / "o")
+    with pytest.raises(ValueError, match=r"out = '.*': already holds .*; pass force=True") as e:
+        refine.write_outputs(r, sd, tmp_path / "o")
+    assert "--force" not in str(e.value)
+
+
+def test_the_touchstone_sweep_covers_every_mask_region():
+    """A stopband from 0.1 f0 is swept from there (the sweep used to start at 0.2 f0)."""
+    from dataclasses import replace
+
+    import refine
+    from refine.outputs.files import sweep
+    from refine.spec.mask import Stopband
+
+    p = refine.load_problem(ROOT / "problems" / "microstrip-x-band-alumina-n3.toml")
+    low = replace(p.mask, stopbands=(Stopband(1e9, 8e9, 30.0), *p.mask.stopbands[1:]))
+    f = sweep(replace(p, mask=low))
+    assert f[0] == pytest.approx(1e9) and 8e9 in f
+    assert f[-1] >= max(sb.stop for sb in p.mask.stopbands)

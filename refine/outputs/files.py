@@ -46,36 +46,52 @@ class OutputError(ValueError):
     """The output folder cannot be used as asked."""
 
 
-def prepare_folder(out: str | Path, force: bool, names: tuple[str, ...] = OUTPUT_FILES) -> Path:
+# how the folder and the replace switch are named in messages: the command line's options, or
+# the Python API's parameters
+CLI_NAMES = ("--out {}", "use --force")
+API_NAMES = ("out = {!r}", "pass force=True")
+
+
+def prepare_folder(
+    out: str | Path,
+    force: bool,
+    names: tuple[str, ...] = OUTPUT_FILES,
+    said: tuple[str, str] = CLI_NAMES,
+) -> Path:
     """Check (before anything is computed or written) that ``out`` may receive the files
     ``names`` (the design's outputs by default). A symbolic link where an output goes is never
     written through: without ``force`` it is refused like any other clash; with ``force`` the
-    link itself is replaced by the new file (its target is left alone)."""
+    link itself is replaced by the new file (its target is left alone). ``said`` names the
+    folder and the replace switch in messages (:data:`CLI_NAMES` or :data:`API_NAMES`)."""
     out = Path(out)
+    where, replace = said[0].format(str(out)), said[1]
     if out.is_symlink() and not out.is_dir():
-        raise OutputError(f"--out {out}: is a symbolic link that leads to no folder")
+        raise OutputError(f"{where}: is a symbolic link that leads to no folder")
     if out.exists() and not out.is_dir():
-        raise OutputError(f"--out {out}: exists and is not a folder")
+        raise OutputError(f"{where}: exists and is not a folder")
     if out.is_dir() and not force:
         clash = [n for n in names if (out / n).exists() or (out / n).is_symlink()]
         links = [n for n in clash if (out / n).is_symlink()]
         if clash:
             link_note = (
                 f" ({', '.join(links)} {'is a symbolic link' if len(links) == 1 else 'are symbolic links'}: "
-                "refine never writes through a link; --force replaces the link itself)"
+                f"refine never writes through a link; {replace.split(' ', 1)[1]} replaces the "
+                "link itself)"
                 if links
                 else ""
             )
             raise OutputError(
-                f"--out {out}: already holds {', '.join(clash)}; use --force to replace them"
-                + link_note
+                f"{where}: already holds {', '.join(clash)}; {replace} to replace them" + link_note
             )
     return out
 
 
 @contextmanager
 def locked_folder(
-    out: str | Path, force: bool, names: tuple[str, ...] = OUTPUT_FILES
+    out: str | Path,
+    force: bool,
+    names: tuple[str, ...] = OUTPUT_FILES,
+    said: tuple[str, str] = CLI_NAMES,
 ) -> Iterator[Path]:
     """``out``, created and held under an exclusive lock while a set of files is written into
     it, so that two runs can never leave a mix of each other's files there. A second run that
@@ -83,7 +99,7 @@ def locked_folder(
     after another run finished checks the folder again (:func:`prepare_folder`) and refuses to
     replace what that run wrote unless ``force``. (POSIX ``flock`` on the folder itself: no lock
     file is left behind.)"""
-    out = prepare_folder(out, force, names)
+    out = prepare_folder(out, force, names, said)
     out.mkdir(parents=True, exist_ok=True)
     fd = os.open(out, os.O_RDONLY)
     try:
@@ -91,18 +107,23 @@ def locked_folder(
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
             raise OutputError(
-                f"--out {out}: another refine run is writing there now; wait for it to finish "
-                "or choose another folder"
+                f"{said[0].format(str(out))}: another refine run is writing there now; wait for "
+                "it to finish or choose another folder"
             ) from None
-        yield prepare_folder(out, force, names)
+        yield prepare_folder(out, force, names, said)
     finally:
         os.close(fd)
 
 
 def sweep(problem: Problem, n: int = 2001) -> np.ndarray:
-    """The hand-over sweep: 0.2 f0 to 2.5 f0 (past the spurious band at 2 f0), band edges included."""
-    f = np.linspace(0.2 * problem.f0, 2.5 * problem.f0, n)
-    return np.unique(np.concatenate([f, [problem.mask.passband_start, problem.mask.passband_stop]]))
+    """The hand-over sweep: 0.2 f0 to 2.5 f0 (past the spurious band at 2 f0), widened to every
+    mask region, each region's edges included."""
+    m = problem.mask
+    lo = min([0.2 * problem.f0, *(max(sb.start, 1e-3 * sb.stop) for sb in m.stopbands)])
+    hi = max([2.5 * problem.f0, *(sb.stop for sb in m.stopbands)])
+    edges = [m.passband_start, m.passband_stop]
+    edges += [x for sb in m.stopbands for x in (max(sb.start, 1e-3 * sb.stop), sb.stop)]
+    return np.unique(np.concatenate([np.linspace(lo, hi, n), edges]))
 
 
 def responses(r: RefineResult, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -118,10 +139,16 @@ def responses(r: RefineResult, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 
 def write_outputs(
-    r: RefineResult, sd: job.Seed, out: str | Path, power_w: float = 1.0, force: bool = False
+    r: RefineResult,
+    sd: job.Seed,
+    out: str | Path,
+    power_w: float = 1.0,
+    force: bool = False,
+    said: tuple[str, str] = API_NAMES,
 ) -> list[Path]:
-    """Write every hand-over file; returns the paths written."""
-    with locked_folder(out, force) as folder:
+    """Write every hand-over file; returns the paths written. A clash in ``out`` is refused
+    unless ``force``; ``said`` names them in messages (the command passes its options)."""
+    with locked_folder(out, force, said=said) as folder:
         return _write_all(r, sd, folder, power_w)
 
 
