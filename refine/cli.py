@@ -85,6 +85,8 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p.add_argument(
         "--centre-yield",
+        "--center-yield",
+        dest="centre_yield",
         action="store_true",
         help="after the mask is met, move the design to maximise its worst margin over "
         "samples of the fab tolerances, and report the yield before and after",

@@ -85,3 +85,11 @@ def test_fixed_widths_keeps_every_resonator_at_the_feed_width(tmp_path):
     assert main(["design", prob, "--fixed-widths", "--centre-yield", "--out", str(out)]) == 0
     lay = json.loads((out / "layout.json").read_text())
     assert all(w == lay["feed_width"] for w in lay["widths"])
+
+
+def test_centre_yield_takes_either_spelling():
+    from refine.cli import build_parser
+
+    for flag in ("--centre-yield", "--center-yield"):
+        args = build_parser().parse_args(["design", "p.toml", flag])
+        assert args.centre_yield is True

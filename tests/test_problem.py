@@ -275,3 +275,18 @@ def test_other_unit_strings_are_left_to_pint(text, kind):
     from refine.spec.problem import plain_si
 
     assert plain_si(text, kind) is None
+
+
+def test_centre_and_center_are_both_accepted_once(tmp_path):
+    """[response] takes either spelling of the centre frequency; both at once is refused."""
+    src = (
+        Path(__file__).parent.parent / "problems" / "microstrip-x-band-alumina-n3.toml"
+    ).read_text()
+    assert 'center = "10 GHz"' in src
+    import tomllib
+
+    one = tomllib.loads(src.replace('center = "10 GHz"', 'centre = "10 GHz"'))
+    assert parse_problem(one, "a.toml").f0 == 10e9
+    both = tomllib.loads(src.replace('center = "10 GHz"', 'center = "10 GHz"\ncentre = "10 GHz"'))
+    with pytest.raises(ProblemError, match=r"response.centre .* given twice"):
+        parse_problem(both, "b.toml")

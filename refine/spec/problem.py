@@ -11,7 +11,7 @@ Schema (keys marked * are required)::
     family = "chebyshev" | "butterworth"     *
     ripple_db = 0.1                          (chebyshev only; required for it)
     order = 5                                (1..15; optional when [[mask.stopband]] is given)
-    center = "10.5 GHz"                      *
+    center = "10.5 GHz"                      * (or centre)
     bandwidth = "300 MHz" | fractional_bandwidth = 0.0286     * (exactly one)
     z_ref = "50 ohm"                         *
     [medium]                                 *
@@ -329,8 +329,21 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
     resp = r.table(
         data,
         "response",
-        {"family", "ripple_db", "order", "center", "bandwidth", "fractional_bandwidth", "z_ref"},
+        {
+            "family",
+            "ripple_db",
+            "order",
+            "center",
+            "centre",
+            "bandwidth",
+            "fractional_bandwidth",
+            "z_ref",
+        },
     )
+    if "centre" in resp:  # both spellings are accepted; one of them, once
+        if "center" in resp:
+            raise r.fail("response.centre", resp["centre"], "is given twice (also as 'center')")
+        resp = {**resp, "center": resp["centre"]}
     family = r.choice(resp, "response", "family", families.FAMILIES)
     if family == "chebyshev":
         ripple = r.need_number(resp, "response", "ripple_db", 0.0, 10.0, lo_open=True)
