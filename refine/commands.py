@@ -597,7 +597,7 @@ def _cmd_fullwave(args: argparse.Namespace) -> int:
             lay,
             args.mesh,
             args.max_runs,
-            progress=lambda s: print(s, flush=True),
+            progress=_say,
             method=args.method,
         )
         print(sm.summary())

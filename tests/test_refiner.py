@@ -287,4 +287,6 @@ def test_width_range_bounds_the_design_space():
     w_in = [v for v in inside.variables if v.name.startswith("width")]
     assert max(v.upper for v in w_free) == pytest.approx(3 * lay.feed_width)
     assert max(v.upper for v in w_in) == pytest.approx(2.0 * h)
-    assert p.width_range == (0.5, 2.0)  # Garg–Bahl's fitted W/h range
+    # Garg & Bahl, "Microstrip discontinuities", Int. J. Electronics 45(1), 1978: stated range
+    # 0.5 <= W/h <= 2 (from memory; docs/references.md §6.1)
+    assert p.width_range == (0.5, 2.0)

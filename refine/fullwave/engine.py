@@ -24,6 +24,8 @@ from pathlib import Path
 
 import numpy as np
 
+from refine.physics.constants import C0
+
 SCRIPT = Path(__file__).with_name("_solver_script.py")
 
 INSTALL_HINT = (
@@ -104,7 +106,6 @@ def available() -> bool:
 Progress = Callable[[str], None]
 PROGRESS_EVERY = 20.0  # seconds between progress lines while the engine runs
 _STEP = re.compile(r"Timestep:\s*(\d+)")
-C0 = 299_792_458.0
 
 
 def job_size(job: dict) -> tuple[int, int]:

@@ -16,14 +16,13 @@ import numpy as np
 from numpy.typing import NDArray
 
 from refine import _validate as v
-
-SPEED_OF_LIGHT = 299_792_458.0
+from refine.physics.constants import C0
 
 
 def max_cell(f_max: float, eps_r: float, cells_per_wavelength: int = 20) -> float:
     """Largest cell: the shortest wavelength in the dielectric over ``cells_per_wavelength``."""
     v.positive("f_max", f_max)
-    return SPEED_OF_LIGHT / (f_max * np.sqrt(eps_r)) / cells_per_wavelength
+    return C0 / (f_max * np.sqrt(eps_r)) / cells_per_wavelength
 
 
 def _merge(points: list[tuple[float, float]]) -> list[tuple[float, float]]:

@@ -13,7 +13,7 @@ from numpy.typing import NDArray
 from refine import _validate as v
 from refine.circuit.cascade import Abcd, abcd_to_s
 from refine.fullwave import engine, geometry, waves
-from refine.fullwave.mesh import SPEED_OF_LIGHT
+from refine.physics.constants import C0
 from refine.physics.substrate import Substrate
 
 
@@ -49,7 +49,7 @@ class FieldSolve:
 def transit_time(mesh: geometry.Mesh, substrate: Substrate) -> float:
     """Time for a wave in the substrate to cross the box diagonal once (s)."""
     span = math.dist((mesh.x[0], mesh.y[0]), (mesh.x[-1], mesh.y[-1]))
-    return span * math.sqrt(substrate.eps_r) / SPEED_OF_LIGHT
+    return span * math.sqrt(substrate.eps_r) / C0
 
 
 def solve(

@@ -112,19 +112,21 @@ MAX_ADDED = 40  # most verification frequencies one round adds to the optimiser'
 
 
 def _verify(
-    problem: Problem, model_factory, p: NDArray, short_of: float = 0.0
+    problem: Problem, model_factory, p: NDArray, short_of: float | None = None
 ) -> tuple[MaskResult, NDArray]:
-    """The design's verdict on the dense verification grid, and the verification frequencies
-    where its margin is below ``short_of`` dB (the worst :data:`MAX_ADDED` of them)."""
+    """The design's verdict on the dense verification grid and, when ``short_of`` is given, the
+    verification frequencies where its margin is below it (the worst :data:`MAX_ADDED`)."""
     f = verification_grid(problem)
-    m = model_factory(f)
-    r = m.response(p)
+    r = model_factory(f).response(p)
     mask = problem.mask
+    res = mask.evaluate(f, r.s11, r.s21)
+    if short_of is None:
+        return res, f[:0]
     g, _ = mask.constraints(f, r.s11, r.s21)
     at = np.concatenate(mask.region_indices(f))
     short = np.flatnonzero(g > -short_of)
     worst_first = short[np.argsort(g[short])[::-1]][:MAX_ADDED]
-    return mask.evaluate(f, r.s11, r.s21), np.unique(f[at[worst_first]])
+    return res, np.unique(f[at[worst_first]])
 
 
 def _binding(res: MaskResult, space: DesignSpace, z: NDArray) -> tuple[str, ...]:
