@@ -12,7 +12,14 @@ from conftest import ROOT
 PACKAGE = ROOT / "refine"
 
 LAYERS = [
-    ("refine._validate", "refine._typing", "refine._roots", "refine.validity", "refine.version"),
+    (
+        "refine._validate",
+        "refine._typing",
+        "refine._roots",
+        "refine.allocator",
+        "refine.validity",
+        "refine.version",
+    ),
     ("refine.physics",),
     ("refine.spec",),
     ("refine.circuit",),

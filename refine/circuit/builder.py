@@ -29,6 +29,7 @@ which dimension moves which element, for the exact gradient of :mod:`refine.circ
 from __future__ import annotations
 
 import enum
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -143,10 +144,13 @@ def build(
     adjust: Adjustments | None = None,
     track: bool = False,
     validate: bool = True,
+    line_props: Sequence[tuple[NDArray, NDArray]] | None = None,
 ) -> Built:
     """The cascade elements of an end-coupled filter (see the module docstring for the circuit
     and the shapes). ``track`` (one design, or a 1-D batch) also returns the :class:`ElementMap`;
-    ``validate`` False skips the argument checks for a caller that made them once."""
+    ``validate`` False skips the argument checks for a caller that made them once;
+    ``line_props`` are the resonators' (γ, z_c) when the caller computed them already (with the
+    attenuation scaled by ``adjust.loss_factor``)."""
     coupling = Coupling(coupling)
     f = v.frequencies("f", f) if validate else np.asarray(f, float)
     check_gap_model(medium, gap_model)
@@ -193,7 +197,11 @@ def build(
         return float(np.asarray(x).ravel()[0])
 
     w = [pick(widths_a, j) for j in range(n)]
-    props = _line_properties_all(medium, widths_a, f, kl)
+    props = (
+        list(line_props)
+        if line_props is not None
+        else _line_properties_all(medium, widths_a, f, kl)
+    )
     # every gap's π-network from one call of the gap model (the sides' widths stacked)
     feed_a = np.asarray(v.positive_array("feed_width", feed) if validate else feed, float)
     if coupling is Coupling.GAP:

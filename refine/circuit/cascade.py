@@ -32,6 +32,7 @@ the derivative with respect to every parameter, at a cost independent of their n
 from __future__ import annotations
 
 import enum
+import itertools
 from collections.abc import Collection, Mapping, Sequence
 from dataclasses import dataclass
 from functools import cached_property
@@ -41,9 +42,12 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from refine import _validate as v
+from refine import allocator
 from refine._typing import Values
 
 Array = NDArray[np.complex128]
+
+allocator.keep_freed_memory()  # the engine's temporaries reuse freed memory (see refine.allocator)
 
 
 class Abcd(NamedTuple):
@@ -370,13 +374,18 @@ class Transmission(NamedTuple):
 
 def s11_s21(elements: Sequence[Element], f: ArrayLike, z_ref: float) -> Transmission:
     """S11 and S21 only, the cheapest evaluation (what a mask needs)."""
+    _check_elements(elements)
     z = v.positive("z_ref", z_ref)
-    a, b, c, d = chain_abcd(elements, f)
-    bz, cz = b / z, c * z
-    den = a + bz + cz + d
-    return Transmission(
-        np.asarray((a + bz - cz - d) / den, complex), np.asarray(2.0 / den, complex)
-    )
+    omega = _omega(f)
+    ev = _values(elements, omega)
+    # the rows [1, z]·M (for Δ) and [1, -z]·M (for N) together: half the work of the full M
+    lead = np.array([1.0, 1.0]).reshape(2, *([1] * len(ev.shape)))
+    row: tuple = (lead, np.array([z, -z]).reshape(lead.shape))
+    for e, val in zip(elements, ev.vals, strict=True):
+        row = _row_times(row, e.kind, val)
+    den_num = np.broadcast_to(row[0] + row[1] / z, (2, *ev.shape))
+    den = den_num[0]
+    return Transmission(np.asarray(den_num[1] / den, complex), np.asarray(2.0 / den, complex))
 
 
 class Gradient(NamedTuple):
@@ -391,6 +400,7 @@ class Gradient(NamedTuple):
     stacked11: Array  # the same derivatives stacked, (P, ..., nf) ...
     stacked21: Array
     rows: dict[tuple[int, str], int]  # ... with row rows[(element, name)]
+    stacked: Array | None = None  # (2, P, ..., nf): stacked11 and stacked21 in one array
 
 
 def s11_s21_gradient(
@@ -410,52 +420,57 @@ def s11_s21_gradient(
     vals = ev.vals
     k = len(elements)
 
-    # forward pass: the prefix rows for Δ and N together, as one 2-vector of (2, ..., nf) arrays
+    # forward pass: the prefix rows for Δ and N together, as one 2-vector of (2, ..., nf) arrays,
+    # written into rows (2 [Δ, N], 2, k, ...) as they are formed; backward pass: the suffix
+    # columns into colv (2, k, ...)
     lead = np.array([1.0, 1.0]).reshape(2, *([1] * len(ev.shape)))
     row: tuple = (lead, np.array([z, -z]).reshape(lead.shape))
-    row_at: list[tuple] = []
-    for e, val in zip(elements, vals, strict=True):
-        row_at.append(row)
+    rows = np.empty((2, 2, k, *ev.shape), complex)
+    for i, (e, val) in enumerate(zip(elements, vals, strict=True)):
+        rows[:, 0, i], rows[:, 1, i] = row
         row = _row_times(row, e.kind, val)
     den_num = row[0] + row[1] / z
-    cols: list[tuple] = [()] * k
+    colv = np.empty((2, k, *ev.shape), complex)
     col: tuple = (1.0, 1.0 / z)
     for i in range(k - 1, -1, -1):
-        cols[i] = col
+        colv[0, i], colv[1, i] = col
         col = _times_column(elements[i].kind, vals[i], col)
 
-    shape = np.broadcast_shapes(np.shape(den_num)[1:], omega.shape)
+    shape = ev.shape
     den = np.broadcast_to(np.asarray(den_num[0], dtype=complex), shape)
     s21 = np.asarray(2.0 / den, complex)
     s11 = np.broadcast_to(np.asarray(den_num[1], dtype=complex), shape) / den
-    # prefix rows and suffix columns of every element, stacked: rows (2 [Δ, N], 2, k, ...)
-    rows = np.empty((2, 2, k, *shape), complex)
-    colv = np.empty((2, k, *shape), complex)
-    for i in range(k):
-        rows[:, 0, i], rows[:, 1, i] = row_at[i]
-        colv[0, i], colv[1, i] = cols[i]
+    # The rows are turned from (Δ, N) into (S21, S11) once: ∂S21 = -S21/Δ ∂Δ and
+    # ∂S11 = (∂N - S11 ∂Δ)/Δ are linear in the row, so every derivative below is S's directly.
+    inv = 1.0 / den
+    rows_s = np.empty(rows.shape, complex)
+    rows_s[0] = rows[0] * (-s21 * inv)
+    rows_s[1] = (rows[1] - rows[0] * s11) * inv
     index: dict[tuple[int, str], int] = {}
-    parts11: list[NDArray] = []
-    parts21: list[NDArray] = []
+    parts: list[NDArray] = []
+    cached: dict[bytes, tuple] = {}
     for at, name, (da, db, dc, dd) in _derivative_groups(elements, omega, wrt, ev):
-        # ∂Δ = l1 (dA r1 + dB r2) + l2 (dC r1 + dD r2); the column part is shared by Δ and N
-        sel = _selector(at)
-        r1, r2 = colv[0, sel], colv[1, sel]
+        # ∂S = l1 (dA r1 + dB r2) + l2 (dC r1 + dD r2); the column part is shared by S21, S11
+        key = at.tobytes()
+        if key not in cached:
+            sel = _selector(at)
+            cached[key] = (colv[0, sel], colv[1, sel], rows_s[:, 0, sel], rows_s[:, 1, sel])
+        r1, r2, l1, l2 = cached[key]
         u = _sum_of(da, r1, db, r2)
         w = _sum_of(dc, r1, dd, r2)
-        d = _sum_of(u, rows[:, 0, sel], w, rows[:, 1, sel])  # (2, n, ...): ∂Δ, ∂N
-        parts21.append(-s21 * d[0] / den)
-        parts11.append((d[1] - s11 * d[0]) / den)
+        d = _sum_of(u, l1, w, l2)  # (2, n, ...): ∂S21, ∂S11
+        parts.append(np.broadcast_to(d, (2, len(at), *shape)))
         for i in at:
             index[(int(i), name)] = len(index)
-    d11 = np.concatenate(parts11) if parts11 else np.zeros((0, *shape), complex)
-    d21 = np.concatenate(parts21) if parts21 else np.zeros((0, *shape), complex)
+    both = np.concatenate(parts, axis=1) if parts else np.zeros((2, 0, *shape), complex)
+    both = both[::-1]  # (S11, S21)
+    d11, d21 = both[0], both[1]
     ds11: list[dict[str, Array]] = [{} for _ in elements]
     ds21: list[dict[str, Array]] = [{} for _ in elements]
     for (i, name), r in index.items():
         ds11[i][name] = d11[r]
         ds21[i][name] = d21[r]
-    return Gradient(s11, s21, ds11, ds21, d11, d21, index)
+    return Gradient(s11, s21, ds11, ds21, d11, d21, index, both)
 
 
 _Entries = tuple[Any, Any, Any, Any]  # the four ABCD entries of a derivative; None is zero
@@ -464,11 +479,12 @@ _Entries = tuple[Any, Any, Any, Any]  # the four ABCD entries of a derivative; N
 def _selector(at: NDArray[np.intp]) -> slice | NDArray[np.intp]:
     """``at`` as a slice when it is evenly spaced (a view instead of a copy: lines and
     π-networks alternate in a gap-coupled chain)."""
-    if at.size == 1:
-        return slice(int(at[0]), int(at[0]) + 1)
-    step = int(at[1] - at[0])
-    if step > 0 and np.all(np.diff(at) == step):
-        return slice(int(at[0]), int(at[-1]) + 1, step)
+    idx = at.tolist()
+    if len(idx) == 1:
+        return slice(idx[0], idx[0] + 1)
+    step = idx[1] - idx[0]
+    if step > 0 and all(b - a == step for a, b in itertools.pairwise(idx)):
+        return slice(idx[0], idx[-1] + 1, step)
     return at
 
 
@@ -528,14 +544,27 @@ def _values(elements: Sequence[Element], omega: NDArray[np.float64]) -> _Values:
             col = np.asarray([np.asarray(getattr(elements[i], name)) for i in pis])
             return col[:, None] if col.ndim == 1 else col
 
+        # Z = -j zs and Y = j b are pure imaginary, so A = 1 + zs b2 and D = 1 + zs b1 are
+        # real, B and C pure imaginary: formed in real arithmetic, then packed
         cs = column("c_series")
-        z = -1j / (omega * cs)
-        y1 = 1j * omega * column("c_shunt_in")
-        y2 = 1j * omega * column("c_shunt_out")
-        a_, c_, d_ = 1.0 + z * y2, y1 + y2 + y1 * y2 * z, 1.0 + z * y1
+        zs = 1.0 / (omega * cs)
+        b1 = omega * column("c_shunt_in")
+        b2 = omega * column("c_shunt_out")
+        if np.iscomplexobj(zs) or np.iscomplexobj(b1) or np.iscomplexobj(b2):
+            abcd = np.stack(
+                np.broadcast_arrays(
+                    1.0 + zs * b2, -1j * zs, 1j * (b1 + b2 + b1 * b2 * zs), 1.0 + zs * b1
+                )
+            )
+        else:
+            abcd = np.zeros((4, *np.broadcast_shapes(zs.shape, b1.shape, b2.shape)), complex)
+            abcd[0].real = 1.0 + zs * b2
+            abcd[1].imag = -zs
+            abcd[2].imag = b1 + b2 + b1 * b2 * zs
+            abcd[3].real = 1.0 + zs * b1
         for j, i in enumerate(pis):
-            vals[i] = Abcd(a_[j], z[j], c_[j], d_[j])
-        out.pi_parts = (cs, z, y1, y2)
+            vals[i] = Abcd(abcd[0, j], abcd[1, j], abcd[2, j], abcd[3, j])
+        out.pi_parts = (cs, zs, b1, b2)
     for i, e in enumerate(elements):
         if vals[i] is None:
             vals[i] = e.value(omega)
@@ -570,15 +599,16 @@ def _derivative_groups(
             out.append((at, "z_c", (None, sh, -sh / (zc * zc), None)))
     if ev.pis:
         at = np.array(ev.pis)
-        cs, z, y1, y2 = ev.pi_parts
-        jw = 1j * omega
-        if want("c_series"):
-            dz = -z / cs
-            out.append((at, "c_series", (y2 * dz, dz, y1 * y2 * dz, y1 * dz)))
-        if want("c_shunt_in"):
-            out.append((at, "c_shunt_in", (None, None, jw * (1.0 + y2 * z), jw * z)))
+        cs, zs, b1, b2 = ev.pi_parts  # Z = -j zs, Y1 = j b1, Y2 = j b2
+        if want("c_series"):  # d zs / d C_series = -zs / C_series
+            q = zs / cs
+            out.append((at, "c_series", (-b2 * q, 1j * q, -1j * (b1 * b2 * q), -b1 * q)))
+        if want("c_shunt_in"):  # d b1 / d C_in = omega
+            out.append((at, "c_shunt_in", (None, None, 1j * (omega * (1.0 + b2 * zs)), omega * zs)))
         if want("c_shunt_out"):
-            out.append((at, "c_shunt_out", (jw * z, None, jw * (1.0 + y1 * z), None)))
+            out.append(
+                (at, "c_shunt_out", (omega * zs, None, 1j * (omega * (1.0 + b1 * zs)), None))
+            )
     grouped = set(ev.lines) | set(ev.pis)
     for i, e in enumerate(elements):
         if i in grouped:

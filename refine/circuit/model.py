@@ -97,6 +97,17 @@ class StripFilterModel:
         self.names = [self.label(d) for d in dims]
         self._position = {d: i for i, d in enumerate(dims)}
         self._n_gaps = n_gaps
+        self._fixed_props: list[tuple[NDArray, NDArray]] | None = None
+
+    def _fixed_line_props(self) -> list[tuple[NDArray, NDArray]]:
+        """The resonators' (γ, z_c) when widths are not free: they depend on the widths and
+        the frequencies only, so they are computed once per model, each distinct width once."""
+        if self._fixed_props is None:
+            kl = 1.0 if self.adjust is None else self.adjust.loss_factor
+            u, back = np.unique(np.asarray(self.fixed_widths, float), return_inverse=True)
+            gam, zc = line_properties(self.medium, u[:, None], self.f, kl)
+            self._fixed_props = [(gam[j], zc[j]) for j in back]
+        return self._fixed_props
 
     def label(self, dim: tuple[Dim, int]) -> str:
         """The reader's name of a dimension: "gap 1", "length 2", "tap in", "width 3"."""
@@ -147,8 +158,15 @@ class StripFilterModel:
 
     # -- circuit ------------------------------------------------------------------------------
 
-    def _build(self, p: NDArray, track: bool) -> tuple[list[cascade.Element], ElementMap | None]:
+    def _build(
+        self,
+        p: NDArray,
+        track: bool,
+        line_props: list[tuple[NDArray, NDArray]] | None = None,
+    ) -> tuple[list[cascade.Element], ElementMap | None]:
         gaps, lengths, taps, widths = self.split(np.asarray(p, float))
+        if line_props is None and not self.free_widths:
+            line_props = self._fixed_line_props()
         b = build(
             self.external,
             self.medium,
@@ -162,6 +180,7 @@ class StripFilterModel:
             self.adjust,
             track=track,
             validate=False,
+            line_props=line_props,
         )
         return b.elements, b.map
 
@@ -186,10 +205,12 @@ class StripFilterModel:
         if p.ndim not in (1, 2):
             raise ValueError(f"p must be (n_params,) or (B, n_params), got shape {p.shape}")
         with validity.unchecked():  # the verification grid checks ranges and reports them
-            els, emap = self._build(p, gradient)
             if not gradient:
+                els, _ = self._build(p, False)
                 t = cascade.s11_s21(els, self.f, self.z_ref)
                 return Response(t.s11, t.s21)
+            steps = self._width_steps(p) if self.free_widths else None
+            els, emap = self._build(p, True, None if steps is None else steps.props)
             assert emap is not None
             wrt = {"length", "c_series", "c_shunt_in", "c_shunt_out"}
             if self.free_widths:
@@ -200,71 +221,125 @@ class StripFilterModel:
             for e, moves in enumerate(emap.lengths):
                 for kind, i, fac in moves:
                     acc.add(pos[(kind, i)], e, "length", fac)
-            if emap.gaps:  # every gap's complex-step derivative from one gap-model call
-                slots = emap.gaps
-                s_m = np.array([sl.s_model for sl in slots])
-                h = _CSTEP * s_m
-                dcaps = self._gap_pis(
-                    np.array([sl.w_in for sl in slots]),
-                    np.array([sl.w_out for sl in slots]),
-                    s_m + 1j * h,
-                )
-                for k, slot in enumerate(slots):
-                    idx = pos[(Dim.GAP, slot.position)]
-                    for q, name in enumerate(_PI_NAMES):
-                        d = np.imag(dcaps[q][k]) / h[k] * slot.ds_model
-                        acc.add(
-                            idx, slot.element, name, d * (slot.c_series_factor if q == 0 else 1.0)
-                        )
-            if self.free_widths:
-                _, _, _, widths = self.split(p)
-                self._width_gradient(widths, emap, acc)
-            ds11, ds21 = acc.total(len(self.dims), g.stacked11, g.stacked21)
+            self._gap_gradient(emap, acc, steps)
+            if steps is not None:
+                self._width_gradient(steps, emap, acc)
+            ds11, ds21 = acc.total(len(self.dims), g.stacked11, g.stacked21, g.stacked)
         return Response(g.s11, g.s21, ds11, ds21)
 
-    def _width_gradient(self, widths: NDArray, emap: ElementMap, acc: _Chain) -> None:
-        med, f = self.medium, self.f
-        kl = 1.0 if self.adjust is None else self.adjust.loss_factor
-        n = self.order
+    def _width_steps(self, p: NDArray) -> _WidthSteps:
+        """Every resonator's width and its two central-difference steps, with the line
+        properties of all three from one call of the line model (the nominal ones build the
+        circuit, the steps give d γ/d w and d z_c/d w)."""
+        _, _, _, widths = self.split(p)
         w = np.asarray(widths, float)  # (n,) or (B, n)
         h = _FD * w
-        # γ, z_c at every width ± its step: one call of the line model, (2n, [B,] nf)
-        steps = np.moveaxis(np.concatenate([w + h, w - h], axis=-1), -1, 0)[..., None]
-        gam, zc = line_properties(med, steps, f, kl)
+        n = self.order
+        kl = 1.0 if self.adjust is None else self.adjust.loss_factor
+        if w.ndim == 1:  # one design: each distinct width once (resonators often share one)
+            u, back = np.unique(w, return_inverse=True)
+            hu = _FD * u
+            gam, zc = line_properties(
+                self.medium, np.concatenate([u, u + hu, u - hu])[:, None], self.f, kl
+            )
+            m = u.size
+            dgam = (gam[m : 2 * m] - gam[2 * m :]) / (2 * hu[:, None])
+            dz = (zc[m : 2 * m] - zc[2 * m :]) / (2 * hu[:, None])
+            return _WidthSteps(w, h, [(gam[j], zc[j]) for j in back], dgam[back], dz[back])
+        all_w = np.moveaxis(np.concatenate([w, w + h, w - h], axis=-1), -1, 0)[..., None]
+        gam, zc = line_properties(self.medium, all_w, self.f, kl)  # (3n, B, nf)
         hh = np.moveaxis(h, -1, 0)[..., None]
-        dgam = (gam[:n] - gam[n:]) / (2 * hh)
-        dz = (zc[:n] - zc[n:]) / (2 * hh)
-        col = [self._position[(Dim.WIDTH, j)] for j in range(n)]
-        for e, j in emap.lines:
-            acc.add_spectrum(col[j], e, "gamma", dgam[j])
-            acc.add_spectrum(col[j], e, "z_c", dz[j])
-        # every gap side that is a resonator, both steps: one call of the gap model
+        return _WidthSteps(
+            w,
+            h,
+            [(gam[j], zc[j]) for j in range(n)],
+            (gam[n : 2 * n] - gam[2 * n :]) / (2 * hh),
+            (zc[n : 2 * n] - zc[2 * n :]) / (2 * hh),
+        )
+
+    def _gap_gradient(self, emap: ElementMap, acc: _Chain, steps: _WidthSteps | None) -> None:
+        """Every gap's derivatives from one gap-model call: with respect to its width by complex
+        step, and (free widths) to the widths on its two sides by central difference."""
+        slots = emap.gaps
+        if not slots:
+            return
+        s_m = np.array([sl.s_model for sl in slots])
+        w_in = np.array([sl.w_in for sl in slots])
+        w_out = np.array([sl.w_out for sl in slots])
+        h = _CSTEP * s_m
+        parts_in, parts_out, parts_s = [w_in], [w_out], [s_m + 1j * h]
+        # every gap side that is a resonator, stepped up and down in width
         moves = [
             (slot, side, res)
             for slot in emap.gaps
             for side, res in enumerate(slot.resonators)
             if res is not None
         ]
-        if moves:
-            w_in = np.array([m[0].w_in for m in moves] * 2)
-            w_out = np.array([m[0].w_out for m in moves] * 2)
-            s_m = np.array([m[0].s_model for m in moves] * 2)
+        if steps is not None and moves:
             k = len(moves)
+            m_in = np.array([m[0].w_in for m in moves] * 2)
+            m_out = np.array([m[0].w_out for m in moves] * 2)
+            m_s = np.array([m[0].s_model for m in moves] * 2)
+            w, hw = steps.w, steps.h
             for i, (_, side, res) in enumerate(moves):
-                target = w_in if side == 0 else w_out
-                target[i] = w[..., res] + h[..., res]
-                target[k + i] = w[..., res] - h[..., res]
-            caps = self._gap_pis(w_in, w_out, s_m)
-            for i, (slot, _, res) in enumerate(moves):
-                for q, name in enumerate(_PI_NAMES):
-                    d = (np.real(caps[q][i]) - np.real(caps[q][k + i])) / (2 * h[..., res])
-                    acc.add(
-                        col[res], slot.element, name, d * (slot.c_series_factor if q == 0 else 1.0)
-                    )
+                target = m_in if side == 0 else m_out
+                target[i] = w[..., res] + hw[..., res]
+                target[k + i] = w[..., res] - hw[..., res]
+            parts_in.append(m_in)
+            parts_out.append(m_out)
+            parts_s.append(m_s.astype(complex))
+        caps = self._gap_pis(
+            np.concatenate(parts_in), np.concatenate(parts_out), np.concatenate(parts_s)
+        )
+        pos = self._position
+        g = len(slots)
+        elements = [sl.element for sl in slots]
+        dims = [pos[(Dim.GAP, sl.position)] for sl in slots]
+        ds = np.array([sl.ds_model for sl in slots])
+        factor = np.array([sl.c_series_factor for sl in slots])
+        if ds.ndim > 1:
+            factor = factor[:, None]
+        for q, name in enumerate(_PI_NAMES):
+            d = np.imag(caps[q][:g]) / h * ds
+            acc.add_many(dims, elements, name, d * factor if q == 0 else d)
+        if steps is None or not moves:
+            return
+        k = len(moves)
+        owners = np.array([m[2] for m in moves])  # the resonator each stepped side belongs to
+        hw = np.moveaxis(steps.h, -1, 0)[owners]  # (k,) or (k, B)
+        elements = [m[0].element for m in moves]
+        dims = [pos[(Dim.WIDTH, int(j))] for j in owners]
+        factor = np.array([m[0].c_series_factor for m in moves])
+        if hw.ndim > 1:
+            factor = factor[:, None]
+        for q, name in enumerate(_PI_NAMES):
+            d = (np.real(caps[q][g : g + k]) - np.real(caps[q][g + k :])) / (2 * hw)
+            acc.add_many(dims, elements, name, d * factor if q == 0 else d)
+
+    def _width_gradient(self, steps: _WidthSteps, emap: ElementMap, acc: _Chain) -> None:
+        """The widths' derivatives through the lines' γ, z_c and the stubs' open ends (the gaps'
+        part is :meth:`_gap_gradient`'s)."""
+        col = [self._position[(Dim.WIDTH, j)] for j in range(self.order)]
+        for e, j in emap.lines:
+            acc.add_spectrum(col[j], e, "gamma", steps.dgamma[j])
+            acc.add_spectrum(col[j], e, "z_c", steps.dz_c[j])
         if emap.open_ends:  # a tapped stub's open-end extension follows its resonator's width
+            med, w, h = self.medium, steps.w, steps.h
             dl = (open_end_extensions(med, w + h) - open_end_extensions(med, w - h)) / (2 * h)
             for e, j in emap.open_ends:
                 acc.add(col[j], e, "length", dl[..., j])
+
+
+@dataclass(frozen=True)
+class _WidthSteps:
+    """Resonator widths ``w``, their central-difference steps ``h`` (both ``(n,)`` or ``(B,
+    n)``), the nominal line properties per resonator, and d γ/d w, d z_c/d w ``(n, [B,] nf)``."""
+
+    w: NDArray
+    h: NDArray
+    props: list[tuple[NDArray, NDArray]]
+    dgamma: NDArray
+    dz_c: NDArray
 
 
 _PI_NAMES = ("c_series", "c_shunt_in", "c_shunt_out")
@@ -291,35 +366,55 @@ class _Chain:
         self.rows.append(self.index[(element, name)])
         self.factors.append(np.real(factor) if self.batch else float(np.real(factor)))
 
+    def add_many(self, dims: list[int], elements: list[int], name: str, factors: NDArray) -> None:
+        """:meth:`add` for many (dimension, element) pairs of one parameter ``name``; ``factors``
+        is ``(m,)``, or ``(m, B)`` for a batch."""
+        self.dims.extend(dims)
+        self.rows.extend(self.index[(e, name)] for e in elements)
+        f = np.real(factors)
+        self.factors.extend(list(f) if self.batch else f.tolist())
+
     def add_spectrum(self, dim: int, element: int, name: str, factor: NDArray) -> None:
         self.s_dims.append(dim)
         self.s_rows.append(self.index[(element, name)])
         self.spectra.append(factor)
 
     def total(
-        self, n_dims: int, d11: NDArray, d21: NDArray
+        self, n_dims: int, d11: NDArray, d21: NDArray, both: NDArray | None = None
     ) -> tuple[NDArray[np.complex128], NDArray[np.complex128]]:
-        """d S11, d S21 per dimension: ``(n_dims, nf)``, or ``(B, n_dims, nf)`` for a batch."""
-        both = np.stack([d11, d21])  # (2, P, [B,] nf)
+        """d S11, d S21 per dimension: ``(n_dims, nf)``, or ``(B, n_dims, nf)`` for a batch.
+        ``both`` is ``d11`` and ``d21`` stacked, when the caller has them so.
+
+        Every term (a factor, or a spectrum, times one parameter's derivative) is formed in
+        one product, sorted by dimension and summed per dimension with one reduction: the
+        chain rule's matrix is sparse (a parameter moves one or two dimensions)."""
+        if both is None:
+            both = np.stack([d11, d21])  # (2, P, [B,] nf)
+        tail = both.shape[2:]
         if self.batch is None:
-            weights = np.zeros((n_dims, both.shape[1]))
-            np.add.at(weights, (self.dims, self.rows), np.asarray(self.factors, float))
-            out = weights @ both  # (2, n_dims, nf)
-            if self.spectra:
-                part = np.stack(self.spectra) * both[:, self.s_rows]
-                for k in range(2):
-                    np.add.at(out[k], self.s_dims, part[k])
-            return out[0], out[1]
-        b, nf = self.batch, both.shape[-1]
-        factors = np.array([np.broadcast_to(x, (b,)) for x in self.factors])  # (M, B)
-        wts = np.zeros((n_dims, both.shape[1], b))
-        np.add.at(wts, (self.dims, self.rows), factors)
-        out = np.einsum("dpb,kpbf->kbdf", wts, both)  # (2, B, n_dims, nf)
+            coef = [
+                np.broadcast_to(
+                    np.asarray(self.factors, float)[:, None], (len(self.factors), *tail)
+                )
+            ]
+        else:
+            fac = np.array([np.broadcast_to(x, (self.batch,)) for x in self.factors])
+            coef = [np.broadcast_to(fac[..., None], (len(self.factors), *tail))]
         if self.spectra:
-            spectra = np.array([np.broadcast_to(x, (b, nf)) for x in self.spectra])
-            part = spectra * both[:, self.s_rows]  # (2, M, B, nf)
-            for k in range(2):
-                np.add.at(np.moveaxis(out[k], 1, 0), self.s_dims, part[k])
+            coef.append(np.array([np.broadcast_to(x, tail) for x in self.spectra]))
+        dims = np.asarray(self.dims + self.s_dims, np.intp)
+        rows = np.asarray(self.rows + self.s_rows, np.intp)
+        if dims.size == 0:
+            out = np.zeros((2, *tail[:-1], n_dims, tail[-1]), complex)
+            return out[0], out[1]
+        order = np.argsort(dims, kind="stable")
+        d_sorted = dims[order]
+        starts = np.flatnonzero(np.r_[True, d_sorted[1:] != d_sorted[:-1]])
+        terms = np.concatenate(coef)[order] * both[:, rows[order]]  # (2, M, [B,] nf)
+        out = np.zeros((2, n_dims, *tail), complex)
+        out[:, d_sorted[starts]] = np.add.reduceat(terms, starts, axis=1)
+        if self.batch is not None:
+            out = np.moveaxis(out, 2, 1)  # (2, B, n_dims, nf)
         return out[0], out[1]
 
 

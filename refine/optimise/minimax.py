@@ -51,6 +51,7 @@ SLSQP_RESTARTS = 2
 STALL_EVALUATIONS = 40  # a run that gains less than STALL_DB in this many evaluations has stalled
 STALL_DB = 0.01
 POLISH_EVALUATIONS = 80
+POLISH_ROUNDS = 3  # a polish that used its whole budget and still gained goes on, this many times
 GRADIENT_RESTARTS = 2  # the gradient strategy restarts from a perturbed point when it stalls
 # CCSAQ solves a dual subproblem at every step; nlopt's default lets that inner solve run to
 # 1e-14 relative or 100 000 evaluations, which on a 150–180-sample grid cost ~0.4 s a step
@@ -356,7 +357,8 @@ def _gradient_then_polish(
 ) -> RunRecord:
     """SLSQP; while the mask is still violated, SLSQP again from its best point (a fresh
     quasi-Newton model, up to ``SLSQP_RESTARTS`` times), then CCSAQ from the best point for at
-    most ``POLISH_EVALUATIONS`` evaluations. The polish rescues stalled runs; it is not used to
+    most ``POLISH_EVALUATIONS`` evaluations, again (up to ``POLISH_ROUNDS`` rounds) while a
+    round uses its whole budget and still gains. The polish rescues stalled runs; it is not used to
     buy extra margin, where it is slow (its dual subproblem grows with the constraint count).
     Unless ``thorough``, the polish sees each mask region as one smooth-maximum constraint,
     which is much faster and somewhat less effective."""
@@ -372,7 +374,7 @@ def _gradient_then_polish(
     def budget_left() -> int | None:
         return None if stopping.max_evaluations is None else stopping.max_evaluations - total
 
-    stages = [(None, SLSQP_RESTARTS), (_POLISH, 1)]
+    stages = [(None, SLSQP_RESTARTS), (_POLISH, POLISH_ROUNDS)]
     for algo, times in stages:
         for _ in range(times):
             left = budget_left()
@@ -400,11 +402,13 @@ def _gradient_then_polish(
             )
             total += r.evaluations
             hist += r.history
-            improved = r.worst_margin > best.worst_margin + 1e-6
-            if improved:
+            gain = r.worst_margin - best.worst_margin
+            if gain > 1e-6:
                 best = r
-            elif algo is None:
+            if algo is None and gain <= 1e-6:
                 break  # a restart that finds nothing new will not find it the next time either
+            if algo is not None and (gain < STALL_DB or (cap is not None and r.evaluations < cap)):
+                break  # the polish converged, or stopped gaining: another round buys nothing
     return RunRecord(best.z, best.worst_margin, total, best.status, hist)
 
 

@@ -64,12 +64,13 @@ def gap_capacitances(
     if model == "garg-bahl":
         w_in = np.asarray(w_in, float)
         w_out = np.asarray(w_out, float)
-        mid = discontinuities.garg_bahl_gap(np.sqrt(w_in * w_out), s, sub.height, sub.eps_r)
         if np.array_equal(w_in, w_out):
-            return mid
-        c_in = discontinuities.garg_bahl_gap(w_in, s, sub.height, sub.eps_r).c_shunt_in
-        c_out = discontinuities.garg_bahl_gap(w_out, s, sub.height, sub.eps_r).c_shunt_out
-        return discontinuities.GapCapacitances(mid.c_series, c_in, c_out)
+            return discontinuities.garg_bahl_gap(w_in, s, sub.height, sub.eps_r)
+        # the mean, input and output widths in one call of the model
+        shape = np.broadcast_shapes(w_in.shape, w_out.shape, np.shape(s))
+        w3 = np.stack([np.broadcast_to(x, shape) for x in (np.sqrt(w_in * w_out), w_in, w_out)])
+        c = discontinuities.garg_bahl_gap(w3, np.broadcast_to(s, shape), sub.height, sub.eps_r)
+        return discontinuities.GapCapacitances(c.c_series[0], c.c_shunt_in[1], c.c_shunt_out[2])
     if model == "kirschning-jansen-koster":
         return discontinuities.kirschning_jansen_koster_gap(w_in, w_out, s, sub.height, sub.eps_r)
     if model == "altschuler-oliner":
