@@ -28,7 +28,7 @@ START, END = "<!-- design-example:start -->", "<!-- design-example:end -->"
 
 
 def example_output() -> str:
-    """The console lines of the example run, status line to the last dimension; its two
+    """The console lines of the example run, status line to the last dimension; its four
     pictures are copied into docs/."""
     buf = io.StringIO()
     with tempfile.TemporaryDirectory() as tmp, contextlib.redirect_stdout(buf):
@@ -39,6 +39,8 @@ def example_output() -> str:
         for name, target in (
             ("response.png", "x-band-response.png"),
             ("layout.png", "x-band-layout.png"),
+            ("passband.png", "x-band-passband.png"),
+            ("smith.png", "x-band-smith.png"),
         ):
             shutil.copyfile(out / name, ROOT / "docs" / target)
     text = buf.getvalue()

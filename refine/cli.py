@@ -19,8 +19,10 @@ from __future__ import annotations
 import argparse
 import sys
 from collections.abc import Sequence
+from contextlib import nullcontext
 
 from refine.optimise.strategy import Strategy
+from refine.outputs.painters import Painters
 from refine.spec.limits import MAX_DESIGNS
 from refine.validity import InternalError
 from refine.version import VERSION
@@ -73,8 +75,15 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument(
         "--out",
         metavar="DIR",
-        help="folder for the hand-over files (summary.json, "
-        "layout.json, response.s2p, layout.dxf, layout.svg, response.png, layout.png, report.md)",
+        help="folder for the hand-over files (summary.json, layout.json, response.s2p, the "
+        "artwork as layout.dxf, layout.svg, layout.gds, layout.kicad_mod and Gerber X2 "
+        "layout-copper.gbr, layout-outline.gbr, layout-ports.gbr; response.png, passband.png, "
+        "smith.png, layout.png, report.md)",
+    )
+    p.add_argument(
+        "--dxf-r12",
+        action="store_true",
+        help="write layout.dxf as DXF R12 (the oldest widely read DXF) instead of R2010",
     )
     p.add_argument("--force", action="store_true", help="replace output files already in DIR")
     p.add_argument(
@@ -215,9 +224,13 @@ def main(argv: Sequence[str] | None = None) -> int:
     ap = build_parser()
     args = ap.parse_args(argv)
     try:
-        from refine import commands  # the numerical stack loads here, once the input parsed
+        # the hand-over's drawing processes start first: their imports overlap refine's own
+        drawing = args.run == "design" and getattr(args, "out", None) is not None
+        with Painters() if drawing else nullcontext() as painters:
+            args.painters = painters
+            from refine import commands  # the numerical stack loads here, once the input parsed
 
-        return int(commands.COMMANDS[args.run](args))
+            return int(commands.COMMANDS[args.run](args))
     except InternalError as e:
         print(f"refine: internal error: {e}", file=sys.stderr)
         return 3

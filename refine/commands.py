@@ -22,6 +22,7 @@ from refine.optimise.refiner import RefineResult, Status, refine_problem
 from refine.optimise.space import fab_violations
 from refine.outputs import export, plot, report
 from refine.outputs import files as outputs
+from refine.outputs.painters import Painters
 from refine.spec.coupling import Coupling
 from refine.spec.mask import MaskResult
 from refine.spec.problem import load_problem
@@ -326,6 +327,16 @@ def _cmd_design(args: argparse.Namespace) -> int:
         outputs.prepare_folder(args.out, args.force)  # refuse before any work or any write
     if args.fullwave is not None:
         _fullwave_ready(problem, args)
+    # the drawing processes (started by the command line, or now): their imports overlap
+    # the refinement
+    given = getattr(args, "painters", None)
+    if given is not None or args.out is None:
+        return _design(problem, args, given)
+    with Painters() as painters:
+        return _design(problem, args, painters)
+
+
+def _design(problem, args: argparse.Namespace, painters) -> int:
     stopping = Stopping(max_evaluations=args.max_evaluations, target_margin_db=args.margin)
     sd = job.seed(problem)
     _print_seed(sd)
@@ -376,7 +387,14 @@ def _cmd_design(args: argparse.Namespace) -> int:
         r = _centre(problem, r, args)
     if args.out is not None:
         written = outputs.write_outputs(
-            r, sd, args.out, args.power, args.force, said=outputs.CLI_NAMES
+            r,
+            sd,
+            args.out,
+            args.power,
+            args.force,
+            said=outputs.CLI_NAMES,
+            dxf_version="R12" if args.dxf_r12 else "R2010",
+            painters=painters,
         )
         print()
         print(f"wrote {len(written)} files to {args.out}: " + ", ".join(w.name for w in written))

@@ -2,6 +2,7 @@
 
 import numpy as np
 import pytest
+from conftest import ROOT
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.constants import c as C0
@@ -263,3 +264,40 @@ def test_bad_input(call, message):
     with pytest.raises(ValueError) as exc:
         call()
     assert message in str(exc.value)
+
+
+def test_group_delay_of_a_matched_line_is_its_length_over_the_phase_velocity():
+    # a matched lossless TEM line: S21 = exp(-j beta l), so tau = l sqrt(eps_r) / c exactly
+    # (common practice, no source)
+    f = np.linspace(1e9, 10e9, 7)
+    eps_r, length = 2.2, 0.037
+
+    def line(g):
+        beta = 2 * np.pi * g * np.sqrt(eps_r) / C0
+        return [cascade.Line(1j * beta, np.full(g.shape, 50.0 + 0j), length)]
+
+    tau = cascade.group_delay(line, f, 50.0)
+    np.testing.assert_allclose(tau, length * np.sqrt(eps_r) / C0, rtol=1e-9)
+
+
+def test_group_delay_matches_the_phase_slope_of_a_dispersive_filter():
+    # the chain-rule derivative against central differences of the unwrapped phase on a fine
+    # grid (where unwrapping is safe): they agree to the differences' own error
+    import warnings
+
+    from refine import design, load_problem
+    from refine.circuit.response import layout_group_delay, layout_response, strip_medium_for
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        p = load_problem(ROOT / "problems" / "microstrip-x-band-alumina-n3.toml")
+        lay = design(p).layout
+        med = strip_medium_for(p)
+        f = np.linspace(p.mask.passband_start, p.mask.passband_stop, 4001)
+        tau = layout_group_delay(lay, med, p.gap_model, f, p.z_ref)
+        s21 = layout_response(lay, med, p.gap_model, f, p.z_ref)[:, 1, 0]
+        # on a coarse grid the exact delay is the same numbers, where differences would fail
+        coarse = layout_group_delay(lay, med, p.gap_model, f[::400], p.z_ref)
+    slope = -np.gradient(np.unwrap(np.angle(s21)), 2 * np.pi * f)
+    np.testing.assert_allclose(tau[1:-1], slope[1:-1], rtol=1e-5)
+    np.testing.assert_allclose(coarse, tau[::400], rtol=1e-12)

@@ -37,7 +37,14 @@ def test_every_output_file_is_written(alumina_out):
             "response.s2p",
             "layout.dxf",
             "layout.svg",
+            "layout.gds",
+            "layout.kicad_mod",
+            "layout-copper.gbr",
+            "layout-outline.gbr",
+            "layout-ports.gbr",
             "response.png",
+            "passband.png",
+            "smith.png",
             "layout.png",
             "report.md",
         ]
@@ -83,6 +90,7 @@ def test_dxf_passes_ezdxf_audit(alumina_out):
     assert not auditor.has_errors
     copper = [e for e in doc.modelspace() if e.dxf.layer == "copper"]
     assert len(copper) == 5  # two feeds and three resonators, separated by real openings
+    assert {e.dxf.layer for e in doc.modelspace()} >= {"copper", "outline", "ports"}
     xs = sorted(
         (min(p[0] for p in e.get_points()), max(p[0] for p in e.get_points())) for e in copper
     )
@@ -92,13 +100,14 @@ def test_dxf_passes_ezdxf_audit(alumina_out):
 
 
 def test_pictures_are_valid_png(alumina_out):
-    for name in ("response.png", "layout.png"):
+    for name in ("response.png", "layout.png", "passband.png", "smith.png"):
         data = (alumina_out / name).read_bytes()
         assert data[:8] == b"\x89PNG\r\n\x1a\n"
         img = matplotlib.image.imread(alumina_out / name)
-        assert img.shape[0] > 300 and img.shape[1] > 800
+        assert img.shape[0] > 300 and img.shape[1] > 500
     svg = (alumina_out / "layout.svg").read_text()
-    assert svg.startswith("<svg") and svg.count("<rect") == 6  # background + five strips
+    # background, then one copper path per piece (five), the outline and two port markers
+    assert svg.startswith("<svg") and svg.count("<rect") == 1 and svg.count("<path") == 8
 
 
 def test_report_carries_the_job_and_the_cautions(alumina_out):
@@ -390,3 +399,28 @@ def test_the_touchstone_sweep_covers_every_mask_region():
     f = sweep(replace(p, mask=low))
     assert f[0] == pytest.approx(1e9) and 8e9 in f
     assert f[-1] >= max(sb.stop for sb in p.mask.stopbands)
+
+
+def test_summary_gives_vswr_group_delay_and_the_safe_power(alumina_out):
+    from refine.circuit.response import evaluate_layout
+    from refine.outputs import report
+    from refine.spec.problem import load_problem
+
+    s = json.loads((alumina_out / "summary.json").read_text())
+    p = load_problem(ALUMINA)
+    lay = export.read_layout(alumina_out / "layout.json")
+    f = np.linspace(p.mask.passband_start, p.mask.passband_stop, 401)
+    g = np.abs(evaluate_layout(p, lay, f)[:, 0, 0]).max()
+    pb = s["passband"]
+    assert pb["worst_vswr"] == pytest.approx((1 + g) / (1 - g), rel=1e-9)
+    assert pb["worst_return_loss_db"] >= 14.0  # the mask's requirement, met
+    assert 0.5e-9 < pb["midband_group_delay_s"] < 5e-9 and pb["group_delay_spread_s"] > 0
+    # at the safe power the highest gap voltage is exactly at its limit: V scales as sqrt(P)
+    p_max = s["max_safe_input_power_w"]
+    ratio = max(
+        v * np.sqrt(p_max / s["input_power_w"]) / (report.BREAKDOWN_V_PER_M * gap)
+        for v, gap in zip(s["peak_gap_voltage_v"], lay.gaps, strict=True)
+    )
+    assert ratio == pytest.approx(1.0, rel=1e-9)
+    text = (alumina_out / "report.md").read_text()
+    assert "Largest safe input power" in text and "## Passband" in text and "worst VSWR" in text

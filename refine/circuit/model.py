@@ -320,9 +320,12 @@ class StripFilterModel:
         """The widths' derivatives through the lines' γ, z_c and the stubs' open ends (the gaps'
         part is :meth:`_gap_gradient`'s)."""
         col = [self._position[(Dim.WIDTH, j)] for j in range(self.order)]
-        for e, j in emap.lines:
-            acc.add_spectrum(col[j], e, "gamma", steps.dgamma[j])
-            acc.add_spectrum(col[j], e, "z_c", steps.dz_c[j])
+        if emap.lines:
+            elements = [e for e, _ in emap.lines]
+            owners = [j for _, j in emap.lines]
+            dims = [col[j] for j in owners]
+            acc.add_spectra(dims, elements, "gamma", steps.dgamma[owners])
+            acc.add_spectra(dims, elements, "z_c", steps.dz_c[owners])
         if emap.open_ends:  # a tapped stub's open-end extension follows its resonator's width
             med, w, h = self.medium, steps.w, steps.h
             dl = (open_end_extensions(med, w + h) - open_end_extensions(med, w - h)) / (2 * h)
@@ -375,9 +378,15 @@ class _Chain:
         self.factors.extend(list(f) if self.batch else f.tolist())
 
     def add_spectrum(self, dim: int, element: int, name: str, factor: NDArray) -> None:
-        self.s_dims.append(dim)
-        self.s_rows.append(self.index[(element, name)])
-        self.spectra.append(factor)
+        self.add_spectra([dim], [element], name, np.asarray(factor)[None])
+
+    def add_spectra(
+        self, dims: list[int], elements: list[int], name: str, factors: NDArray
+    ) -> None:
+        """:meth:`add_spectrum` for many pairs: ``factors`` is ``(m, [B,] nf)``."""
+        self.s_dims.extend(dims)
+        self.s_rows.extend(self.index[(e, name)] for e in elements)
+        self.spectra.append(factors)
 
     def total(
         self, n_dims: int, d11: NDArray, d21: NDArray, both: NDArray | None = None
@@ -386,33 +395,35 @@ class _Chain:
         ``both`` is ``d11`` and ``d21`` stacked, when the caller has them so.
 
         Every term (a factor, or a spectrum, times one parameter's derivative) is formed in
-        one product, sorted by dimension and summed per dimension with one reduction: the
+        one product, sorted by dimension and summed per dimension: the
         chain rule's matrix is sparse (a parameter moves one or two dimensions)."""
         if both is None:
             both = np.stack([d11, d21])  # (2, P, [B,] nf)
         tail = both.shape[2:]
-        if self.batch is None:
-            coef = [
-                np.broadcast_to(
-                    np.asarray(self.factors, float)[:, None], (len(self.factors), *tail)
-                )
-            ]
+        if self.batch is None:  # the factors as a column against the (.., nf) rows
+            coef = np.asarray(self.factors, float).reshape(-1, *([1] * len(tail)))
         else:
             fac = np.array([np.broadcast_to(x, (self.batch,)) for x in self.factors])
-            coef = [np.broadcast_to(fac[..., None], (len(self.factors), *tail))]
-        if self.spectra:
-            coef.append(np.array([np.broadcast_to(x, tail) for x in self.spectra]))
+            coef = fac.reshape(len(self.factors), self.batch, 1)
         dims = np.asarray(self.dims + self.s_dims, np.intp)
         rows = np.asarray(self.rows + self.s_rows, np.intp)
         if dims.size == 0:
             out = np.zeros((2, *tail[:-1], n_dims, tail[-1]), complex)
             return out[0], out[1]
+        m = len(self.dims)
+        terms = np.empty((2, dims.size, *tail), complex)
+        terms[:, :m] = coef * both[:, rows[:m]]
+        if self.spectra:
+            block = np.concatenate([np.broadcast_to(x, (x.shape[0], *tail)) for x in self.spectra])
+            terms[:, m:] = block * both[:, rows[m:]]
         order = np.argsort(dims, kind="stable")
         d_sorted = dims[order]
         starts = np.flatnonzero(np.r_[True, d_sorted[1:] != d_sorted[:-1]])
-        terms = np.concatenate(coef)[order] * both[:, rows[order]]  # (2, M, [B,] nf)
+        terms = terms[:, order]
         out = np.zeros((2, n_dims, *tail), complex)
-        out[:, d_sorted[starts]] = np.add.reduceat(terms, starts, axis=1)
+        ends = [*starts[1:].tolist(), dims.size]
+        for a, b in zip(starts.tolist(), ends, strict=True):  # faster than np.add.reduceat here
+            out[:, d_sorted[a]] = terms[:, a] if b == a + 1 else terms[:, a:b].sum(axis=1)
         if self.batch is not None:
             out = np.moveaxis(out, 2, 1)  # (2, B, n_dims, nf)
         return out[0], out[1]

@@ -84,6 +84,21 @@ def layout_response(
     )
 
 
+def layout_group_delay(
+    layout: Layout,
+    medium: StripMedium,
+    gap_model: str,
+    f: ArrayLike,
+    z_ref: float,
+    adjust: Adjustments | None = None,
+) -> NDArray[np.float64]:
+    """Group delay of S21 (seconds) of a layout, exact through the cascade
+    (:func:`refine.circuit.cascade.group_delay`)."""
+    return cascade.group_delay(
+        lambda g: layout_build(layout, medium, gap_model, g, adjust).elements, f, z_ref
+    )
+
+
 def evaluate_layout(
     problem: Problem, layout: Layout, f: ArrayLike, adjust: Adjustments | None = None
 ) -> NDArray[np.complex128]:

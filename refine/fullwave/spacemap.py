@@ -51,7 +51,7 @@ from refine.circuit.response import evaluate_layout, strip_medium_for, verificat
 from refine.fullwave import verify
 from refine.optimise.minimax import Stopping, minimax
 from refine.optimise.space import DesignSpace, mirror_ties, snap_layout, step_space
-from refine.outputs import export
+from refine.outputs import artwork, export
 from refine.outputs.files import locked_folder
 from refine.spec.coupling import Coupling
 from refine.spec.problem import Problem
@@ -435,7 +435,11 @@ def _write_corrected(sm: Correction, out: Path) -> list[Path]:
     ]
     return [
         export.write_json(out / names[0], export.layout_dict(lay)),
-        export.write_dxf(out / names[1], lay, f"{sm.problem.name} (EM-corrected)"),
+        artwork.write_dxf_artwork(
+            out / names[1],
+            artwork.artwork(lay, sm.problem.fab.etch_bias if sm.problem.fab else 0.0),
+            title=f"{sm.problem.name} (EM-corrected)",
+        ),
         export.write_json(
             out / names[2],
             {

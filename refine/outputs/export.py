@@ -1,4 +1,5 @@
-"""Hand-over files: Touchstone, layout JSON, copper drawing (DXF, SVG), written atomically.
+"""Hand-over files: Touchstone, layout JSON and the copper rectangles every drawing starts
+from (:mod:`refine.outputs.artwork` draws them), written atomically.
 
 Every file is written to a temporary file in the target folder and renamed into place, so a
 reader never sees a half-written file and an interrupted run leaves the previous file intact.
@@ -15,7 +16,6 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
-from xml.sax.saxutils import escape as xml_escape
 
 import numpy as np
 from numpy.typing import NDArray
@@ -190,42 +190,6 @@ def copper(layout: Layout, feed_length: float | None = None) -> list[Strip]:
     return out
 
 
-def write_dxf(path: str | Path, layout: Layout, title: str = "") -> Path:
-    """Copper outline in millimetres: layer ``copper`` (closed polylines, the gaps are real
-    openings between them) and layer ``labels`` (names and the gap widths)."""
-    import ezdxf
-    from ezdxf import units
-
-    def writer(tmp: Path) -> None:
-        doc = ezdxf.new("R2010")
-        doc.units = units.MM
-        doc.layers.add("copper", color=1)
-        doc.layers.add("labels", color=7)
-        msp = doc.modelspace()
-        strips = copper(layout)
-        for st in strips:
-            pts = [
-                (st.x0 * 1e3, st.y0 * 1e3),
-                (st.x1 * 1e3, st.y0 * 1e3),
-                (st.x1 * 1e3, st.y1 * 1e3),
-                (st.x0 * 1e3, st.y1 * 1e3),
-            ]
-            msp.add_lwpolyline(pts, close=True, dxfattribs={"layer": "copper"})
-        h = max(layout.feed_width, max(layout.widths)) * 1e3
-        for st in strips:
-            msp.add_text(st.name, height=0.15 * h, dxfattribs={"layer": "labels"}).set_placement(
-                ((st.x0 + st.x1) / 2 * 1e3, st.y1 * 1e3 + 0.3 * h)
-            )
-        if title:
-            msp.add_text(
-                one_line(title), height=0.25 * h, dxfattribs={"layer": "labels"}
-            ).set_placement((strips[0].x0 * 1e3, -3 * h))
-        doc.header["$INSUNITS"] = 4  # millimetres
-        doc.saveas(tmp)
-
-    return write_atomic(path, writer)
-
-
 def one_line(text: str, limit: int = 200) -> str:
     """``text`` as a single printable line of at most ``limit`` characters: control characters
     (line breaks included) become spaces, and a longer text is cut with an ellipsis. Every
@@ -233,34 +197,6 @@ def one_line(text: str, limit: int = 200) -> str:
     in a Touchstone header or a DXF text."""
     flat = "".join(" " if unicodedata.category(c) in ("Cc", "Zl", "Zp") else c for c in text)
     return flat if len(flat) <= limit else flat[: limit - 1] + "…"
-
-
-def svg_text(layout: Layout, title: str = "") -> str:
-    """The same copper as an SVG drawing in millimetres (y up in the layout, down in SVG)."""
-    strips = copper(layout)
-    xs = [v for s in strips for v in (s.x0, s.x1)]
-    ys = [v for s in strips for v in (s.y0, s.y1)]
-    pad = 0.1 * (max(xs) - min(xs))
-    x0, x1 = (min(xs) - pad) * 1e3, (max(xs) + pad) * 1e3
-    y0, y1 = (min(ys) - pad) * 1e3, (max(ys) + pad) * 1e3
-    w, h = x1 - x0, y1 - y0
-    parts = [
-        f'<svg xmlns="http://www.w3.org/2000/svg" width="{w:.4f}mm" height="{h:.4f}mm" viewBox="{x0:.5f} {-y1:.5f} {w:.5f} {h:.5f}">',
-        f"<title>{xml_escape(one_line(title or 'refine layout'))}</title>",
-        f'<rect x="{x0:.5f}" y="{-y1:.5f}" width="{w:.5f}" height="{h:.5f}" fill="white"/>',
-        '<g id="copper" fill="#b87333" stroke="none">',
-    ]
-    for s in strips:
-        parts.append(
-            f'<rect x="{s.x0 * 1e3:.5f}" y="{-s.y1 * 1e3:.5f}" width="{(s.x1 - s.x0) * 1e3:.5f}" '
-            f'height="{(s.y1 - s.y0) * 1e3:.5f}"><title>{xml_escape(s.name)}</title></rect>'
-        )
-    parts.append("</g></svg>")
-    return "\n".join(parts) + "\n"
-
-
-def write_svg(path: str | Path, layout: Layout, title: str = "") -> Path:
-    return write_text_atomic(path, svg_text(layout, title))
 
 
 def json_safe(o: Any) -> Any:

@@ -1,29 +1,37 @@
 """Write every hand-over file of a refined design into one folder.
 
-Files: summary.json, layout.json, response.s2p, layout.dxf, layout.svg, response.png,
-layout.png, report.md (the ideal medium has no copper, so no DXF, SVG or layout picture). Each
-file is written atomically; an existing output file is never replaced unless ``force``.
+Files: summary.json, layout.json, response.s2p, the artwork (:data:`refine.outputs.artwork.FILES`:
+DXF, SVG, GDSII, KiCad footprint, three Gerber X2 layers), response.png, layout.png, report.md
+(the ideal medium has no copper, so no artwork or layout picture). Each file is written
+atomically; an existing output file is never replaced unless ``force``.
 """
 
 from __future__ import annotations
 
 import fcntl
 import os
-from collections.abc import Iterator
+import warnings
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
+from refine import validity
+from refine.circuit import cascade
+from refine.circuit.builder import ideal_elements
 from refine.circuit.response import (
     evaluate_electrical,
     evaluate_layout,
+    layout_group_delay,
     spread_verdicts,
     strip_medium_for,
 )
 from refine.optimise import seed as job
 from refine.optimise.refiner import RefineResult
-from refine.outputs import export, plot, report
+from refine.outputs import artwork, export, plot, report
+from refine.outputs.painters import Painters
 from refine.spec.coupling import Coupling
 from refine.spec.problem import Problem
 from refine.synthesis import inverters
@@ -34,9 +42,10 @@ OUTPUT_FILES = (
     "summary.json",
     "layout.json",
     "response.s2p",
-    "layout.dxf",
-    "layout.svg",
+    *artwork.FILES,
     "response.png",
+    "passband.png",
+    "smith.png",
     "layout.png",
     "report.md",
 )
@@ -138,6 +147,24 @@ def responses(r: RefineResult, f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return evaluate_layout(p, lay, f), evaluate_layout(p, seed, f)
 
 
+def passband_sweep(r: RefineResult, n: int = 601) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Frequencies (the passband and half its width either side), the refined design's
+    S-matrix and its exact group delay there."""
+    p = r.problem
+    lo, hi = p.mask.passband_start, p.mask.passband_stop
+    f = np.linspace(max(lo - 0.5 * (hi - lo), 1e-3 * lo), hi + 0.5 * (hi - lo), n)
+    if r.layout is not None:
+        s = evaluate_layout(p, r.layout, f)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", validity.ModelRangeWarning)
+            tau = layout_group_delay(r.layout, strip_medium_for(p), p.gap_model, f, p.z_ref)
+        return f, s, tau
+    caps, thetas = r.electrical
+    s = evaluate_electrical(caps, thetas, p.f0, p.z_ref, f)
+    tau = cascade.group_delay(lambda g: ideal_elements(caps, thetas, p.f0, p.z_ref, g), f, p.z_ref)
+    return f, s, tau
+
+
 def write_outputs(
     r: RefineResult,
     sd: job.Seed,
@@ -145,14 +172,28 @@ def write_outputs(
     power_w: float = 1.0,
     force: bool = False,
     said: tuple[str, str] = API_NAMES,
+    dxf_version: str = "R2010",
+    painters: Painters | None = None,
 ) -> list[Path]:
     """Write every hand-over file; returns the paths written. A clash in ``out`` is refused
-    unless ``force``; ``said`` names them in messages (the command passes its options)."""
+    unless ``force``; ``said`` names them in messages (the command passes its options).
+    ``dxf_version`` is "R2010" or "R12" (for shops that ask for the oldest DXF). ``painters``
+    are drawing processes started earlier (see :class:`Painters`); by default they start here."""
     with locked_folder(out, force, said=said) as folder:
-        return _write_all(r, sd, folder, power_w)
+        if painters is not None:
+            return _write_all(r, sd, folder, power_w, dxf_version, painters)
+        with Painters() as own:
+            return _write_all(r, sd, folder, power_w, dxf_version, own)
 
 
-def _write_all(r: RefineResult, sd: job.Seed, out: Path, power_w: float) -> list[Path]:
+def _write_all(
+    r: RefineResult,
+    sd: job.Seed,
+    out: Path,
+    power_w: float,
+    dxf_version: str,
+    painters: Painters,
+) -> list[Path]:
     p = r.problem
     f = sweep(p)
     s_ref, s_seed = responses(r, f)
@@ -178,7 +219,26 @@ def _write_all(r: RefineResult, sd: job.Seed, out: Path, power_w: float) -> list
     }[r.status.value]
     title = export.one_line(p.name)
     plot_title = title.replace("$", r"\$")  # a name is text, never matplotlib mathtext
+    f_pb, s_pb, tau = passband_sweep(r)
+    pictures: list[tuple[Callable[..., Any], tuple]] = []
+    if r.layout is not None:
+        pictures.append((plot.layout_png, (out / "layout.png", r.layout, plot_title)))
+    pictures += [
+        (plot.response_png, (out / "response.png", f, s_ref, s_seed, p.mask, plot_title, status)),
+        (plot.passband_png, (out / "passband.png", f_pb, s_pb, tau, p.mask, plot_title, status)),
+        (plot.smith_png, (out / "smith.png", f, s_ref[:, 0, 0], p.mask, plot_title)),
+    ]
+    if r.layout is not None:  # the artwork too goes to the workers: ezdxf's import is slow
+        assert p.fab is not None  # a strip layout has fab rules
+        pictures.insert(
+            0,
+            (
+                artwork.write_artwork,
+                (out, r.layout, p.fab.etch_bias, f"{title} ({status})", dxf_version),
+            ),
+        )
     written = []
+    painters.draw(pictures)
     written.append(
         export.write_json(out / "summary.json", report.summary(r, sd, spread, power_w, notes))
     )
@@ -196,14 +256,7 @@ def _write_all(r: RefineResult, sd: job.Seed, out: Path, power_w: float) -> list
         f"gap model: {p.gap_model}; medium: {p.medium}",
     ]
     written.append(export.write_touchstone(out / "response.s2p", f, s_ref, p.z_ref, comments))
-    if r.layout is not None:
-        written.append(export.write_dxf(out / "layout.dxf", r.layout, f"{title} ({status})"))
-        written.append(export.write_svg(out / "layout.svg", r.layout, f"{title} ({status})"))
-        written.append(plot.layout_png(out / "layout.png", r.layout, plot_title))
-    written.append(
-        plot.response_png(out / "response.png", f, s_ref, s_seed, p.mask, plot_title, status)
-    )
-    written.append(
-        export.write_text_atomic(out / "report.md", report.report_md(r, sd, spread, power_w, notes))
-    )
+    report_text = report.report_md(r, sd, spread, power_w, notes)
+    written += painters.collect()
+    written.append(export.write_text_atomic(out / "report.md", report_text))
     return written

@@ -136,6 +136,130 @@ def response_png(
     return _save(fig, path, 120)
 
 
+def passband_png(
+    path: str | Path,
+    f: NDArray,
+    s: NDArray,
+    tau: NDArray,
+    mask: Mask,
+    title: str,
+    status: str,
+) -> Path:
+    """The passband close up: insertion loss and return loss (dB, as positive losses) with
+    the mask's requirements, and the group delay (ns, exact from the cascade's frequency
+    derivative). ``f`` should span the passband and a little either side."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    ghz = f * 1e-9
+    lo, hi = mask.passband_start * 1e-9, mask.passband_stop * 1e-9
+    il = -_db(s[:, 1, 0])
+    rl = -_db(s[:, 0, 0])
+    fig, (a_il, a_rl, a_gd) = plt.subplots(
+        3, 1, figsize=(8, 7.5), sharex=True, layout="constrained"
+    )
+    for ax in (a_il, a_rl, a_gd):
+        ax.axvspan(lo, hi, color="0.92", lw=0, label="passband")
+        ax.grid(True, alpha=0.3)
+    a_il.plot(ghz, il, color="tab:blue", lw=1.8, label="insertion loss")
+    inband = (f >= mask.passband_start) & (f <= mask.passband_stop)
+    top = float(np.max(il[inband])) if inband.any() else float(np.max(il))
+    if mask.max_insertion_loss_db is not None:
+        a_il.plot(
+            [mask.midband * 1e-9],
+            [mask.max_insertion_loss_db],
+            "v",
+            color="tab:red",
+            label=f"midband limit {mask.max_insertion_loss_db:g} dB",
+        )
+        top = max(top, mask.max_insertion_loss_db)
+    if mask.max_ripple_db is not None:
+        floor = float(np.min(il[inband])) if inband.any() else 0.0
+        a_il.hlines(
+            floor + mask.max_ripple_db,
+            lo,
+            hi,
+            colors="tab:red",
+            lw=1.2,
+            label=f"ripple limit {mask.max_ripple_db:g} dB above the least loss",
+        )
+        top = max(top, floor + mask.max_ripple_db)
+    a_il.set_ylim(max(0.0, float(np.min(il)) - 0.2), 1.5 * top + 0.3)
+    a_il.invert_yaxis()
+    a_il.set_ylabel("insertion loss (dB)")
+    a_il.legend(loc="lower center", fontsize=7)
+    a_rl.plot(ghz, rl, color="tab:orange", lw=1.8, label="return loss")
+    if mask.min_return_loss_db is not None:
+        a_rl.hlines(
+            mask.min_return_loss_db,
+            lo,
+            hi,
+            colors="tab:red",
+            lw=1.2,
+            label=f"required {mask.min_return_loss_db:g} dB",
+        )
+    a_rl.set_ylim(0, max(40.0, float(np.max(rl[inband])) + 5 if inband.any() else 40.0))
+    a_rl.invert_yaxis()
+    a_rl.set_ylabel("return loss (dB)")
+    a_rl.legend(loc="lower center", fontsize=7)
+    a_gd.plot(ghz, tau * 1e9, color="tab:green", lw=1.8, label="group delay")
+    a_gd.set_ylabel("group delay (ns)")
+    a_gd.set_xlabel("frequency (GHz)")
+    a_gd.set_xlim(ghz[0], ghz[-1])
+    a_gd.legend(loc="upper center", fontsize=7)
+    fig.suptitle(f"{title} — {status}: passband", fontsize=11)
+    return _save(fig, path, 110)
+
+
+def smith_png(path: str | Path, f: NDArray, s11: NDArray, mask: Mask, title: str) -> Path:
+    """S11 on a Smith chart (impedance grid: circles of constant normalised resistance and arcs
+    of constant reactance), the passband drawn thick, its edges marked."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    fig, ax = plt.subplots(figsize=(6.2, 6.2), layout="constrained")
+    t = np.linspace(0.0, 2.0 * np.pi, 361)
+    ax.plot(np.cos(t), np.sin(t), color="0.3", lw=1.0)
+    for res in (0.2, 0.5, 1.0, 2.0, 5.0):  # constant resistance: centre r/(1+r), radius 1/(1+r)
+        c, rad = res / (1.0 + res), 1.0 / (1.0 + res)
+        ax.plot(c + rad * np.cos(t), rad * np.sin(t), color="0.8", lw=0.7)
+        ax.text(c - rad, 0.01, f"{res:g}", fontsize=6, color="0.4", ha="right", va="bottom")
+    r_axis = np.concatenate([np.linspace(0.0, 10.0, 400), np.geomspace(10.0, 1e4, 100)])
+    for x in (0.2, 0.5, 1.0, 2.0, 5.0):  # constant reactance: gamma of z = r + jx for r >= 0
+        for sign in (1.0, -1.0):
+            z = r_axis + 1j * sign * x
+            g = (z - 1.0) / (z + 1.0)
+            ax.plot(g.real, g.imag, color="0.8", lw=0.7)
+    ax.plot([-1.0, 1.0], [0.0, 0.0], color="0.8", lw=0.7)
+    ax.plot(s11.real, s11.imag, color="tab:orange", lw=0.8, label="S11, whole sweep")
+    inband = (f >= mask.passband_start) & (f <= mask.passband_stop)
+    if inband.any():
+        ax.plot(s11[inband].real, s11[inband].imag, color="tab:red", lw=2.2, label="passband")
+        for k, mk in ((np.flatnonzero(inband)[0], "o"), (np.flatnonzero(inband)[-1], "s")):
+            ax.plot(s11[k].real, s11[k].imag, mk, color="tab:red", ms=5)
+    if mask.min_return_loss_db is not None:
+        rho = 10 ** (-mask.min_return_loss_db / 20.0)
+        ax.plot(
+            rho * np.cos(t),
+            rho * np.sin(t),
+            "--",
+            color="tab:green",
+            lw=1.0,
+            label=f"|S11| for {mask.min_return_loss_db:g} dB return loss",
+        )
+    ax.set_xlim(-1.05, 1.05)
+    ax.set_ylim(-1.05, 1.05)
+    ax.set_aspect("equal")
+    ax.axis("off")
+    ax.legend(loc="lower left", fontsize=7, frameon=False)
+    ax.set_title(f"{title}: S11 (circle: passband start, square: its stop)", fontsize=9)
+    return _save(fig, path, 110)
+
+
 def layout_png(path: str | Path, layout: Layout, title: str) -> Path:
     """The copper to scale (millimetres) with the gaps, lengths and widths labelled."""
     import matplotlib

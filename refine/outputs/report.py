@@ -17,11 +17,13 @@ import numpy as np
 
 from refine import validity
 from refine.circuit import cascade
+from refine.circuit.builder import ideal_elements
 from refine.circuit.layout import Layout
 from refine.circuit.response import (
     evaluate_electrical,
     evaluate_layout,
     layout_build,
+    layout_group_delay,
     strip_medium_for,
 )
 from refine.optimise import seed as job
@@ -84,6 +86,48 @@ def gap_voltages(r: RefineResult, power_w: float) -> list[float]:
         dv = (states[e][0] - states[e + 1][0]) * scale
         out.append(float(np.max(np.abs(dv))))
     return out
+
+
+def safe_power(power_w: float, volts: list[float], gaps: tuple[float, ...]) -> tuple[float, int]:
+    """The largest input power (W) at which no gap's peak voltage reaches the conservative
+    limit (the voltages scale as the square root of the power), and the gap (index into
+    ``gaps``) that sets it."""
+    ratios = [
+        (BREAKDOWN_V_PER_M * g / vpk) ** 2 if vpk > 0 else math.inf
+        for g, vpk in zip(gaps, volts, strict=True)
+    ]
+    k = int(np.argmin(ratios))
+    return power_w * ratios[k], k
+
+
+def passband_figures(r: RefineResult, n: int = 401) -> dict[str, float]:
+    """Worst VSWR and return loss, worst and midband insertion loss, and the group delay
+    (midband, and its spread max - min) over the passband, of the refined design."""
+    p = r.problem
+    f = np.linspace(p.mask.passband_start, p.mask.passband_stop, n)
+    if r.layout is not None:
+        s = evaluate_layout(p, r.layout, f)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", validity.ModelRangeWarning)
+            tau = layout_group_delay(r.layout, strip_medium_for(p), p.gap_model, f, p.z_ref)
+    else:
+        caps, thetas = r.electrical
+        s = evaluate_electrical(caps, thetas, p.f0, p.z_ref, f)
+        tau = cascade.group_delay(
+            lambda g: ideal_elements(caps, thetas, p.f0, p.z_ref, g), f, p.z_ref
+        )
+    g11 = np.abs(s[:, 0, 0])
+    il = -20.0 * np.log10(np.maximum(np.abs(s[:, 1, 0]), 1e-300))
+    mid = int(np.argmin(np.abs(f - p.mask.midband)))
+    worst = float(np.max(g11))
+    return {
+        "worst_vswr": (1.0 + worst) / (1.0 - worst) if worst < 1.0 else math.inf,
+        "worst_return_loss_db": float(-20.0 * np.log10(max(worst, 1e-300))),
+        "worst_insertion_loss_db": float(np.max(il)),
+        "midband_insertion_loss_db": float(il[mid]),
+        "midband_group_delay_s": float(tau[mid]),
+        "group_delay_spread_s": float(np.max(tau) - np.min(tau)),
+    }
 
 
 def _dims(r: RefineResult) -> dict:
@@ -164,6 +208,11 @@ def summary(
         ],
         "peak_gap_voltage_v": volts,
         "input_power_w": power_w,
+        "max_safe_input_power_w": (
+            safe_power(power_w, volts, r.layout.gaps)[0] if r.layout is not None else None
+        ),
+        "breakdown_field_v_per_m": BREAKDOWN_V_PER_M,
+        "passband": passband_figures(r),
         "diagnosis": None
         if r.diagnosis is None
         else {
@@ -299,7 +348,12 @@ def report_md(
                 if p.strip_fab.min_width
                 else ""
             )
-            + (f", grid {p.strip_fab.grid * 1e6:.3g} um" if p.strip_fab.grid else ""),
+            + (f", grid {p.strip_fab.grid * 1e6:.3g} um" if p.strip_fab.grid else "")
+            + (
+                f", etch bias {p.strip_fab.etch_bias * 1e6:.3g} um per edge"
+                if p.strip_fab.etch_bias
+                else ""
+            ),
         ]
     lines += [
         "",
@@ -318,6 +372,18 @@ def report_md(
             "",
             f"Snapped to the shop's {grid * 1e6:g} um grid: worst margin {r.unsnapped_margin:+.2f} dB before, {r.snapped_margin:+.2f} dB after.",
         ]
+    pb = passband_figures(r)
+    lines += [
+        "",
+        "## Passband",
+        "",
+        f"- worst VSWR {pb['worst_vswr']:.3f} (return loss {pb['worst_return_loss_db']:.2f} dB)",
+        f"- insertion loss {pb['midband_insertion_loss_db']:.2f} dB at midband, "
+        f"{pb['worst_insertion_loss_db']:.2f} dB at worst",
+        f"- group delay {pb['midband_group_delay_s'] * 1e9:.3f} ns at midband, varying by "
+        f"{pb['group_delay_spread_s'] * 1e9:.3f} ns across the passband (exact, from the "
+        "cascade's frequency derivative)",
+    ]
     lines += ["", "## Dimensions", ""]
     if r.layout is None:
         caps, thetas = r.electrical
@@ -350,6 +416,19 @@ def report_md(
         lines.append(
             f"| total length | {lay.total_length * 1e3:.3f} mm | {seed.total_length * 1e3:.3f} mm |"
         )
+        bias = p.strip_fab.etch_bias
+        if bias > 0:
+            lines += [
+                "",
+                f"The artwork files are drawn for the shop's etch bias of {bias * 1e6:.3g} µm per "
+                "edge; the table above is as built. Drawn: every strip "
+                f"{2 * bias * 1e6:.3g} µm wider and longer, every gap {2 * bias * 1e6:.3g} µm "
+                "narrower (drawn gaps "
+                + ", ".join(f"{(g - 2 * bias) * 1e6:.2f} µm" for g in lay.gaps)
+                + "; drawn resonator widths "
+                + ", ".join(f"{(w + 2 * bias) * 1e6:.2f} µm" for w in lay.widths)
+                + ").",
+            ]
         volts = gap_voltages(r, power_w)
         lines += [
             "",
@@ -364,6 +443,13 @@ def report_md(
             lines.append(
                 f"| gap {k + first} | {gap * 1e6:.1f} µm | {vpk:.1f} V | {lim:.0f} V{flag} |"
             )
+        p_max, k_max = safe_power(power_w, volts, lay.gaps)
+        lines += [
+            "",
+            f"Largest safe input power: **{p_max:.3g} W** (continuous wave, matched source), set "
+            f"by gap {k_max + first}: there its peak voltage reaches the conservative 1 kV/mm "
+            "limit. Peak voltage scales as the square root of power.",
+        ]
     if r.diagnosis is not None:
         lines += ["", "## Diagnosis", ""]
         lines += [f"- {c}" for c in r.diagnosis.couplings]

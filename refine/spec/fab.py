@@ -19,6 +19,9 @@ class FabRules:
     grid : dimension grid the shop draws on, or None.
     gap_tolerance, width_tolerance : 1-sigma etch tolerances, or None (used for yield).
     max_total_length : longest allowed filter (end to end), or None.
+    etch_bias : what the shop's etch removes from every copper edge (>= 0, below half the
+        minimum gap): the artwork is drawn that much larger per edge, strips 2·etch_bias wider
+        and gaps 2·etch_bias narrower; every other dimension in refine is as built.
     """
 
     min_gap: float
@@ -27,6 +30,7 @@ class FabRules:
     gap_tolerance: float | None = None
     width_tolerance: float | None = None
     max_total_length: float | None = None
+    etch_bias: float = 0.0
 
     def __post_init__(self) -> None:
         v.positive("fab.min_gap", self.min_gap)
@@ -34,6 +38,7 @@ class FabRules:
             val = getattr(self, name)
             if val is not None:
                 v.positive(f"fab.{name}", val)
+        v.real_in_range("fab.etch_bias", self.etch_bias, 0.0, 0.5 * self.min_gap, hi_open=True)
         for name in ("gap_tolerance", "width_tolerance"):
             val = getattr(self, name)
             if val is not None:

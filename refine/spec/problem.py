@@ -20,7 +20,8 @@ Schema (keys marked * are required)::
     metal_thickness, loss_tangent, conductivity, roughness    optional
     eps_r_tolerance, height_tolerance                         optional, 1-sigma, for yield
     [fab]                                    * for microstrip and stripline
-    min_gap *, min_width, grid, gap_tolerance, width_tolerance, max_total_length
+    min_gap *, min_width, grid, gap_tolerance, width_tolerance, max_total_length,
+    etch_bias (per copper edge: the artwork is drawn that much larger; default 0)
     [coupling]  external = "gap" | "tap"     (default "gap")
     [resonators] width = "free" | "feed" | "free-beyond-models"
                                              (default "free": the refiner may change them within
@@ -427,6 +428,7 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
                 "gap_tolerance",
                 "width_tolerance",
                 "max_total_length",
+                "etch_bias",
             },
         )
         min_gap = r.need_quantity(fab_t, "fab", "min_gap", "length", 0.0, 1.0, lo_open=True)
@@ -439,7 +441,9 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
             ("max_total_length", 0.0, True),
         ):
             lengths[key] = r.quantity(fab_t, "fab", key, "length", lo, 1.0, lo_open=lo_open)
-        fab = FabRules(min_gap, **lengths)
+        # drawn gaps are 2 biases narrower than built ones: below half the minimum gap
+        bias = r.quantity(fab_t, "fab", "etch_bias", "length", 0.0, min_gap / 2, hi_open=True)
+        fab = FabRules(min_gap, **lengths, etch_bias=bias or 0.0)
 
     coup = r.table(data, "coupling", {"external"}, required=False)
     external = r.choice(coup, "coupling", "external", EXTERNAL_KINDS, default="gap")
