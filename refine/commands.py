@@ -8,17 +8,23 @@ import argparse
 import json
 import math
 import os
+import re
 import sys
 from collections.abc import Sequence
 from pathlib import Path
 
 from refine import study
-from refine.circuit.response import evaluate_electrical, evaluate_layout, verification_grid
+from refine.circuit.response import (
+    evaluate_electrical,
+    evaluate_layout,
+    strip_medium_for,
+    verification_grid,
+)
 from refine.fullwave import engine, handover, spacemap, verify
 from refine.fullwave.uncertainty import MeshVerdict
 from refine.optimise import seed as job
 from refine.optimise.minimax import Stopping, Strategy
-from refine.optimise.refiner import RefineResult, Status, refine_problem
+from refine.optimise.refiner import RefineResult, Status, length_rule_unmeetable, refine_problem
 from refine.optimise.space import fab_violations
 from refine.outputs import export, plot, report
 from refine.outputs import files as outputs
@@ -27,6 +33,7 @@ from refine.spec.coupling import Coupling
 from refine.spec.mask import MaskResult
 from refine.spec.problem import load_problem
 from refine.synthesis import inverters as synthesis
+from refine.synthesis.realise import range_report
 from refine.tolerance import centring
 from refine.tolerance import montecarlo as tolerance
 
@@ -44,20 +51,33 @@ def _table(headers: Sequence[str], rows: Sequence[Sequence[object]]) -> str:
 
 
 def design_table(d: synthesis.ElectricalDesign) -> str:
+    """The closed-form design from input to output: each coupling with its inverter, each
+    resonator with its prototype value g and electrical length at f0, then the load's g."""
     rows = []
     for k in range(d.order + 1):
-        theta = f"{math.degrees(d.theta[k]):.3f}" if k < d.order else ""
         rows.append(
             [
-                f"{k},{k + 1}",
-                f"{d.g[k + 1]:.4f}",
+                f"coupling {k},{k + 1}",
+                "",
                 f"{d.j_norm[k]:.5f}",
                 f"{d.b_norm[k]:.5f}",
                 f"{d.capacitance[k] * 1e12:.4f}",
-                theta,
+                "",
             ]
         )
-    return _table(["gap", "g_(k+1)", "J/Y0", "B/Y0", "C (pF)", "theta_(k+1) (deg)"], rows)
+        if k < d.order:
+            rows.append(
+                [
+                    f"resonator {k + 1}",
+                    f"{d.g[k + 1]:.4f}",
+                    "",
+                    "",
+                    "",
+                    f"{math.degrees(d.theta[k]):.3f}",
+                ]
+            )
+    rows.append(["load", f"{d.g[d.order + 1]:.4f}", "", "", "", ""])
+    return _table(["element", "g", "J/Y0", "B/Y0", "C (pF)", "theta at f0 (deg)"], rows)
 
 
 def margins_table(res: MaskResult) -> str:
@@ -77,12 +97,12 @@ def layout_table(seed: job.Seed) -> str:
     for j in range(lay.order + (1 if lay.external is Coupling.GAP else 0)):
         if j in by_gap:
             g = by_gap[j]
-            req = "none works" if g.gap_required is None else f"{g.gap_required * 1e6:.1f}"
+            req = "none works" if g.gap_required is None else f"{g.gap_required * 1e6:.1f} um"
             short = f"{100 * g.coupling_shortfall:.0f} %" if g.limited else ""
             rows.append(
                 [
                     f"gap {g.index}",
-                    f"{g.gap * 1e6:.1f}",
+                    f"s {g.gap * 1e6:.1f} um",
                     req,
                     f"{g.j_target:.4f}",
                     f"{g.j_achieved:.4f}",
@@ -93,8 +113,8 @@ def layout_table(seed: job.Seed) -> str:
             rows.append(
                 [
                     f"resonator {j + 1}",
-                    f"L {lay.lengths[j] * 1e3:.4f} mm",
-                    f"W {lay.widths[j] * 1e6:.1f}",
+                    f"L {lay.lengths[j] * 1e3:.4f} mm, W {lay.widths[j] * 1e6:.1f} um",
+                    "",
                     "",
                     "",
                     "",
@@ -103,7 +123,7 @@ def layout_table(seed: job.Seed) -> str:
     if lay.taps is not None:
         rows.append(["tap out", f"{lay.taps[1] * 1e3:.4f} mm from the open end", "", "", "", ""])
     return _table(
-        ["element", "used (um)", "required (um)", "J/Y0 designed", "J/Y0 achieved", "shortfall"],
+        ["element", "used", "gap required", "J/Y0 designed", "J/Y0 achieved", "shortfall"],
         rows,
     )
 
@@ -323,6 +343,12 @@ def _cmd_design(args: argparse.Namespace) -> int:
     problem = load_problem(args.problem)
     if args.power <= 0 or not math.isfinite(args.power):
         raise UsageError(f"--power = {args.power:g} W is outside the allowed range (0, inf)")
+    if not (math.isfinite(args.margin) and -100.0 <= args.margin <= 100.0):
+        raise UsageError(f"--margin = {args.margin:g} dB is outside the allowed range [-100, 100]")
+    if not 1 <= args.max_evaluations <= 10**7:
+        raise UsageError(
+            f"--max-evaluations = {args.max_evaluations} is outside the allowed range 1..10000000"
+        )
     if args.out is not None:
         outputs.prepare_folder(args.out, args.force)  # refuse before any work or any write
     if args.fullwave is not None:
@@ -341,7 +367,11 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
     sd = job.seed(problem)
     _print_seed(sd)
     print()
-    print(f"refining ({args.strategy}) ...", flush=True)
+    short = length_rule_unmeetable(problem)
+    if short is not None:
+        print(f"not refined: the fab rules cannot be met. {short}")
+    else:
+        print(f"refining ({args.strategy}) ...", flush=True)
     r = refine_problem(
         problem, Strategy(args.strategy), stopping, sd, _progress_printer(), _free_widths(args)
     )
@@ -367,6 +397,9 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
         print(loss)
     print()
     print(refined_table(r))
+    outside = model_range_line(r)
+    if outside:
+        print(outside)
     if r.status is not Status.MET:
         print()
         print("binding: " + "; ".join(r.binding))
@@ -419,6 +452,29 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
     return 0 if r.status is Status.MET else 1
 
 
+def model_range_line(r) -> str | None:
+    """One console line for everything of the refined layout outside a model's validity range,
+    grouped by model and quantity (report.md lists each dimension)."""
+    if r.layout is None:
+        return None
+    p = r.problem
+    found = range_report(r.layout, strip_medium_for(p), p.gap_model, float(outputs.sweep(p)[-1]))
+    groups: dict[str, list[str]] = {}
+    for msg in found:
+        m = re.match(r"^(.*?): (.*?): (.*?) = (.*?) is outside its validity range (.*)$", msg)
+        if m is None:
+            groups.setdefault(msg, [])
+            continue
+        where, model, qty, _, allowed = m.groups()
+        groups.setdefault(f"{model} {qty} outside {allowed}", []).append(where.split(" (")[0])
+    parts = [f"{k} at {', '.join(v)}" if v else k for k, v in groups.items()]
+    if not parts:
+        return None
+    return "WARNING: the refined layout leaves a model's stated range (report.md lists each): " + (
+        "; ".join(parts)
+    )
+
+
 # exit codes of a field check: met / not met beyond the mesh uncertainty, undecided at the mesh
 FIELD_EXIT = {MeshVerdict.MET: 0, MeshVerdict.NOT_MET: 1, MeshVerdict.UNDECIDED: 4}
 
@@ -463,6 +519,8 @@ def _cmd_yield(args: argparse.Namespace) -> int:
         raise UsageError(
             f"--out {out}: already holds yield.csv or yield.png; use --force to replace them"
         )
+    if not 0 <= args.seed < 2**63:
+        raise UsageError(f"--seed = {args.seed} is outside the allowed range 0..2**63-1")
     res = tolerance.estimate_yield(problem, lay, args.samples, args.seed, args.correlated)
     tol = res.tolerances
     kind = "independent + correlated over-etch" if tol.correlated else "independent"
@@ -484,9 +542,11 @@ def _cmd_yield(args: argparse.Namespace) -> int:
     )
     rows = [
         [s_.name, f"{s_.db_per_sigma:.3f}", f"{s_.db_per_m * 1e-6:+.4f}"]
-        for s_ in res.sensitivities[:8]
+        for s_ in res.sensitivities
     ]
     print(_table(["dimension", "dB per 1-sigma", "dB per um"], rows))
+    if not args.correlated:
+        print("(lengths and taps have no independent tolerance: they move with --correlated)")
     out.mkdir(parents=True, exist_ok=True)
     smp = tolerance.sample(lay, tol, res.samples, res.seed, problem.substrate)
     cols = {

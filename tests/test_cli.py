@@ -1,6 +1,7 @@
 """The refine command: verbs run on bundled problems; bad input exits 2 with a message."""
 
 import json
+import re
 from pathlib import Path
 
 import pytest
@@ -8,6 +9,7 @@ import pytest
 from refine.cli import main
 
 ROOT = Path(__file__).parent.parent
+PROBLEM = ROOT / "problems" / "microstrip-x-band-alumina-n3.toml"
 
 
 def test_synth_json(capsys):
@@ -93,3 +95,116 @@ def test_centre_yield_takes_either_spelling():
     for flag in ("--centre-yield", "--center-yield"):
         args = build_parser().parse_args(["design", "p.toml", flag])
         assert args.centre_yield is True
+
+
+def test_options_are_checked_before_any_work(tmp_path, capsys):
+    """Each message names the option, the value and the allowed range; nothing is written."""
+    out = tmp_path / "out"
+    cases = [
+        (["--margin", "nan"], "--margin = nan dB is outside the allowed range [-100, 100]"),
+        (
+            ["--max-evaluations", "0"],
+            "--max-evaluations = 0 is outside the allowed range 1..10000000",
+        ),
+    ]
+    for extra, message in cases:
+        assert main(["design", str(PROBLEM), "--out", str(out), *extra]) == 2
+        captured = capsys.readouterr()
+        assert message in captured.err and "refining" not in captured.out
+        assert not out.exists()
+    blocker = tmp_path / "a-file"
+    blocker.write_text("")
+    assert main(["design", str(PROBLEM), "--out", str(blocker / "out")]) == 2
+    captured = capsys.readouterr()
+    assert f"cannot be created: {blocker} is not a folder" in captured.err
+    assert "refining" not in captured.out
+
+
+def test_yield_seed_and_layout_values_are_checked(tmp_path, capsys):
+    lay = tmp_path / "layout.json"
+    assert main(["design", str(PROBLEM), "--out", str(tmp_path)]) == 0
+    capsys.readouterr()
+    assert main(["yield", str(lay), "--problem", str(PROBLEM), "--seed", "-1"]) == 2
+    assert "--seed = -1 is outside the allowed range 0..2**63-1" in capsys.readouterr().err
+    data = json.loads(lay.read_text())
+    data["gaps"][0] = "37 um"
+    bad = tmp_path / "bad-layout.json"
+    bad.write_text(json.dumps(data))
+    assert main(["check", str(bad), "--problem", str(PROBLEM)]) == 2
+    err = capsys.readouterr().err
+    assert f"{bad}: gaps[0] = '37 um' is not a number" in err and "metres" in err
+
+
+def test_a_length_rule_no_half_wave_filter_meets_is_infeasible_before_refining(tmp_path, capsys):
+    src = PROBLEM.read_text().replace("[fab]\n", '[fab]\nmax_total_length = "1 mm"\n', 1)
+    prob = tmp_path / "short.toml"
+    prob.write_text(src)
+    assert main(["design", str(prob)]) == 1
+    out = capsys.readouterr().out
+    assert "not refined: the fab rules cannot be met" in out and "refining" not in out
+    assert "status: INFEASIBLE" in out and "0 evaluations" in out
+    assert "fab.max_total_length = 1 mm" in out and "allow at least" in out
+
+
+def test_synth_puts_each_electrical_length_on_its_resonator_row(capsys):
+    assert main(["synth", str(PROBLEM)]) == 0
+    out = capsys.readouterr().out
+    table = out.split("theta at f0 (deg)")[1].split("\n\n")[0].splitlines()[2:]
+    resonators = [r.split() for r in table if r.split()[0] == "resonator"]
+    couplings = [r.split() for r in table if r.split()[0] == "coupling"]
+    assert len(resonators) == 3 and len(couplings) == 4
+    assert all(len(r) == 4 and 100 < float(r[3]) < 200 for r in resonators)  # g, then theta
+    assert all(len(c) == 5 for c in couplings)  # J/Y0, B/Y0, C: no angle on a coupling row
+    # the realised seed's table carries its units in each cell, none in a header
+    seed = out.split("realised seed")[1]
+    assert "(um)" not in seed.splitlines()[1]
+    assert re.search(r"L \d+\.\d+ mm, W \d+\.\d um", seed) and re.search(r"s \d+\.\d um", seed)
+
+
+def test_design_prints_one_grouped_model_range_line(capsys):
+    assert main(["design", str(PROBLEM)]) == 0
+    lines = [x for x in capsys.readouterr().out.splitlines() if "stated range" in x]
+    assert len(lines) == 1
+    assert "Garg-Bahl gap s/W outside [0.1, 1] at gap 0, gap 3" in lines[0]
+
+
+def test_diagnosis_quotes_only_widths_the_design_may_have():
+    import warnings
+
+    from refine import load_problem
+    from refine.optimise.refiner import refine_problem
+
+    p = load_problem(ROOT / "problems" / "inf-alumina-gap-10g-n5-15pct.toml")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        fixed = refine_problem(p, free_widths=False)
+        free = refine_problem(p)
+    feed = fixed.layout.feed_width
+    assert all(c.width_at_max == pytest.approx(feed) for c in fixed.diagnosis.couplings)
+    assert all(c.j_max > 0 for c in fixed.diagnosis.couplings)  # no placeholder value
+    lo, hi = min(free.layout.widths), max(free.layout.widths)
+    h = p.strip_substrate.height
+    for c in free.diagnosis.couplings:  # inside the range the refiner may use (W/h 0.5 to 2)
+        assert 0.5 * h * (1 - 1e-9) <= c.width_at_max <= 2.0 * h * (
+            1 + 1e-9
+        ) or c.width_at_max == pytest.approx(feed)
+    assert lo > 0 and hi > 0
+
+
+def test_yield_lists_every_dimension(tmp_path, capsys):
+    assert main(["design", str(PROBLEM), "--out", str(tmp_path)]) == 0
+    capsys.readouterr()
+    assert (
+        main(
+            ["yield", str(tmp_path / "layout.json"), "--problem", str(PROBLEM), "--samples", "200"]
+        )
+        == 0
+    )
+    out = capsys.readouterr().out
+    table = out.split("dB per um")[1]
+    names = (
+        {f"gap {k}" for k in range(4)}
+        | {f"length {j}" for j in (1, 2, 3)}
+        | {f"width {j}" for j in (1, 2, 3)}
+    )
+    assert all(n in table for n in names)

@@ -180,7 +180,7 @@ def test_bad_input_corpus_is_large():
 
 @pytest.mark.parametrize("path", BAD, ids=lambda p: p.stem)
 def test_bad_problem_is_refused_and_nothing_is_written(path, tmp_path, capsys):
-    expect = path.read_text().splitlines()[0].removeprefix("# expect: ")
+    expect = path.read_bytes().splitlines()[0].decode("utf-8").removeprefix("# expect: ")
     out = tmp_path / "out"
     assert main(["design", str(path), "--out", str(out)]) == 2
     err = capsys.readouterr().err

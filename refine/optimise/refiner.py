@@ -13,7 +13,7 @@ import enum
 import math
 import time
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from numpy.typing import NDArray
@@ -33,6 +33,7 @@ from refine.optimise.space import (
     on_grid,
     snap,
 )
+from refine.physics.constants import C0
 from refine.spec.coupling import Coupling
 from refine.spec.mask import MaskResult
 from refine.spec.problem import Problem
@@ -171,7 +172,6 @@ def refine_problem(
     if problem.external is Coupling.TAP:
         notes.append("tapped feed: the T-junction's own parasitics are not modelled")
     seed_layout = real.layout
-    diag = diagnose(d, medium, fab, problem.gap_model, seed_layout.feed_width, problem.external)
     # resonator widths are refinable dimensions (bounded by the fab rules) unless held fixed
 
     def factory(f: NDArray, fw: bool = free_widths) -> StripFilterModel:
@@ -184,8 +184,42 @@ def refine_problem(
     space = layout_space(
         fab, problem.strip_substrate.height, model, seed_layout, width_range=problem.width_range
     )
+    width_vars = [
+        v for v, dim in zip(space.variables, model.dims, strict=True) if dim[0] is Dim.WIDTH
+    ]
+    widths = (
+        (min(v.lower for v in width_vars), max(v.upper for v in width_vars))
+        if width_vars
+        else (min(seed_layout.widths), max(seed_layout.widths))
+    )
+    diag = diagnose(
+        d, medium, fab, problem.gap_model, seed_layout.feed_width, problem.external, widths
+    )
     p_seed = model.vector(seed_layout)
     seed_res, _ = _verify(problem, factory, p_seed)
+    too_short = length_rule_unmeetable(problem)
+    if too_short is not None:  # no half-wave filter fits: said before any refinement
+        return RefineResult(
+            problem,
+            Status.INFEASIBLE,
+            strategy.value,
+            seed_layout,
+            None,
+            None,
+            seed_layout,
+            dict(seed_res.worst),
+            dict(seed_res.where),
+            ("fab.max_total_length: shorter than any half-wave filter of this order",),
+            0,
+            time.perf_counter() - t0,
+            (),
+            dict(seed_res.worst),
+            replace(diag, remedies=(too_short, *diag.remedies)),
+            seed_res.worst_margin,
+            None,
+            tuple(fab_violations(fab, seed_layout)),
+            tuple(notes + list(real.notes)),
+        )
     extra = _length_constraint(problem, model, space)
     z = z_seed = space.start()
     stopping = _aim(stopping, seed_res)
@@ -407,6 +441,35 @@ def _aim(stopping: Stopping, seed_res: MaskResult) -> Stopping:
     if seed_res.worst_margin >= stopping.target_margin_db:
         return Stopping(stopping.max_evaluations, stopping.max_seconds, 100.0, stopping.xtol_rel)
     return stopping
+
+
+def shortest_filter(problem: Problem) -> float:
+    """A lower bound (m) on the end-to-end length of any filter of the problem's order: each
+    half-wave resonator is at least half a wavelength in the substrate itself, c / (2 f0
+    sqrt(eps_r)) (the effective permittivity of a strip is below eps_r), less its two open-end
+    extensions (each below the substrate height), and every gap at least the minimum gap."""
+    sub, fab = problem.strip_substrate, problem.strip_fab
+    half = C0 / (2.0 * problem.f0 * math.sqrt(sub.eps_r)) - 2.0 * sub.height
+    n = problem.order or 1
+    gaps = problem.external.n_gaps(n)
+    return max(n * half, 0.0) + gaps * fab.min_gap
+
+
+def length_rule_unmeetable(problem: Problem) -> str | None:
+    """Why the shop's ``max_total_length`` cannot be met by any half-wave filter of the problem,
+    or None when it can (or there is no such rule)."""
+    if problem.fab is None or problem.fab.max_total_length is None or problem.order is None:
+        return None
+    lmax, floor = problem.fab.max_total_length, shortest_filter(problem)
+    if lmax >= floor:
+        return None
+    return (
+        f"fab.max_total_length = {lmax * 1e3:.4g} mm: no {problem.order}-resonator half-wave "
+        f"filter at {problem.f0 / 1e9:.4g} GHz on eps_r {problem.strip_substrate.eps_r:g} is "
+        f"that short (each resonator is at least c/(2 f0 sqrt(eps_r)) less two open ends below "
+        f"the substrate height: the filter at least {floor * 1e3:.4g} mm); allow at least "
+        f"{floor * 1e3:.4g} mm, or a higher permittivity"
+    )
 
 
 def _length_constraint(problem: Problem, model: StripFilterModel, space: DesignSpace):

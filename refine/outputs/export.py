@@ -112,6 +112,11 @@ def read_layout(path: str | Path) -> Layout | dict:
         data = json.loads(p.read_text(encoding="utf-8"))
     except OSError as e:
         raise LayoutFileError(f"{p}: cannot be read ({e.strerror})") from None
+    except UnicodeDecodeError as e:
+        raise LayoutFileError(
+            f"{p}: is not UTF-8 text (byte {e.object[e.start]:#04x} at position {e.start}); "
+            "a layout file is JSON in UTF-8"
+        ) from None
     except json.JSONDecodeError as e:
         raise LayoutFileError(f"{p}: is not valid JSON ({e})") from None
     if not isinstance(data, dict):
@@ -126,6 +131,20 @@ def read_layout(path: str | Path) -> Layout | dict:
     for key in ("external", "feed_width", "widths", "gaps", "lengths"):
         if key not in data:
             raise LayoutFileError(f"{p}: missing key {key!r}")
+    for key in ("feed_width", "widths", "gaps", "lengths", "taps"):
+        value = data.get(key)
+        if value is None and key == "taps":
+            continue
+        items = [value] if key == "feed_width" else value
+        if not isinstance(items, list):
+            raise LayoutFileError(f"{p}: {key} = {value!r} must be a list of numbers in metres")
+        for i, x in enumerate(items):
+            if isinstance(x, bool) or not isinstance(x, (int, float)):
+                where = key if key == "feed_width" else f"{key}[{i}]"
+                raise LayoutFileError(
+                    f"{p}: {where} = {x!r} is not a number; a layout file holds plain numbers "
+                    "in metres (for example 3.7e-05 for 37 um)"
+                )
     try:
         taps = data.get("taps")
         return Layout(

@@ -78,6 +78,16 @@ def prepare_folder(
         raise OutputError(f"{where}: is a symbolic link that leads to no folder")
     if out.exists() and not out.is_dir():
         raise OutputError(f"{where}: exists and is not a folder")
+    if not out.exists():  # the nearest existing folder above must take a new folder
+        above = out.absolute().parent
+        while not above.exists() and above != above.parent:
+            above = above.parent
+        if not above.is_dir():
+            raise OutputError(f"{where}: cannot be created: {above} is not a folder")
+        if not os.access(above, os.W_OK | os.X_OK):
+            raise OutputError(f"{where}: cannot be created: {above} is not writable")
+    elif not os.access(out, os.W_OK | os.X_OK):
+        raise OutputError(f"{where}: is not writable")
     if out.is_dir() and not force:
         clash = [n for n in names if (out / n).exists() or (out / n).is_symlink()]
         links = [n for n in clash if (out / n).is_symlink()]

@@ -345,6 +345,15 @@ def yield_png(
     return _save(fig, path, 120)
 
 
+#: markers and colours cycled at different periods (7 and 10): any 12 series differ in at
+#: least one of them, and the pair repeats only after 70
+_MARKERS = ("o", "s", "^", "D", "v", "P", "X")
+
+
+def _series_style(i: int) -> dict:
+    return {"color": f"C{i % 10}", "marker": _MARKERS[i % len(_MARKERS)]}
+
+
 def study_pngs(out: str | Path, frame, title: str) -> list[Path]:
     """The two study pictures.
 
@@ -361,33 +370,42 @@ def study_pngs(out: str | Path, frame, title: str) -> list[Path]:
 
     out = Path(out)
     written = []
-    fig, ax = plt.subplots(figsize=(8, 4.6), layout="constrained")
+    fig, ax = plt.subplots(figsize=(10, 4.8), layout="constrained")
     keys = ["order", "external", "min_gap_m"]
-    for i, (grp, rows) in enumerate(frame.groupby(keys, dropna=False)):
+    groups = list(frame.groupby(keys, dropna=False))
+    for i, (grp, rows) in enumerate(groups):
         rows = rows.sort_values("fbw")
         order, ext, gap = grp
         lab = f"N={order}, {ext}" + (
             "" if gap != gap or gap is None else f", min gap {gap * 1e6:g} um"
         )
-        color = f"C{i % 10}"
-        ax.plot(rows["fbw"] * 100, rows["seed_return_loss_margin_db"], "--", color=color, lw=1)
+        style = _series_style(i)
         ax.plot(
             rows["fbw"] * 100,
-            rows["refined_return_loss_margin_db"],
-            "-o",
-            color=color,
+            rows["seed_return_loss_margin_db"],
+            ls=(0, (4, 2)),
+            color=style["color"],
+            lw=1,
+            marker=style["marker"],
             ms=3,
-            label=lab,
+            mfc="none",
         )
+        ax.plot(
+            rows["fbw"] * 100, rows["refined_return_loss_margin_db"], ls="-", lw=1.6, ms=4, **style
+        )
+        ax.plot([], [], label=lab, ls="-", lw=1.6, ms=4, **style)
+    # the two line kinds, once each in the legend
+    ax.plot([], [], ls=(0, (4, 2)), color="0.3", lw=1, label="closed-form seed (dashed)")
+    ax.plot([], [], ls="-", color="0.3", lw=1.6, label="refined (solid)")
     ax.axhline(0, color="black", lw=0.8)
     ax.set_xlabel("fractional bandwidth (%)")
     ax.set_ylabel("worst passband return-loss margin (dB)")
-    ax.set_title(f"{title}: closed-form seed (dashed) vs refined (solid)", fontsize=10)
+    ax.set_title(f"{title}: closed-form seed vs refined", fontsize=10)
     ax.grid(True, alpha=0.3)
-    ax.legend(fontsize=7)
+    ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
     written.append(_save(fig, out / "study-return-loss.png", 120))
 
-    fig, ax = plt.subplots(figsize=(8, 4.6), layout="constrained")
+    fig, ax = plt.subplots(figsize=(10, 4.8), layout="constrained")
     met = frame[frame["status"] == "met"]
     for i, ((order, ext), rows) in enumerate(frame.groupby(["order", "external"])):
         gaps = sorted(rows["min_gap_m"].dropna().unique())
@@ -406,10 +424,15 @@ def study_pngs(out: str | Path, frame, title: str) -> list[Path]:
             alpha=0.55 + 0.15 * min(i, 3),
             label=f"N={order}, {ext} coupling",
         )
+    # the sweep's limits: nothing above the widest bandwidth swept can show as met, and a 0
+    # means "not met at the narrowest bandwidth swept", not "nothing works"
+    lo_fbw, hi_fbw = frame["fbw"].min() * 100, frame["fbw"].max() * 100
+    ax.axhline(hi_fbw, color="0.4", lw=1, ls=":", label=f"widest swept: {hi_fbw:.3g} %")
+    ax.axhline(lo_fbw, color="0.6", lw=1, ls=":", label=f"narrowest swept: {lo_fbw:.3g} %")
     ax.set_xlabel("minimum gap of the shop (um)")
     ax.set_ylabel("largest fractional bandwidth met (%)")
     ax.set_title(f"{title}: feasibility under the fab rules", fontsize=10)
     ax.grid(True, alpha=0.3)
-    ax.legend(fontsize=7)
+    ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
     written.append(_save(fig, out / "study-feasibility.png", 120))
     return written

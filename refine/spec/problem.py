@@ -442,6 +442,14 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         ):
             lengths[key] = r.quantity(fab_t, "fab", key, "length", lo, 1.0, lo_open=lo_open)
         # drawn gaps are 2 biases narrower than built ones: below half the minimum gap
+        grid = lengths["grid"]
+        if grid is not None and grid > min_gap:
+            raise r.fail(
+                "fab.grid",
+                fab_t["grid"],
+                f"coarser than fab.min_gap = {fab_t['min_gap']!r}: the shop could not draw its "
+                f"own minimum gap (allowed: a grid at most the minimum gap, {min_gap * 1e6:g} um)",
+            )
         bias = r.quantity(fab_t, "fab", "etch_bias", "length", 0.0, min_gap / 2, hi_open=True)
         fab = FabRules(min_gap, **lengths, etch_bias=bias or 0.0)
 
@@ -532,6 +540,11 @@ def load_problem(path: str | Path) -> Problem:
         text = p.read_text(encoding="utf-8")
     except OSError as e:
         raise ProblemError(f"{p}: cannot be read ({e.strerror})") from None
+    except UnicodeDecodeError as e:
+        raise ProblemError(
+            f"{p}: is not UTF-8 text (byte {e.object[e.start]:#04x} at position {e.start}); "
+            "a problem file is TOML in UTF-8"
+        ) from None
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as e:

@@ -14,6 +14,7 @@ with its best margin, the binding constraints, and quantified remedies:
 
 from __future__ import annotations
 
+import math
 import warnings
 from dataclasses import dataclass, replace
 
@@ -76,17 +77,31 @@ def _j_at(
 
 
 def _j_max(
-    medium, gap_model, feed_w, min_gap, f0, end: bool, fab: FabRules | None
+    medium,
+    gap_model,
+    feed_w,
+    min_gap,
+    f0,
+    end: bool,
+    fab: FabRules | None,
+    widths: tuple[float, float] | None = None,
 ) -> tuple[float, float]:
-    best = (-1.0, feed_w)
-    for fac in WIDTH_FACTORS:
-        w = feed_w * fac
-        if fab is not None and fab.min_width is not None and w < fab.min_width:
-            continue
+    """The largest J/Y0 a gap at the minimum can give, and the resonator width where: over the
+    resonator widths the refiner may use, ``widths`` (lowest, highest; default the multiples
+    :data:`WIDTH_FACTORS` of the feed width, inside the fab's minimum width)."""
+    if widths is None:
+        tried = [feed_w * fac for fac in WIDTH_FACTORS]
+        if fab is not None and fab.min_width is not None:
+            tried = [w for w in tried if w >= fab.min_width] or [fab.min_width]
+    else:
+        lo, hi = widths
+        tried = sorted({lo, hi, *(w for w in (feed_w * f for f in WIDTH_FACTORS) if lo <= w <= hi)})
+    best_j, best_w = -math.inf, tried[0]
+    for w in tried:
         j = _j_at(medium, gap_model, feed_w if end else w, w, min_gap, f0)
-        if j > best[0]:
-            best = (j, w)
-    return best
+        if j > best_j:
+            best_j, best_w = j, w
+    return best_j, best_w
 
 
 def max_fbw(design: ElectricalDesign, j_limits: list[float]) -> float:
@@ -112,15 +127,18 @@ def diagnose(
     gap_model: str,
     feed_width: float,
     external: Coupling = Coupling.GAP,
+    widths: tuple[float, float] | None = None,
 ) -> Diagnosis:
-    """Compare every needed coupling with the most the fab rules can give, and list remedies."""
+    """Compare every needed coupling with the most the fab rules can give, and list remedies.
+    ``widths`` are the lowest and highest resonator widths the refiner may use (equal when
+    the resonators are held at one width); the couplings' best widths are sought there."""
     f0, n = design.f0, design.order
     checks = []
     for k, j in enumerate(design.j_norm):
         end = k in (0, n)
         if external is Coupling.TAP and end:
             continue
-        jm, wm = _j_max(medium, gap_model, feed_width, fab.min_gap, f0, end, fab)
+        jm, wm = _j_max(medium, gap_model, feed_width, fab.min_gap, f0, end, fab, widths)
         checks.append(CouplingCheck(k, j, jm, wm))
     remedies: list[str] = []
     limits = []
@@ -149,7 +167,7 @@ def diagnose(
             )
             try:
                 w_thin = thin.width_for_z0(design.z_ref, f0)
-                j_thin = _j_max(thin, gap_model, w_thin, fab.min_gap, f0, True, fab)[0]
+                j_thin = _j_max(thin, gap_model, w_thin, fab.min_gap, f0, True, fab, None)[0]
                 j_now = checks[0].j_max
                 helps = "helps" if j_thin > j_now else "does not help"
                 remedies.append(
