@@ -81,6 +81,11 @@ def build_parser() -> argparse.ArgumentParser:
         "smith.png, layout.png, report.md)",
     )
     p.add_argument(
+        "--touchstone-2",
+        action="store_true",
+        help="also write response.ts, the response as Touchstone 2.0",
+    )
+    p.add_argument(
         "--dxf-r12",
         action="store_true",
         help="write layout.dxf as DXF R12 (the oldest widely read DXF) instead of R2010",

@@ -428,6 +428,7 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
             said=outputs.CLI_NAMES,
             dxf_version="R12" if args.dxf_r12 else "R2010",
             painters=painters,
+            touchstone2=args.touchstone_2,
         )
         print()
         print(f"wrote {len(written)} files to {args.out}: " + ", ".join(w.name for w in written))

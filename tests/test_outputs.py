@@ -424,3 +424,19 @@ def test_summary_gives_vswr_group_delay_and_the_safe_power(alumina_out):
     assert ratio == pytest.approx(1.0, rel=1e-9)
     text = (alumina_out / "report.md").read_text()
     assert "Largest safe input power" in text and "## Passband" in text and "worst VSWR" in text
+
+
+def test_touchstone_2_reads_back_in_scikit_rf(tmp_path):
+    # Outside reference: scikit-rf's Touchstone reader, which parses the 2.0 keywords.
+    out = tmp_path / "out"
+    assert main(["design", str(ALUMINA), "--out", str(out), "--touchstone-2"]) == 0
+    text = (out / "response.ts").read_text()
+    assert "[Version] 2.0" in text and "[Two-Port Data Order] 21_12" in text
+    assert text.rstrip().endswith("[End]")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        v1 = Network(str(out / "response.s2p"))
+        v2 = Network(str(out / "response.ts"))
+    np.testing.assert_allclose(v2.f, v1.f, rtol=1e-15)
+    np.testing.assert_allclose(v2.s, v1.s, rtol=1e-12, atol=1e-15)
+    assert np.allclose(v2.z0, 50.0)

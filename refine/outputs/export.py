@@ -67,10 +67,40 @@ def touchstone_text(f: NDArray, s: NDArray, z_ref: float, comments: Sequence[str
     return "\n".join(lines) + "\n"
 
 
+def touchstone2_text(f: NDArray, s: NDArray, z_ref: float, comments: Sequence[str] = ()) -> str:
+    """Touchstone 2.0 two-port text: the keyword header ([Version] 2.0, [Number of Ports],
+    [Two-Port Data Order] 21_12, [Number of Frequencies], [Reference]), then the same data
+    lines as :func:`touchstone_text` under [Network Data], and [End]."""
+    f = np.asarray(f, float)
+    body = touchstone_text(f, s, z_ref).splitlines()[1:]  # the data lines, without the option line
+    lines = [f"! {one_line(c, 1000)}" for c in comments]
+    lines += [
+        "[Version] 2.0",
+        f"# Hz S RI R {z_ref:.10g}",
+        "[Number of Ports] 2",
+        "[Two-Port Data Order] 21_12",
+        f"[Number of Frequencies] {f.size}",
+        f"[Reference] {z_ref:.10g} {z_ref:.10g}",
+        "[Network Data]",
+        *body,
+        "[End]",
+    ]
+    return "\n".join(lines) + "\n"
+
+
 def write_touchstone(
-    path: str | Path, f: NDArray, s: NDArray, z_ref: float, comments: Sequence[str] = ()
+    path: str | Path,
+    f: NDArray,
+    s: NDArray,
+    z_ref: float,
+    comments: Sequence[str] = (),
+    version: str = "1.1",
 ) -> Path:
-    return write_text_atomic(path, touchstone_text(f, s, z_ref, list(comments)))
+    """A two-port Touchstone file, ``version`` "1.1" (``.s2p``) or "2.0" (``.ts``)."""
+    if version not in ("1.1", "2.0"):
+        raise ValueError(f"Touchstone version = {version!r} is not one of '1.1', '2.0'")
+    text = (touchstone_text if version == "1.1" else touchstone2_text)(f, s, z_ref, list(comments))
+    return write_text_atomic(path, text)
 
 
 # --------------------------------------------------------------------------------------------

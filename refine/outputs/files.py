@@ -42,6 +42,7 @@ OUTPUT_FILES = (
     "summary.json",
     "layout.json",
     "response.s2p",
+    "response.ts",
     *artwork.FILES,
     "response.png",
     "passband.png",
@@ -184,16 +185,18 @@ def write_outputs(
     said: tuple[str, str] = API_NAMES,
     dxf_version: str = "R2010",
     painters: Painters | None = None,
+    touchstone2: bool = False,
 ) -> list[Path]:
     """Write every hand-over file; returns the paths written. A clash in ``out`` is refused
     unless ``force``; ``said`` names them in messages (the command passes its options).
     ``dxf_version`` is "R2010" or "R12" (for shops that ask for the oldest DXF). ``painters``
-    are drawing processes started earlier (see :class:`Painters`); by default they start here."""
+    are drawing processes started earlier (see :class:`Painters`); by default they start here.
+    ``touchstone2`` adds ``response.ts``, the same response as Touchstone 2.0."""
     with locked_folder(out, force, said=said) as folder:
         if painters is not None:
-            return _write_all(r, sd, folder, power_w, dxf_version, painters)
+            return _write_all(r, sd, folder, power_w, dxf_version, painters, touchstone2)
         with Painters() as own:
-            return _write_all(r, sd, folder, power_w, dxf_version, own)
+            return _write_all(r, sd, folder, power_w, dxf_version, own, touchstone2)
 
 
 def _write_all(
@@ -203,6 +206,7 @@ def _write_all(
     power_w: float,
     dxf_version: str,
     painters: Painters,
+    touchstone2: bool = False,
 ) -> list[Path]:
     p = r.problem
     f = sweep(p)
@@ -266,6 +270,10 @@ def _write_all(
         f"gap model: {p.gap_model}; medium: {p.medium}",
     ]
     written.append(export.write_touchstone(out / "response.s2p", f, s_ref, p.z_ref, comments))
+    if touchstone2:
+        written.append(
+            export.write_touchstone(out / "response.ts", f, s_ref, p.z_ref, comments, "2.0")
+        )
     report_text = report.report_md(r, sd, spread, power_w, notes)
     written += painters.collect()
     written.append(export.write_text_atomic(out / "report.md", report_text))
