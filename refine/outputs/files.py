@@ -213,19 +213,6 @@ def _write_all(
     s_ref, s_seed = responses(r, f)
     require_finite(f"{p.name}: refined response", s_ref)
     require_finite(f"{p.name}: closed-form seed response", s_seed)
-    spread = spread_verdicts(p, r.layout) if r.layout is not None else {}
-    notes: list[str] = []
-    if r.layout is not None:
-        medium = strip_medium_for(p)
-        if r.layout.external is Coupling.GAP:
-            notes = range_report(r.layout, medium, p.gap_model, float(f[-1]))
-        else:
-            notes = [
-                "tapped feed: the gap and line models were used; the T-junction is not modelled"
-            ]
-    loss = report.loss_note(r)
-    if loss is not None:
-        notes = [loss, *notes]
     status = {
         "met": "meets the mask",
         "not met": "DOES NOT MEET THE MASK",
@@ -252,7 +239,20 @@ def _write_all(
             ),
         )
     written = []
-    painters.draw(pictures)
+    painters.draw(pictures)  # the workers draw while the rest is computed here
+    spread = spread_verdicts(p, r.layout) if r.layout is not None else {}
+    notes: list[str] = []
+    if r.layout is not None:
+        medium = strip_medium_for(p)
+        if r.layout.external is Coupling.GAP:
+            notes = range_report(r.layout, medium, p.gap_model, float(f[-1]))
+        else:
+            notes = [
+                "tapped feed: the gap and line models were used; the T-junction is not modelled"
+            ]
+    loss = report.loss_note(r)
+    if loss is not None:
+        notes = [loss, *notes]
     written.append(
         export.write_json(out / "summary.json", report.summary(r, sd, spread, power_w, notes))
     )

@@ -72,7 +72,9 @@ class Painters:
 
 
 def _warm() -> None:
-    """A drawing worker's first task: matplotlib's import (the slow part of a first picture)."""
+    """A worker's first task: matplotlib's import (about half a second, the slow part of a
+    first picture), while the parent is still refining. (ezdxf's import here as well was
+    measured slower: three processes then share two cores during the refinement.)"""
     import matplotlib
 
     matplotlib.use("Agg")
