@@ -286,3 +286,46 @@ base = "{ALUMINA_BASE}"
     for w in alive:  # clean up before failing
         w.kill()
     assert not alive, f"{len(alive)} worker(s) outlived the killed study"
+
+
+def test_study_plots_tell_twelve_series_apart(tmp_path, monkeypatch):
+    """Twelve series (3 gaps x 2 orders x 2 couplings): every series has its own colour and
+    marker pair, the legend sits beside the axes (not on the data) and names the seed's and
+    the refined design's line kinds; the feasibility plot marks the swept bandwidth range."""
+    from refine.outputs import plot
+
+    rows = []
+    for order in (3, 5):
+        for ext in ("gap", "tap"):
+            for gap in (10e-6, 25e-6, 50e-6):
+                for fbw in (0.02, 0.05, 0.1):
+                    rows.append(
+                        {
+                            "order": order,
+                            "external": ext,
+                            "min_gap_m": gap,
+                            "fbw": fbw,
+                            "status": "met" if fbw < 0.1 else "infeasible",
+                            "seed_return_loss_margin_db": -3.0,
+                            "refined_return_loss_margin_db": 1.0,
+                        }
+                    )
+    figures = []
+    monkeypatch.setattr(plot, "_save", lambda fig, path, dpi: figures.append(fig) or Path(path))
+    plot.study_pngs(tmp_path, pd.DataFrame(rows), "demo")
+    rl, feas = figures
+    ax = rl.axes[0]
+    solid = [
+        ln
+        for ln in ax.lines
+        if ln.get_linestyle() == "-" and len(ln.get_xdata()) > 0 and ln.get_marker() != "None"
+    ]
+    styles = {(ln.get_color(), ln.get_marker()) for ln in solid}
+    assert len(solid) == 12 and len(styles) == 12
+    legend = ax.get_legend()
+    texts = [t.get_text() for t in legend.get_texts()]
+    assert "closed-form seed (dashed)" in texts and "refined (solid)" in texts
+    assert legend.get_bbox_to_anchor().transformed(ax.transAxes.inverted()).x0 >= 1.0
+    flabels = [t.get_text() for t in feas.axes[0].get_legend().get_texts()]
+    assert any(t.startswith("widest swept: 10 %") for t in flabels)
+    assert any(t.startswith("narrowest swept: 2 %") for t in flabels)
