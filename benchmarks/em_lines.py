@@ -1,0 +1,209 @@
+"""Field-solver validation on the simplest structure: a straight 50 ohm microstrip line.
+
+    python benchmarks/em_lines.py            # run what is missing, then print the table
+    python benchmarks/em_lines.py --table    # print the table from the data file only
+
+For three substrates of our own choosing (thin-film alumina, a ceramic-filled laminate, PTFE),
+the field solver's thru run (the ports' own line calibration, see refine.fullwave.solve) gives
+the line's propagation constant and impedance over frequency on a sequence of meshes whose
+strip-edge cell halves each time. Each finished (substrate, mesh) run is appended to
+``tests/data/fullwave-lines.json`` at once, with its provenance (engine, mesh, cells, time
+steps, seconds, date), so a killed campaign resumes where it stopped; only the data is
+committed, never the engine's scratch files. The fast test ``tests/test_fullwave_lines.py``
+reads that file and checks the engine against the closed forms (Hammerstad-Jensen with the
+Kirschning-Jansen dispersion, zero metal thickness as in the field model) and scikit-rf's
+microstrip line, at the finest mesh and with the mesh's own uncertainty.
+
+The strips are zero-thickness sheets (the field model's metal) and lossless here: the line's
+phase and impedance are what is checked.
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime
+import json
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+from refine.circuit.layout import Layout
+from refine.fullwave import engine, geometry
+from refine.fullwave.uncertainty import mesh_uncertainty
+from refine.physics.constants import C0
+from refine.physics.microstrip import Microstrip
+from refine.physics.substrate import Substrate
+from refine.spec.coupling import Coupling
+
+ROOT = Path(__file__).resolve().parent.parent
+DATA = ROOT / "tests" / "data" / "fullwave-lines.json"
+
+#: our own choice of three substrates spanning the permittivities refine is used on; the band
+#: of each keeps f*h well inside Kirschning-Jansen's range
+SUBSTRATES = {
+    "alumina 9.8, 0.635 mm": (Substrate(9.8, 0.635e-3), (2e9, 18e9)),
+    "laminate 3.55, 0.508 mm": (Substrate(3.55, 0.508e-3), (2e9, 18e9)),
+    "PTFE 2.2, 0.787 mm": (Substrate(2.2, 0.787e-3), (2e9, 14e9)),
+}
+#: the mesh sequence: the strip-edge cell halved and the cells per wavelength doubled each time,
+#: so that every cell (not only the edge cells) is refined by a constant ratio of 2, the
+#: premise of the mesh-uncertainty estimate (refining the edges alone leaves the coarse cells'
+#: error in place)
+MESHES = ((100e-6, 20), (50e-6, 40), (25e-6, 80))
+EDGE_CELLS = tuple(edge for edge, _ in MESHES)
+FREQUENCIES = 41
+
+
+def line_structure(width: float, sub: Substrate, res: geometry.Resolution, f_max: float):
+    """The straight line of the field model: the thru of a one-resonator layout with this feed
+    width (its feeds set the box, the launch and the measurement planes)."""
+    lay = Layout(Coupling.GAP, width, (width,), (width, width), (4 * width,))
+    length = geometry.feed_length(sub, width, f_max, res)
+    return geometry.layout_structure(lay, sub, length).thru()
+
+
+def run_one(name: str, edge: float) -> dict:
+    sub, band = SUBSTRATES[name]
+    width = Microstrip(sub, loss=False).width_for_z0(50.0, 0.5 * sum(band))
+    per_wavelength = dict(MESHES)[edge]
+    res = geometry.Resolution(f"edge {edge * 1e6:g} um", edge, per_wavelength)
+    st = line_structure(width, sub, res, band[1])
+    mesh = geometry.build_mesh(st, sub, band[1], res)
+    f = np.linspace(band[0], band[1], FREQUENCIES)
+    transit = float(np.hypot(mesh.x[-1] - mesh.x[0], mesh.y[-1] - mesh.y[0])) * np.sqrt(sub.eps_r)
+    max_time = geometry.pulse_length(band) + 6.0 * transit / C0
+    job = geometry.job(st, mesh, sub, band, f, max_time, 1, 0, lossy=False)
+    cells, steps = engine.job_size(job)
+    t0 = time.perf_counter()
+    r = engine.run(job, progress=lambda s: print(f"  {name}, {res.name}: {s}", flush=True))
+    beta = np.asarray(r["beta1"])
+    zc = np.asarray(r["zc1"])
+    return {
+        "substrate": name,
+        "eps_r": sub.eps_r,
+        "height_m": sub.height,
+        "width_m": width,
+        "edge_cell_m": edge,
+        "cells_per_wavelength": per_wavelength,
+        "f_hz": f.tolist(),
+        "eps_eff": ((np.real(beta) * C0 / (2 * np.pi * f)) ** 2).tolist(),
+        "z0_ohm": np.real(zc).tolist(),
+        "cells": cells,
+        "time_steps_at_most": steps,
+        "seconds": time.perf_counter() - t0,
+        "engine": str(r["engine"]),
+        "date": datetime.date.today().isoformat(),
+    }
+
+
+def load() -> list[dict]:
+    return json.loads(DATA.read_text())["runs"] if DATA.exists() else []
+
+
+def save(runs: list[dict]) -> None:
+    doc = {
+        "what": "straight 50 ohm microstrip lines on the field solver (thru runs), zero-"
+        "thickness lossless strips; written by benchmarks/em_lines.py",
+        "runs": runs,
+    }
+    tmp = DATA.with_suffix(".tmp")
+    tmp.write_text(json.dumps(doc, indent=1) + "\n")
+    tmp.replace(DATA)
+
+
+#: the engine's tolerances against the closed forms (the field-check issue's bar)
+TOL_EPS_EFF = 0.01
+TOL_Z0 = 0.02
+
+
+def deviations(runs: list[dict], name: str) -> dict:
+    """For one substrate: per mesh (coarsest first) the relative deviation of the field
+    solver's eps_eff and Z0 from the closed forms over frequency; for the finest mesh the
+    largest deviation and its mesh uncertainty (per frequency, from the mesh sequence)."""
+    mine = sorted((r for r in runs if r["substrate"] == name), key=lambda r: -r["edge_cell_m"])
+    if not mine:
+        return {}
+    f = np.asarray(mine[0]["f_hz"])
+    sub = Substrate(mine[0]["eps_r"], mine[0]["height_m"])
+    z_cf, e_cf = Microstrip(sub, loss=False).dispersive(mine[0]["width_m"], f)
+    de = np.array([np.asarray(r["eps_eff"]) / e_cf - 1 for r in mine])
+    dz = np.array([np.asarray(r["z0_ohm"]) / z_cf - 1 for r in mine])
+    cells = [r["edge_cell_m"] for r in mine]
+
+    def worst(d: np.ndarray) -> tuple[float, float | None]:
+        k = int(np.argmax(np.abs(d[-1])))
+        unc = [mesh_uncertainty(cells, list(d[:, j])) for j in range(d.shape[1])]
+        return float(d[-1, k]), (None if unc[k] is None else float(unc[k]))
+
+    return {
+        "meshes": cells,
+        "f": f,
+        "eps_eff": de,
+        "z0": dz,
+        "worst_eps_eff": worst(de),
+        "worst_z0": worst(dz),
+        "seconds": [r["seconds"] for r in mine],
+        "cells": [r["cells"] for r in mine],
+    }
+
+
+def _judge(value: float, unc: float | None, tol: float) -> str:
+    if unc is None:
+        return "one mesh"
+    if abs(value) + unc <= tol:
+        return "within"
+    if abs(value) - unc > tol:
+        return "outside"
+    return "undecided"
+
+
+def table(runs: list[dict]) -> str:
+    lines = [
+        "| substrate (50 ohm line) | meshes (edge cell, um) | eps_eff: worst deviation, finest mesh | "
+        "Z0: worst deviation, finest mesh | cells, finest | engine s, finest |",
+        "|---|---|---|---|---|---|",
+    ]
+    for name in SUBSTRATES:
+        d = deviations(runs, name)
+        if not d:
+            continue
+        (e, ue), (z, uz) = d["worst_eps_eff"], d["worst_z0"]
+        fmt = lambda x, u: f"{100 * x:+.2f} %" + ("" if u is None else f" ± {100 * u:.2f} %")  # noqa: E731
+        lines.append(
+            f"| {name} | {', '.join(f'{c * 1e6:g}' for c in d['meshes'])} | {fmt(e, ue)} "
+            f"({_judge(e, ue, TOL_EPS_EFF)} 1 %) | {fmt(z, uz)} ({_judge(z, uz, TOL_Z0)} 2 %) | "
+            f"{d['cells'][-1]:,} | {d['seconds'][-1]:.0f} |"
+        )
+    return "\n".join(lines)
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--table", action="store_true", help="print the table only")
+    ap.add_argument("--readme", action="store_true", help="and rewrite the README block")
+    ap.add_argument("--substrate", choices=list(SUBSTRATES), help="only this substrate")
+    args = ap.parse_args(argv)
+    runs = load()
+    if not args.table:
+        done = {(r["substrate"], r["edge_cell_m"]) for r in runs}
+        for edge in EDGE_CELLS:  # every substrate's coarser mesh first
+            for name in SUBSTRATES:
+                if (args.substrate and name != args.substrate) or (name, edge) in done:
+                    continue
+                print(f"{name}, edge cell {edge * 1e6:g} um ...", flush=True)
+                runs.append(run_one(name, edge))
+                save(runs)
+    text = table(runs)
+    print(text)
+    if args.readme:
+        from readme_block import replace_block
+
+        stamp = "`python benchmarks/em_lines.py --readme` wrote this table"
+        replace_block("fullwave-lines", f"{stamp}:\n\n{text}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
