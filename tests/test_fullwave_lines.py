@@ -4,12 +4,15 @@ every cell halved from one mesh to the next), against the closed forms (Hammerst
 with the Kirschning-Jansen and Jansen-Kirschning dispersion, zero metal thickness as in the
 field model) and scikit-rf's microstrip line.
 
-What the fixture shows, and these tests pin: the engine's eps_eff is converged with the mesh
-(the two finest meshes differ by under 1 %) and agrees with the closed forms within 1 % from
-f*h = 7 GHz*mm up, but sits 2-3 % above them at the bottom of each band; its Z0 agrees within
-2 % up to f*h = 5 GHz*mm on every substrate and drifts upward with the mesh at the top of the
-band. The field-check issue's bar (1 % in eps_eff, 2 % in Z0 over the whole band) is not met;
-the README's table (written by the same script) says so.
+What the fixture shows, and these tests pin. eps_eff taken as the thru's two-port (beta L from
+the ABCD matrix between the measurement planes, several millimetres apart) converges with the
+mesh at every frequency, and on the finest mesh lies within 1 % of the closed forms from
+f*h = 4 GHz*mm up and within 2 % everywhere, highest (1.5-1.9 %) at the bottom of each band.
+The port's own beta (measured across one cell) is 2-3 % high at the bottom of the band, within
+1 % only from 7 GHz*mm. Z0 (the port's voltage-current impedance) agrees within 2 % up to
+f*h = 5 GHz*mm and drifts upward with the mesh above. The field-check issue's bar (1 % in
+eps_eff, 2 % in Z0 over the whole band) is not met; the README's table (written by the same
+script) says so.
 """
 
 from __future__ import annotations
@@ -70,13 +73,22 @@ def test_the_closed_forms_compared_with_are_scikit_rfs_microstrip_line(name):
 
 
 @pytest.mark.parametrize("name", list(em_lines.SUBSTRATES))
-def test_eps_eff_is_mesh_converged_and_within_one_percent_from_7_ghz_mm(name):
+def test_two_port_eps_eff_converges_and_is_within_one_percent_from_4_ghz_mm(name):
     d = em_lines.deviations(RUNS, name)
     fh = d["f"] * 1e-9 * _height(name) * 1e3  # GHz*mm
-    assert np.max(np.abs(d["eps_eff"][-1] - d["eps_eff"][-2])) < 0.01  # converged
+    dev = np.abs(d["eps_eff_two_port"])
+    assert np.all(np.diff(dev, axis=0) < 5e-4)  # every refinement brings it closer
+    assert np.all(dev[-1][fh >= 4.0] < 0.01)
+    assert np.all(dev[-1] < 0.02)
+    assert 0.012 < d["eps_eff_two_port"][-1][0] < 0.02  # the bottom of the band: still high
+
+
+@pytest.mark.parametrize("name", list(em_lines.SUBSTRATES))
+def test_port_eps_eff_is_within_one_percent_only_from_7_ghz_mm(name):
+    d = em_lines.deviations(RUNS, name)
+    fh = d["f"] * 1e-9 * _height(name) * 1e3
     assert np.all(np.abs(d["eps_eff"][-1][fh >= 7.0]) < 0.01)
-    # and where it is not: 2-3 % above the closed forms at the bottom of the band, every mesh
-    assert 0.015 < d["eps_eff"][-1][0] < 0.035
+    assert 0.015 < d["eps_eff"][-1][0] < 0.035  # 2-3 % high at the bottom of the band
 
 
 @pytest.mark.parametrize("name", list(em_lines.SUBSTRATES))
