@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import fcntl
 import os
-import warnings
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
@@ -18,13 +17,9 @@ from typing import Any
 
 import numpy as np
 
-from refine import validity
-from refine.circuit import cascade
-from refine.circuit.builder import ideal_elements
 from refine.circuit.response import (
     evaluate_electrical,
     evaluate_layout,
-    layout_group_delay,
     spread_verdicts,
     strip_medium_for,
 )
@@ -164,15 +159,7 @@ def passband_sweep(r: RefineResult, n: int = 601) -> tuple[np.ndarray, np.ndarra
     p = r.problem
     lo, hi = p.mask.passband_start, p.mask.passband_stop
     f = np.linspace(max(lo - 0.5 * (hi - lo), 1e-3 * lo), hi + 0.5 * (hi - lo), n)
-    if r.layout is not None:
-        s = evaluate_layout(p, r.layout, f)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", validity.ModelRangeWarning)
-            tau = layout_group_delay(r.layout, strip_medium_for(p), p.gap_model, f, p.z_ref)
-        return f, s, tau
-    caps, thetas = r.electrical
-    s = evaluate_electrical(caps, thetas, p.f0, p.z_ref, f)
-    tau = cascade.group_delay(lambda g: ideal_elements(caps, thetas, p.f0, p.z_ref, g), f, p.z_ref)
+    s, tau = report.response_and_delay(r, f)
     return f, s, tau
 
 

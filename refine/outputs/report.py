@@ -14,6 +14,7 @@ import warnings
 from dataclasses import asdict
 
 import numpy as np
+from numpy.typing import NDArray
 
 from refine import validity
 from refine.circuit import cascade
@@ -100,22 +101,27 @@ def safe_power(power_w: float, volts: list[float], gaps: tuple[float, ...]) -> t
     return power_w * ratios[k], k
 
 
-def passband_figures(r: RefineResult, n: int = 401) -> dict[str, float]:
-    """Worst VSWR and return loss, worst and midband insertion loss, and the group delay
-    (midband, and its spread max - min) over the passband, of the refined design."""
+def response_and_delay(r: RefineResult, f: NDArray) -> tuple[NDArray, NDArray]:
+    """The refined design's S-matrix ``(nf, 2, 2)`` and exact group delay (s) at ``f``."""
     p = r.problem
-    f = np.linspace(p.mask.passband_start, p.mask.passband_stop, n)
     if r.layout is not None:
         s = evaluate_layout(p, r.layout, f)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", validity.ModelRangeWarning)
             tau = layout_group_delay(r.layout, strip_medium_for(p), p.gap_model, f, p.z_ref)
-    else:
-        caps, thetas = r.electrical
-        s = evaluate_electrical(caps, thetas, p.f0, p.z_ref, f)
-        tau = cascade.group_delay(
-            lambda g: ideal_elements(caps, thetas, p.f0, p.z_ref, g), f, p.z_ref
-        )
+        return s, tau
+    caps, thetas = r.electrical
+    s = evaluate_electrical(caps, thetas, p.f0, p.z_ref, f)
+    tau = cascade.group_delay(lambda g: ideal_elements(caps, thetas, p.f0, p.z_ref, g), f, p.z_ref)
+    return s, tau
+
+
+def passband_figures(r: RefineResult, n: int = 401) -> dict[str, float]:
+    """Worst VSWR and return loss, worst and midband insertion loss, and the group delay
+    (midband, and its spread max - min) over the passband, of the refined design."""
+    p = r.problem
+    f = np.linspace(p.mask.passband_start, p.mask.passband_stop, n)
+    s, tau = response_and_delay(r, f)
     g11 = np.abs(s[:, 0, 0])
     il = -20.0 * np.log10(np.maximum(np.abs(s[:, 1, 0]), 1e-300))
     mid = int(np.argmin(np.abs(f - p.mask.midband)))
