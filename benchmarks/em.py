@@ -56,6 +56,9 @@ def main() -> int:
     ap.add_argument("--problem", type=Path, default=PROBLEM)
     ap.add_argument("--mesh", choices=["coarse", "fine"], default="coarse")
     ap.add_argument("--docs", action="store_true")
+    ap.add_argument(
+        "--readme", action="store_true", help="write the figures into the README's block"
+    )
     ap.add_argument("--method", choices=spacemap.METHODS, default=spacemap.METHODS[0])
     args = ap.parse_args()
     warnings.simplefilter("ignore", ModelRangeWarning)
@@ -96,6 +99,30 @@ def main() -> int:
             f"  layout {k}: gaps {[round(g * 1e6) for g in lay.gaps]} um, lengths "
             f"{[round(x * 1e6) for x in lay.lengths]} um{taps}"
         )
+    if args.readme:
+        rows = "\n".join(
+            f"| {name} | {em} | {model} |" for name, em, model in first.comparison.rows()
+        )
+        rounds = "\n".join(
+            f"| {k} | {c.comparison.em_mask.worst_margin:+.2f} dB | "
+            f"{c.comparison.model_mask.worst_margin:+.2f} dB | {c.seconds:.0f} s |"
+            for k, c in enumerate(sm.checks, start=1)
+        )
+        text = (
+            f"`python benchmarks/em.py --readme` wrote this block ({eng.version}, mesh "
+            f"{args.mesh}, {args.method} space mapping, {problem.name}):\n\n"
+            f"The circuit-model optimum meets the mask with {r.worst_margin:+.2f} dB. One field "
+            f"solve (thru and filter) took {first.seconds:.0f} s on "
+            f"{first.solves[-1].mesh.cells:,} cells, {first.seconds / t_model:.2g} times one "
+            f"circuit-model evaluation ({t_model * 1e3:.2f} ms, measured beside it).\n\n"
+            "| first field solve | field solver | circuit model |\n|---|---|---|\n"
+            f"{rows}\n\n"
+            "| field solve | worst mask margin, field solver | circuit model | engine time |\n"
+            f"|---|---|---|---|\n{rounds}\n\n{sm.summary().splitlines()[-1]}"
+        )
+        from readme_block import replace_block
+
+        replace_block("fullwave-filter", text)
     if args.docs:
         _overlay(ROOT / "docs/fullwave-first.png", first, "circuit-model optimum")
         best = sm.checks[sm.best]
