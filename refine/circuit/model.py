@@ -377,13 +377,10 @@ class _Chain:
         f = np.real(factors)
         self.factors.extend(list(f) if self.batch else f.tolist())
 
-    def add_spectrum(self, dim: int, element: int, name: str, factor: NDArray) -> None:
-        self.add_spectra([dim], [element], name, np.asarray(factor)[None])
-
     def add_spectra(
         self, dims: list[int], elements: list[int], name: str, factors: NDArray
     ) -> None:
-        """:meth:`add_spectrum` for many pairs: ``factors`` is ``(m, [B,] nf)``."""
+        """Like :meth:`add_many`, with a spectrum per pair: ``factors`` is ``(m, [B,] nf)``."""
         self.s_dims.extend(dims)
         self.s_rows.extend(self.index[(e, name)] for e in elements)
         self.spectra.append(factors)

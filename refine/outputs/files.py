@@ -240,8 +240,11 @@ def _write_all(
     loss = report.loss_note(r)
     if loss is not None:
         notes = [loss, *notes]
+    computed = report.figures(r, power_w)  # quoted by both the summary and the report
     written.append(
-        export.write_json(out / "summary.json", report.summary(r, sd, spread, power_w, notes))
+        export.write_json(
+            out / "summary.json", report.summary(r, sd, spread, power_w, notes, computed)
+        )
     )
     if r.layout is not None:
         written.append(export.write_json(out / "layout.json", export.layout_dict(r.layout)))
@@ -261,7 +264,7 @@ def _write_all(
         written.append(
             export.write_touchstone(out / "response.ts", f, s_ref, p.z_ref, comments, "2.0")
         )
-    report_text = report.report_md(r, sd, spread, power_w, notes)
+    report_text = report.report_md(r, sd, spread, power_w, notes, computed)
     written += painters.collect()
     written.append(export.write_text_atomic(out / "report.md", report_text))
     return written

@@ -12,6 +12,7 @@ import html
 import math
 import warnings
 from dataclasses import asdict
+from typing import NamedTuple
 
 import numpy as np
 from numpy.typing import NDArray
@@ -155,11 +156,29 @@ def _dims(r: RefineResult) -> dict:
     }
 
 
+class Figures(NamedTuple):
+    """What the summary and the report both quote, computed once: the peak voltage across each
+    gap at the input power (empty without a layout) and :func:`passband_figures`."""
+
+    volts: list[float]
+    passband: dict[str, float]
+
+
+def figures(r: RefineResult, power_w: float) -> Figures:
+    return Figures(gap_voltages(r, power_w) if r.layout is not None else [], passband_figures(r))
+
+
 def summary(
-    r: RefineResult, sd: job.Seed, spread: dict, power_w: float, warnings_: list[str]
+    r: RefineResult,
+    sd: job.Seed,
+    spread: dict,
+    power_w: float,
+    warnings_: list[str],
+    computed: Figures | None = None,
 ) -> dict:
     p = r.problem
-    volts = gap_voltages(r, power_w) if r.layout is not None else []
+    computed = computed or figures(r, power_w)
+    volts = computed.volts
     out = {
         "problem": p.name,
         "source": p.source,
@@ -218,7 +237,7 @@ def summary(
             safe_power(power_w, volts, r.layout.gaps)[0] if r.layout is not None else None
         ),
         "breakdown_field_v_per_m": BREAKDOWN_V_PER_M,
-        "passband": passband_figures(r),
+        "passband": computed.passband,
         "diagnosis": None
         if r.diagnosis is None
         else {
@@ -305,9 +324,15 @@ def combined_verdict(
 
 
 def report_md(
-    r: RefineResult, sd: job.Seed, spread: dict, power_w: float, warnings_: list[str]
+    r: RefineResult,
+    sd: job.Seed,
+    spread: dict,
+    power_w: float,
+    warnings_: list[str],
+    computed: Figures | None = None,
 ) -> str:
     p = r.problem
+    computed = computed or figures(r, power_w)
     lines = [f"# {html.escape(export.one_line(p.name))}", ""]
     verdict = {
         Status.MET: "**The refined design meets the mask.**",
@@ -378,7 +403,7 @@ def report_md(
             "",
             f"Snapped to the shop's {grid * 1e6:g} um grid: worst margin {r.unsnapped_margin:+.2f} dB before, {r.snapped_margin:+.2f} dB after.",
         ]
-    pb = passband_figures(r)
+    pb = computed.passband
     lines += [
         "",
         "## Passband",
@@ -435,7 +460,7 @@ def report_md(
                 + ", ".join(f"{(w + 2 * bias) * 1e6:.2f} µm" for w in lay.widths)
                 + ").",
             ]
-        volts = gap_voltages(r, power_w)
+        volts = computed.volts
         lines += [
             "",
             f"## Peak gap voltage at {power_w:g} W input",
