@@ -238,14 +238,14 @@ def watch_parent(parent_pid: int) -> None:
     threading.Thread(target=watch, name="refine-parent-watch", daemon=True).start()
 
 
-def _append(store: Path, row: dict) -> None:
+def append_row(store: Path, row: dict) -> None:
     with open(store, "a", encoding="utf-8") as fh:
         fh.write(json.dumps(row, default=str) + "\n")
         fh.flush()
         os.fsync(fh.fileno())
 
 
-def _repair_store(store: Path) -> int:
+def repair_store(store: Path) -> int:
     """Rewrite the store (atomically) without lines that do not parse, such as the last line
     of a run killed while writing it; returns how many were dropped. Appending after a torn
     line would otherwise glue the next row onto it."""
@@ -361,7 +361,7 @@ def _run_study(
         },
     )
     if resume:
-        dropped = _repair_store(store)
+        dropped = repair_store(store)
         if dropped and say is not None:
             say(
                 f"results.jsonl: dropped {dropped} line(s) cut short by an interrupted run; "
@@ -375,7 +375,7 @@ def _run_study(
     total = len(study.designs)
 
     def finish(row: dict) -> None:
-        _append(store, row)
+        append_row(store, row)
         done[row["index"]] = row
         counts[row["status"]] = counts.get(row["status"], 0) + 1
         if progress is not None:

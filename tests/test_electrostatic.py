@@ -28,14 +28,14 @@ def test_panel_integral_is_exact(z, box):
     # The closed-form rectangle integral of 1/sqrt(x² + y² + z²) against adaptive quadrature
     # (common practice, no source).
     x1, x2, y1, y2 = box
-    exact = float(es._rect(np.array(x1), np.array(x2), np.array(y1), np.array(y2), z))
+    exact = float(es.panel_integral(np.array(x1), np.array(x2), np.array(y1), np.array(y2), z))
     num, _ = integrate.dblquad(lambda y, x: 1 / math.sqrt(x * x + y * y + z * z), x1, x2, y1, y2)
     assert exact == pytest.approx(num, rel=1e-9)
 
 
 def test_line_integral_is_exact():
     for c in (0.0, 0.7):
-        exact = float(es._ln_integral(np.array(0.2), np.array(1.3), c))
+        exact = float(es.log_integral(np.array(0.2), np.array(1.3), c))
         num, _ = integrate.quad(lambda t, c=c: 0.5 * math.log(t * t + c * c), 0.2, 1.3)
         assert exact == pytest.approx(num, rel=1e-10)
 

@@ -265,7 +265,7 @@ def build(
         add(cascade.Line(props[j][0], props[j][1], length), moves, j)
 
     def add_stub(j: int, t: Values, i: int) -> None:
-        dl = open_end_extensions(medium, w[j])
+        dl = open_end_extensions(medium, w[j], gap_model)
         add(cascade.ShuntOpenStub(props[j][0], props[j][1], t + dl), [(Dim.TAP, i, 1.0)], j)
         if emap is not None:
             emap.open_ends.append((len(els) - 1, j))

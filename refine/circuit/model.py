@@ -328,7 +328,8 @@ class StripFilterModel:
             acc.add_spectra(dims, elements, "z_c", steps.dz_c[owners])
         if emap.open_ends:  # a tapped stub's open-end extension follows its resonator's width
             med, w, h = self.medium, steps.w, steps.h
-            dl = (open_end_extensions(med, w + h) - open_end_extensions(med, w - h)) / (2 * h)
+            m = self.gap_model
+            dl = (open_end_extensions(med, w + h, m) - open_end_extensions(med, w - h, m)) / (2 * h)
             for e, j in emap.open_ends:
                 acc.add(col[j], e, "length", dl[..., j])
 

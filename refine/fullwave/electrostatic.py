@@ -140,7 +140,7 @@ def _corner(x: NDArray, y: NDArray, z: float) -> NDArray:
     return out
 
 
-def _rect(dx1: NDArray, dx2: NDArray, dy1: NDArray, dy2: NDArray, z: float) -> NDArray:
+def panel_integral(dx1: NDArray, dx2: NDArray, dy1: NDArray, dy2: NDArray, z: float) -> NDArray:
     """∫∫ dx dy / sqrt(x² + y² + z²) over [dx1, dx2] × [dy1, dy2] (offsets from the field
     point), exact."""
     return _corner(dx2, dy2, z) - _corner(dx1, dy2, z) - _corner(dx2, dy1, z) + _corner(dx1, dy1, z)
@@ -236,7 +236,7 @@ def potential_matrix(
     return pref * total
 
 
-def _ln_integral(d1: NDArray, d2: NDArray, c: float) -> NDArray:
+def log_integral(d1: NDArray, d2: NDArray, c: float) -> NDArray:
     """∫ ln sqrt(t² + c²) dt from d1 to d2, exact (c = 0 allowed)."""
 
     def g(t: NDArray) -> NDArray:
@@ -260,12 +260,12 @@ def line_charge(half_edges: NDArray, eps_r: float, height: float) -> NDArray:
     for sy in (1.0, -1.0):
         a, b = np.minimum(sy * ey[:-1], sy * ey[1:]), np.maximum(sy * ey[:-1], sy * ey[1:])
         d1, d2 = a[None, :] - yf[:, None], b[None, :] - yf[:, None]
-        total -= _ln_integral(d1, d2, 0.0)
+        total -= log_integral(d1, d2, 0.0)
         coef, n = 1.0, 1
         centre, width = 0.5 * (d1 + d2), d2 - d1
         while abs(coef) > SERIES_TOL:
             if n <= EXACT_IMAGES:
-                term = _ln_integral(d1, d2, 2.0 * n)
+                term = log_integral(d1, d2, 2.0 * n)
             else:  # at the panel centre across y, as the three-dimensional solve takes it
                 term = width * 0.5 * np.log(centre * centre + (2.0 * n) ** 2)
             total += (1.0 + k) * coef * term
@@ -446,5 +446,15 @@ def converged_gap(eps_r: float, height: float, width: float, gap_: float) -> dic
     return {
         "c_series": _extrapolate([s.c_series for s in solves]),
         "c_shunt": _extrapolate([s.c_shunt for s in solves]),
+        "c_line": _extrapolate([s.c_line for s in solves]),
+    }
+
+
+def converged_open_end(eps_r: float, height: float, width: float) -> dict[str, Converged]:
+    """Open-end excess capacitance and line capacitance per length, each extrapolated over
+    three panel densities: keys ``c_end``, ``c_line``."""
+    solves = [open_end(eps_r, height, width, d) for d in DENSITIES]
+    return {
+        "c_end": _extrapolate([s.c_end for s in solves]),
         "c_line": _extrapolate([s.c_line for s in solves]),
     }

@@ -13,7 +13,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from refine import _validate as v
-from refine.physics import discontinuities
+from refine.physics import calibrated, discontinuities
 from refine.physics.microstrip import Microstrip, hammerstad_jensen
 from refine.physics.stripline import Stripline
 
@@ -44,10 +44,37 @@ def medium_kind(medium: StripMedium) -> str:
     raise ValueError(f"medium must be a Microstrip or Stripline, got {type(medium).__name__}")
 
 
+def calibration_of(model: str) -> calibrated.Calibration | None:
+    """The calibration a gap-model name ``calibrated:<name or path>`` refers to, else None."""
+    if model.startswith(calibrated.PREFIX):
+        return calibrated.load(model[len(calibrated.PREFIX) :])
+    return None
+
+
+def gap_model_wh(model: str) -> tuple[float, float] | None:
+    """The strip widths (W/h) a gap model was fitted or calibrated over (None: no range)."""
+    cal = calibration_of(model)
+    if cal is not None:
+        return cal.w_h_range
+    return GAP_MODEL_WH.get(model)
+
+
 def check_gap_model(medium: StripMedium, model: str) -> str:
-    """``model`` if it is a gap model of ``medium``'s kind; a ValueError naming both otherwise."""
+    """``model`` if it is a gap model of ``medium``'s kind; a ValueError naming both otherwise.
+    A calibration must be for microstrip of the medium's ε_r."""
     kind = medium_kind(medium)
-    return v.one_of(f"gap model for {kind}", model, GAP_MODELS[kind])
+    cal = calibration_of(model)
+    if cal is None:
+        return v.one_of(f"gap model for {kind}", model, GAP_MODELS[kind])
+    if kind != "microstrip":
+        raise ValueError(f"gap model {model!r}: calibrations are for microstrip, not {kind}")
+    eps_r = medium.substrate.eps_r
+    if abs(cal.eps_r - eps_r) > 1e-6 * eps_r:
+        raise ValueError(
+            f"gap model {model!r}: calibrated for eps_r = {cal.eps_r:g}, the substrate has "
+            f"eps_r = {eps_r:g}"
+        )
+    return model
 
 
 def gap_capacitances(
@@ -61,6 +88,9 @@ def gap_capacitances(
     complex (complex-step derivatives).
     """
     sub = medium.substrate
+    cal = calibration_of(model)
+    if cal is not None:
+        return calibrated.gap(cal, w_in, w_out, s, sub.height)
     if model == "garg-bahl":
         w_in = np.asarray(w_in, float)
         w_out = np.asarray(w_out, float)
@@ -81,11 +111,17 @@ def gap_capacitances(
     raise ValueError(f"gap model = {model!r} is not one of the allowed values {GAP_MODELS}")
 
 
-def open_end_extensions(medium: StripMedium, width: ArrayLike) -> NDArray[np.float64]:
+def open_end_extensions(
+    medium: StripMedium, width: ArrayLike, model: str = ""
+) -> NDArray[np.float64]:
     """Open-end length extension Δl (m) of strips of ``width`` (any array shape) on ``medium``:
-    Kirschning–Jansen–Koster 1981 on microstrip, b ln 2/π on stripline."""
+    Kirschning–Jansen–Koster 1981 on microstrip (or the calibration that the gap model
+    ``model`` names), b ln 2/π on stripline."""
     sub = medium.substrate
     w = np.asarray(width, float)
+    cal = calibration_of(model)
+    if cal is not None:
+        return calibrated.open_end_extension(cal, w, sub.height)
     if isinstance(medium, Stripline):
         return np.broadcast_to(discontinuities.stripline_open_end(sub.height), w.shape)
     u = w / sub.height
@@ -95,6 +131,6 @@ def open_end_extensions(medium: StripMedium, width: ArrayLike) -> NDArray[np.flo
     )
 
 
-def open_end_extension(medium: StripMedium, width: float) -> float:
+def open_end_extension(medium: StripMedium, width: float, model: str = "") -> float:
     """Open-end length extension Δl (m) of one strip of ``width`` on ``medium``."""
-    return float(open_end_extensions(medium, width))
+    return float(open_end_extensions(medium, width, model))

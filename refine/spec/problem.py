@@ -46,7 +46,7 @@ from functools import lru_cache
 from pathlib import Path
 from typing import Any
 
-from refine.physics import strip
+from refine.physics import calibrated, strip
 from refine.physics.substrate import Substrate
 from refine.spec import families
 from refine.spec.coupling import Coupling
@@ -110,7 +110,7 @@ class Problem:
         None with ``[resonators] width = "free-beyond-models"`` (or a model without one)."""
         if self.resonator_width == "free-beyond-models":
             return None
-        return strip.GAP_MODEL_WH.get(self.gap_model)
+        return strip.gap_model_wh(self.gap_model)
 
     @property
     def band_edges(self) -> tuple[float, float]:
@@ -307,6 +307,48 @@ class _Reader:
         return str(x)
 
 
+CALIBRATED = "calibrated"  # [models] gap: the circuit reads a calibration data file
+
+
+def _calibration_model(r: _Reader, models: dict, eps_r: float, source: str) -> str:
+    """The gap-model name ``calibrated:<bundled name or absolute path>`` for ``[models]``: the
+    named calibration (a bundled name, or a path relative to the problem file), or the bundled
+    one for the substrate's ε_r."""
+    bundled = ", ".join(
+        f"{n} (eps_r {calibrated.load(n).eps_r:g})" for n in calibrated.bundled_names()
+    )
+    ref = models.get("calibration")
+    if ref is None:
+        found = calibrated.for_eps_r(eps_r)
+        if found is None:
+            raise r.fail(
+                "models.gap",
+                CALIBRATED,
+                f"no bundled calibration for eps_r = {eps_r:g} (bundled: {bundled or 'none'}); "
+                "name a file with models.calibration, made by "
+                "python -m refine.fullwave.static_calibration",
+            )
+        ref = found
+    elif not isinstance(ref, str) or not ref.strip():
+        raise r.fail("models.calibration", ref, "must be a bundled calibration name or a file path")
+    elif ref not in calibrated.bundled_names():
+        path = Path(ref)
+        if not path.is_absolute() and source != "<memory>":
+            path = Path(source).parent / path
+        ref = str(path.resolve())
+    try:
+        cal = calibrated.load(ref)
+    except ValueError as e:
+        raise r.fail("models.calibration", models.get("calibration", ref), str(e)) from None
+    if abs(cal.eps_r - eps_r) > 1e-6 * eps_r:
+        raise r.fail(
+            "models.calibration",
+            models.get("calibration", ref),
+            f"calibrated for eps_r = {cal.eps_r:g}, but medium.eps_r = {eps_r:g}",
+        )
+    return cal.label
+
+
 def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
     """Validate a problem given as a dict (the parsed TOML) and return a :class:`Problem`."""
     r = _Reader(source)
@@ -463,12 +505,32 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
     resonator_width = r.choice(res_t, "resonators", "width", RESONATOR_WIDTHS, default="free")
     if kind == "ideal" and "width" in res_t:
         raise r.fail("resonators.width", res_t["width"], "does not apply to medium kind 'ideal'")
-    models = r.table(data, "models", {"gap"}, required=False)
+    models = r.table(data, "models", {"gap", "calibration"}, required=False)
     if kind == "ideal":
-        if "gap" in models:
-            raise r.fail("models.gap", models["gap"], "does not apply to medium kind 'ideal'")
+        for key in ("gap", "calibration"):
+            if key in models:
+                raise r.fail(f"models.{key}", models[key], "does not apply to medium kind 'ideal'")
         gap_model = "ideal"
+    elif kind == "microstrip":
+        choices = (*GAP_MODELS[kind], CALIBRATED)
+        default = CALIBRATED if "calibration" in models else GAP_MODELS[kind][0]
+        gap_model = r.choice(models, "models", "gap", choices, default=default)
+        if gap_model == CALIBRATED:
+            assert substrate is not None
+            gap_model = _calibration_model(r, models, substrate.eps_r, source)
+        elif "calibration" in models:
+            raise r.fail(
+                "models.calibration",
+                models["calibration"],
+                f"applies only with models.gap = {CALIBRATED!r} (got {gap_model!r})",
+            )
     else:
+        if "calibration" in models:
+            raise r.fail(
+                "models.calibration",
+                models["calibration"],
+                f"calibrations are for microstrip, not {kind}",
+            )
         gap_model = r.choice(models, "models", "gap", GAP_MODELS[kind], default=GAP_MODELS[kind][0])
 
     mask_t = r.table(

@@ -267,7 +267,7 @@ def realise_tapped(
             y0 = 1.0 / z_res
             phis[g.index] = gap_inverter(medium, gap_model, res_w, res_w, g.gap, f0, y0)[1]
     theta = resonator_angles(np.array(phis))
-    dl = open_end_extension(medium, res_w)
+    dl = open_end_extension(medium, res_w, gap_model)
     lengths = [float(t / beta0) for t in theta]
     lengths[0] -= dl
     lengths[-1] -= dl

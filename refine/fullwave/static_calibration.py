@@ -1,0 +1,199 @@
+"""Substrate calibration by the electrostatic solve: a symmetric gap's series and shunt
+capacitance over a grid of W/h and s/h, and the open end's excess capacitance over W/h, for one
+ε_r, saved as a versioned data file that the circuit model reads
+(:mod:`refine.physics.calibrated`).
+
+Static capacitances scale with size, so values are stored divided by ε0·h (dimensionless) and
+one file serves every substrate height of that ε_r. Zero metal thickness, open environment (no
+lid), f → 0 (see :mod:`refine.fullwave.electrostatic` for the method and its checks).
+
+Each point is solved at three panel densities and extrapolated (its uncertainty is stored with
+it). Points run on a local process pool or a Dask cluster and are appended to a scratch file
+``<out>.runs.jsonl`` as they finish, so a killed campaign resumes where it stopped; the data
+file is written, atomically, only when every point is in.
+
+    python -m refine.fullwave.static_calibration --eps-r 9.8 --out refine/physics/calibrations/static-er9.8.json
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime
+import json
+import os
+import sys
+import time
+from collections.abc import Callable
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from pathlib import Path
+from typing import Any
+
+from refine import _validate as v
+from refine.fullwave import electrostatic as es
+from refine.outputs.export import write_text_atomic
+from refine.physics.constants import EPS0
+from refine.study import append_row, check_scheduler, repair_store, watch_parent
+from refine.version import VERSION
+
+FORMAT = "refine-static-calibration/1"
+# Our own grid: W/h from 0.2 to 3.2 (50 Ω lines span about 0.7-3.3 on ε_r 2-10; resonators are
+# widened up to about 3x a feed) and s/h from 0.01 (a 10 µm gap on 1 mm; 6 µm on 0.635 mm) to
+# 1.6 (where the series capacitance has fallen to a few % of the shunt).
+W_H = (0.2, 0.3, 0.45, 0.65, 1.0, 1.5, 2.2, 3.2)
+S_H = (0.01, 0.015, 0.025, 0.04, 0.065, 0.1, 0.16, 0.25, 0.4, 0.65, 1.0, 1.6)
+HEIGHT = 1e-3  # the solves run at h = 1 mm; values are stored per ε0·h
+
+
+def _plain(c: es.Converged, per_length: bool = False) -> dict[str, Any]:
+    scale = EPS0 if per_length else EPS0 * HEIGHT
+    return {
+        "value": c.value / scale,
+        "uncertainty": c.uncertainty / scale,
+        "order": None if c.order != c.order else c.order,
+        "raw": [x / scale for x in c.raw],
+    }
+
+
+def solve_point(eps_r: float, kind: str, w_h: float, s_h: float | None) -> dict[str, Any]:
+    """One calibration point as a plain row (runs in a worker)."""
+    t0 = time.perf_counter()
+    if kind == "gap":
+        assert s_h is not None
+        got = es.converged_gap(eps_r, HEIGHT, w_h * HEIGHT, s_h * HEIGHT)
+        keys = ("c_series", "c_shunt")
+    else:
+        got = es.converged_open_end(eps_r, HEIGHT, w_h * HEIGHT)
+        keys = ("c_end", "c_line")
+    row: dict[str, Any] = {"kind": kind, "w_h": w_h, "s_h": s_h}
+    for key in keys:
+        row[key] = _plain(got[key], per_length=key == "c_line")
+    row["seconds"] = time.perf_counter() - t0
+    return row
+
+
+def points(w_h: tuple[float, ...] = W_H, s_h: tuple[float, ...] = S_H) -> list[tuple]:
+    return [("end", w, None) for w in w_h] + [("gap", w, s) for w in w_h for s in s_h]
+
+
+def _key(kind: str, w_h: float, s_h: float | None) -> str:
+    return f"{kind} {w_h:g} {s_h if s_h is None else format(s_h, 'g')}"
+
+
+def calibrate(
+    eps_r: float,
+    out: str | Path,
+    workers: int | None = 2,
+    client: Any = None,
+    w_h: tuple[float, ...] = W_H,
+    s_h: tuple[float, ...] = S_H,
+    progress: Callable[[int, int, dict], None] | None = None,
+) -> Path:
+    """Run (or resume) the campaign for ``eps_r`` and write the data file ``out``."""
+    v.real_in_range("eps_r", eps_r, 1.0, 100.0)
+    out = Path(out)
+    store = out.with_name(out.name + ".runs.jsonl")
+    out.parent.mkdir(parents=True, exist_ok=True)
+    repair_store(store)
+    done: dict[str, dict] = {}
+    if store.exists():
+        for line in store.read_text(encoding="utf-8").splitlines():
+            row = json.loads(line)
+            if row.get("eps_r") == eps_r:
+                done[_key(row["kind"], row["w_h"], row["s_h"])] = row
+    todo = [p for p in points(w_h, s_h) if _key(*p) not in done]
+    total = len(points(w_h, s_h))
+
+    def finish(row: dict) -> None:
+        row["eps_r"] = eps_r
+        append_row(store, row)
+        done[_key(row["kind"], row["w_h"], row["s_h"])] = row
+        if progress is not None:
+            progress(len(done), total, row)
+
+    if client is not None:
+        from distributed import as_completed as dask_completed
+
+        futures = [client.submit(solve_point, eps_r, *p, pure=False) for p in todo]
+        for fut in dask_completed(futures):
+            finish(fut.result())
+    elif workers == 1:
+        for p in todo:
+            finish(solve_point(eps_r, *p))
+    else:
+        with ProcessPoolExecutor(
+            max_workers=workers or os.cpu_count(),
+            initializer=watch_parent,
+            initargs=(os.getpid(),),
+        ) as pool:
+            for fut in as_completed([pool.submit(solve_point, eps_r, *p) for p in todo]):
+                finish(fut.result())
+    rows = [done[_key(*p)] for p in points(w_h, s_h)]
+    data = {
+        "format": FORMAT,
+        "eps_r": eps_r,
+        "metal_thickness": 0.0,
+        "environment": "open (no lid, no side walls)",
+        "units": "capacitance / (eps0 * h), dimensionless; c_line per unit length / eps0",
+        "w_h": list(w_h),
+        "s_h": list(s_h),
+        "provenance": {
+            "method": (
+                "electrostatic boundary-element solve (refine.fullwave.electrostatic): "
+                "zero-thickness strips on a grounded slab, image-series Green's function, "
+                "semi-infinite strips, three panel densities and Richardson extrapolation"
+            ),
+            "densities": list(es.DENSITIES),
+            "length_spread": es.LENGTH_SPREAD,
+            "refine_version": VERSION,
+            "created": datetime.date.today().isoformat(),
+            "command": f"python -m refine.fullwave.static_calibration --eps-r {eps_r:g}",
+            "cpu_seconds": round(sum(r["seconds"] for r in rows), 1),
+        },
+        "open_ends": [_strip(r) for r in rows if r["kind"] == "end"],
+        "gaps": [_strip(r) for r in rows if r["kind"] == "gap"],
+    }
+    write_text_atomic(out, json.dumps(data, indent=1) + "\n")
+    return out
+
+
+def _strip(row: dict) -> dict:
+    keep = {k: row[k] for k in row if k not in ("kind", "eps_r", "seconds")}
+    if row["kind"] == "end":
+        keep.pop("s_h")
+    keep["seconds"] = round(row["seconds"], 1)
+    return keep
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(
+        prog="python -m refine.fullwave.static_calibration",
+        description="Electrostatic gap and open-end calibration for one substrate permittivity.",
+    )
+    ap.add_argument("--eps-r", type=float, required=True, help="relative permittivity, 1-100")
+    ap.add_argument("--out", required=True, help="the data file to write (JSON)")
+    ap.add_argument("--workers", type=int, default=2, help="local processes (default 2)")
+    ap.add_argument("--scheduler", help="a Dask scheduler address instead of local processes")
+    a = ap.parse_args(argv)
+    try:
+        v.real_in_range("--eps-r", a.eps_r, 1.0, 100.0)
+        v.integer_in_range("--workers", a.workers, 1, 256)
+    except ValueError as e:
+        print(f"error: {e}", file=sys.stderr)
+        return 2
+    client = check_scheduler(a.scheduler) if a.scheduler else None
+
+    def say(k: int, n: int, row: dict) -> None:
+        print(
+            f"[{k}/{n}] {row['kind']} W/h {row['w_h']:g}"
+            + (f" s/h {row['s_h']:g}" if row["s_h"] is not None else "")
+            + f": {row['seconds']:.1f} s",
+            flush=True,
+        )
+
+    path = calibrate(a.eps_r, a.out, a.workers, client, progress=say)
+    print(f"wrote {path}")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

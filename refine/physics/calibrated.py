@@ -1,0 +1,276 @@
+"""Microstrip gap and open-end models read from a calibration data file.
+
+A calibration (written by :mod:`refine.fullwave.static_calibration`) holds, for one ε_r and zero
+metal thickness, a symmetric gap's series and shunt capacitance over a grid of W/h and s/h and
+the open end's excess capacitance over W/h, each divided by ε0·h, with its uncertainty. Static
+capacitances scale with size, so one file serves every substrate height of that ε_r.
+
+**Interpolation.** log C over (log W/h, log s/h) by tensor-product cubic Hermite interpolation
+with three-point slopes (C¹; a linear operator on the grid values, so it accepts the complex gap
+widths of complex-step derivatives). The values vary smoothly and nearly as power laws on the
+grid (ratios of 1.4–1.65 between neighbours), where this is accurate to a fraction of the
+values' own uncertainty (checked against solves between the grid points in
+tests/test_calibrated.py).
+
+**Unequal widths.** The calibration is of symmetric gaps. Between strips W1 ≠ W2 the series
+capacitance is taken at the geometric-mean width and each shunt capacitance at its own side's
+width (the same treatment as Garg–Bahl's in :mod:`refine.physics.strip`).
+
+**Outside the calibrated grid** the value at the nearest grid edge is carried on by the
+Kirschning–Jansen–Koster closed form's trend (its ratio between the requested and the clamped
+geometry), with a :class:`refine.validity.ModelRangeWarning`.
+
+Calibrations bundled with refine live in ``refine/physics/calibrations``; a problem names one by
+its file stem (``static-er9.8``) or by a path.
+"""
+
+from __future__ import annotations
+
+import functools
+import json
+import warnings
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from refine import validity
+from refine.physics import discontinuities
+from refine.physics.constants import EPS0
+from refine.physics.microstrip import hammerstad_jensen
+
+BUNDLED = Path(__file__).with_name("calibrations")
+PREFIX = "calibrated:"
+FORMAT = "refine-static-calibration/1"
+
+
+@dataclass(frozen=True, eq=False)
+class Calibration:
+    """One calibration, in log coordinates: ``x`` = log W/h, ``y`` = log s/h; ``series`` and
+    ``shunt`` (nx, ny) and ``end``, ``line`` (nx,) hold log of the values over ε0·h (ε0 for the
+    line capacitance per length); ``*_unc`` the relative uncertainties."""
+
+    name: str
+    eps_r: float
+    x: NDArray
+    y: NDArray
+    series: NDArray
+    shunt: NDArray
+    end: NDArray
+    line: NDArray
+    series_unc: NDArray
+    shunt_unc: NDArray
+    end_unc: NDArray
+    provenance: dict
+
+    @property
+    def w_h_range(self) -> tuple[float, float]:
+        return float(np.exp(self.x[0])), float(np.exp(self.x[-1]))
+
+    @property
+    def s_h_range(self) -> tuple[float, float]:
+        return float(np.exp(self.y[0])), float(np.exp(self.y[-1]))
+
+    @property
+    def label(self) -> str:
+        return f"{PREFIX}{self.name}"
+
+
+def bundled_names() -> list[str]:
+    return sorted(p.stem for p in BUNDLED.glob("*.json"))
+
+
+def _path(ref: str) -> Path:
+    if ref in bundled_names():
+        return BUNDLED / f"{ref}.json"
+    return Path(ref)
+
+
+@functools.lru_cache(maxsize=16)
+def load(ref: str) -> Calibration:
+    """The calibration named ``ref`` (a bundled name or a path); ValueError naming the
+    reference and what is available when it cannot be read."""
+    path = _path(ref)
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, json.JSONDecodeError) as e:
+        raise ValueError(
+            f"calibration = {ref!r}: cannot be read ({e}); bundled calibrations: "
+            f"{', '.join(bundled_names()) or 'none'}"
+        ) from None
+    if data.get("format") != FORMAT:
+        raise ValueError(
+            f"calibration = {ref!r}: not a {FORMAT} file (format {data.get('format')!r})"
+        )
+    w_h = np.asarray(data["w_h"], float)
+    s_h = np.asarray(data["s_h"], float)
+    gaps = {(g["w_h"], g["s_h"]): g for g in data["gaps"]}
+    ends = {e["w_h"]: e for e in data["open_ends"]}
+
+    def grid(key: str) -> tuple[NDArray, NDArray]:
+        val = np.array([[gaps[(w, s)][key]["value"] for s in data["s_h"]] for w in data["w_h"]])
+        unc = np.array(
+            [[gaps[(w, s)][key]["uncertainty"] for s in data["s_h"]] for w in data["w_h"]]
+        )
+        return np.log(val), unc / val
+
+    series, series_unc = grid("c_series")
+    shunt, shunt_unc = grid("c_shunt")
+    end = np.array([ends[w]["c_end"]["value"] for w in data["w_h"]])
+    end_unc = np.array([ends[w]["c_end"]["uncertainty"] for w in data["w_h"]]) / end
+    line = np.array([ends[w]["c_line"]["value"] for w in data["w_h"]])
+    name = ref if ref in bundled_names() else str(path.resolve())
+    return Calibration(
+        name,
+        float(data["eps_r"]),
+        np.log(w_h),
+        np.log(s_h),
+        series,
+        shunt,
+        np.log(end),
+        np.log(line),
+        series_unc,
+        shunt_unc,
+        end_unc,
+        data["provenance"],
+    )
+
+
+def for_eps_r(eps_r: float) -> str | None:
+    """The bundled calibration for ``eps_r`` (equal to 1 part in 10⁶), if there is one."""
+    for name in bundled_names():
+        if abs(load(name).eps_r - eps_r) <= 1e-6 * eps_r:
+            return name
+    return None
+
+
+def _weights(nodes: NDArray, q: NDArray) -> NDArray:
+    """(len(q), len(nodes)): the C¹ cubic Hermite interpolant with three-point slopes as weights
+    on the node values; ``q`` may be complex (the cell is chosen by its real part) and must lie
+    within the nodes."""
+    n = nodes.size
+    h = np.diff(nodes)
+    # slope at each node as weights on the node values
+    slope = np.zeros((n, n))
+    slope[0, :2] = [-1 / h[0], 1 / h[0]]
+    slope[-1, -2:] = [-1 / h[-1], 1 / h[-1]]
+    for i in range(1, n - 1):
+        a, b = h[i - 1], h[i]
+        slope[i, i - 1 : i + 2] = [-b / (a * (a + b)), (b - a) / (a * b), a / (b * (a + b))]
+    k = np.clip(np.searchsorted(nodes, np.real(q), side="right") - 1, 0, n - 2)
+    dx = h[k]
+    t = (q - nodes[k]) / dx
+    h00 = 2 * t**3 - 3 * t**2 + 1
+    h10 = t**3 - 2 * t**2 + t
+    h01 = -2 * t**3 + 3 * t**2
+    h11 = t**3 - t**2
+    rows = np.arange(q.size)
+    out = np.zeros((q.size, n), dtype=np.result_type(q, float))
+    out[rows, k] += h00
+    out[rows, k + 1] += h01
+    out += (h10 * dx)[:, None] * slope[k] + (h11 * dx)[:, None] * slope[k + 1]
+    return out
+
+
+def _clamped(nodes: NDArray, q: NDArray) -> NDArray:
+    return (
+        np.clip(np.real(q), nodes[0], nodes[-1]) + 1j * np.imag(q)
+        if np.iscomplexobj(q)
+        else np.clip(q, nodes[0], nodes[-1])
+    )
+
+
+def _bicubic(cal: Calibration, table: NDArray, lx: NDArray, ly: NDArray) -> NDArray:
+    wx = _weights(cal.x, lx)
+    wy = _weights(cal.y, ly)
+    return np.einsum("qi,ij,qj->q", wx, table, wy)
+
+
+def gap(
+    cal: Calibration, w_in: ArrayLike, w_out: ArrayLike, s: ArrayLike, h: float
+) -> discontinuities.GapCapacitances:
+    """π-network (series, shunt in, shunt out; farads) of a gap ``s`` between strips ``w_in``
+    and ``w_out`` on height ``h`` from calibration ``cal``."""
+    w_in = np.asarray(w_in, float)
+    w_out = np.asarray(w_out, float)
+    s = np.asarray(s)
+    shape = np.broadcast_shapes(w_in.shape, w_out.shape, s.shape)
+    wi, wo = (np.broadcast_to(x, shape).ravel() for x in (w_in, w_out))
+    sv = np.broadcast_to(s, shape).ravel()
+    w_mean = np.sqrt(wi * wo)
+    ls = np.log(sv / h)
+    lw = np.log(np.concatenate([w_mean, wi, wo]) / h)
+    ls3 = np.concatenate([ls, ls, ls])
+    lw_c = _clamped(cal.x, lw)
+    ls_c = _clamped(cal.y, ls3)
+    scale = EPS0 * h
+    series = np.exp(_bicubic(cal, cal.series, lw_c[: sv.size], ls_c[: sv.size])) * scale
+    shunt = np.exp(_bicubic(cal, cal.shunt, lw_c[sv.size :], ls_c[sv.size :])) * scale
+    outside = (np.real(lw) != np.real(lw_c)) | (np.real(ls3) != np.real(ls_c))
+    if np.any(outside):
+        lo_w, hi_w = cal.w_h_range
+        lo_s, hi_s = cal.s_h_range
+        validity.warn(
+            f"gap model {cal.label}: W/h {float(np.exp(np.min(np.real(lw)))):.3g}.."
+            f"{float(np.exp(np.max(np.real(lw)))):.3g}, s/h {float(np.exp(np.min(np.real(ls)))):.3g}.."
+            f"{float(np.exp(np.max(np.real(ls)))):.3g} leave the calibrated range (W/h {lo_w:g}..{hi_w:g}, "
+            f"s/h {lo_s:g}..{hi_s:g}); carried on by the Kirschning-Jansen-Koster trend"
+        )
+        trend = _trend(cal, lw, ls3, lw_c, ls_c, h)
+        series = series * trend[0][: sv.size]
+        shunt = shunt * trend[1][sv.size :]
+    n = sv.size
+    return discontinuities.GapCapacitances(
+        series.reshape(shape), shunt[n : 2 * n].reshape(shape), shunt[2 * n :].reshape(shape)
+    )
+
+
+def _trend(
+    cal: Calibration, lw: NDArray, ls: NDArray, lw_c: NDArray, ls_c: NDArray, h: float
+) -> tuple[NDArray, NDArray]:
+    """Kirschning–Jansen–Koster's (series, shunt) ratio between the requested and the clamped
+    symmetric geometries."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        with validity.unchecked():
+            w, wc = np.exp(np.real(lw)) * h, np.exp(np.real(lw_c)) * h
+            a = discontinuities.kirschning_jansen_koster_gap(w, w, np.exp(ls) * h, h, cal.eps_r)
+            b = discontinuities.kirschning_jansen_koster_gap(wc, wc, np.exp(ls_c) * h, h, cal.eps_r)
+    return a.c_series / b.c_series, a.c_shunt_in / b.c_shunt_in
+
+
+def open_end_extension(cal: Calibration, width: ArrayLike, h: float) -> NDArray:
+    """Open-end length extension Δl (m) of strips ``width`` on height ``h``: the calibrated
+    excess capacitance over the calibrated line capacitance per length."""
+    w = np.asarray(width, float)
+    lw = np.log(w.ravel() / h)
+    lw_c = np.clip(lw, cal.x[0], cal.x[-1])
+    wx = _weights(cal.x, lw_c)
+    dl = np.exp(wx @ cal.end - wx @ cal.line) * h
+    if np.any(lw != lw_c):
+        validity.warn(
+            f"open end {cal.label}: W/h {float(np.exp(lw.min())):.3g}..{float(np.exp(lw.max())):.3g} "
+            f"leaves the calibrated range ({cal.w_h_range[0]:g}..{cal.w_h_range[1]:g}); carried "
+            "on by the Kirschning-Jansen-Koster trend"
+        )
+        with validity.unchecked():
+            u, uc = np.exp(lw), np.exp(lw_c)
+            ee = hammerstad_jensen(u, cal.eps_r, 0.0)[1]
+            eec = hammerstad_jensen(uc, cal.eps_r, 0.0)[1]
+            kjk = discontinuities.kirschning_jansen_koster_open_end
+            dl = dl * kjk(u, cal.eps_r, ee) / kjk(uc, cal.eps_r, eec)
+    return dl.reshape(w.shape)
+
+
+def relative_uncertainty(
+    cal: Calibration, w: ArrayLike, s: ArrayLike, h: float
+) -> tuple[NDArray, NDArray]:
+    """The calibration's own (series, shunt) relative uncertainty near (W, s), from its grid
+    (the largest of the four surrounding points)."""
+    lw = np.clip(np.log(np.asarray(w, float) / h), cal.x[0], cal.x[-1])
+    ls = np.clip(np.log(np.asarray(s, float) / h), cal.y[0], cal.y[-1])
+    i = np.clip(np.searchsorted(cal.x, lw, side="right") - 1, 0, cal.x.size - 2)
+    j = np.clip(np.searchsorted(cal.y, ls, side="right") - 1, 0, cal.y.size - 2)
+    pick = lambda t: np.maximum.reduce([t[i, j], t[i + 1, j], t[i, j + 1], t[i + 1, j + 1]])  # noqa: E731
+    return pick(cal.series_unc), pick(cal.shunt_unc)
