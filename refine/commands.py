@@ -17,6 +17,7 @@ from refine import study
 from refine.circuit.response import (
     evaluate_electrical,
     evaluate_layout,
+    lossless_verdict,
     strip_medium_for,
     verification_grid,
 )
@@ -395,6 +396,10 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
     loss = report.loss_note(r)
     if loss is not None:
         print(loss)
+    if r.layout is not None:
+        through = report.through_loss_note(r, lossless_verdict(problem, r.layout))
+        if through is not None:
+            print(through)
     print()
     print(refined_table(r))
     outside = model_range_line(r)

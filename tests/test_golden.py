@@ -7,6 +7,7 @@ restructuring, and passed unchanged through it (to commit 6559560). Re-recorded 
 deliberate model fixes (see that commit and CHANGELOG.md): Garg-Bahl's series capacitance held
 positive where the fit fails for wide strips, Kirschning-Jansen-Koster's negative shunt
 capacitance held at 0, stripline wide-gap forms that keep their digits. Statuses did not change.
+Re-recorded again for the radiation of open microstrip (CHANGELOG.md).
 A deliberate change of behaviour re-records the file and says why in its commit.
 """
 

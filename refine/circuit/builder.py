@@ -20,6 +20,12 @@ gap; mirrored at the output (for one resonator, both taps on the same line). The
 own parasitics are omitted (stated in the report); the port reference plane is at the tap.
 A gap model referenced to the gap centre (stripline) gets a half-gap line on each side.
 
+On microstrip in an open enclosure (:attr:`refine.physics.microstrip.Microstrip.radiates`) the
+copper radiates (:mod:`refine.physics.radiation`): every gap's series capacitance becomes the
+admittance jωC_g + G (G the radiation conductance across the gap, at the geometric mean of its
+sides'), carried as the complex capacitance C_g − jG/ω; every open end of a tapped resonator
+gets the imaginary extension −jG·Z0/β beside its Δl.
+
 Shapes: ``widths`` and ``lengths`` are ``(..., n)``, ``gaps`` ``(..., n_gaps)``, ``taps``
 ``(..., 2)``, ``feed`` ``(...)``; the elements broadcast against ``(..., nf)`` and one cascade
 call evaluates the whole batch. With ``track`` the builder also returns an :class:`ElementMap`:
@@ -38,7 +44,9 @@ from numpy.typing import ArrayLike, NDArray
 from refine import _validate as v
 from refine._typing import Values
 from refine.circuit import cascade
+from refine.physics import radiation
 from refine.physics.ideal import IdealTEM
+from refine.physics.microstrip import Microstrip
 from refine.physics.strip import (
     CENTRE_REFERENCED,
     StripMedium,
@@ -202,6 +210,18 @@ def build(
         if line_props is not None
         else _line_properties_all(medium, widths_a, f, kl)
     )
+    radiates = isinstance(medium, Microstrip) and medium.radiates
+    f_arr = np.asarray(f, float)
+    omega = 2 * np.pi * f_arr
+    rad_cache: dict[int, tuple[NDArray, NDArray]] = {}
+
+    def rad(j: int | None) -> tuple[NDArray, NDArray]:  # (G, δ) of resonator j, or the feed
+        key = -1 if j is None else j
+        if key not in rad_cache:
+            g, zc = feed_props() if j is None else props[j]
+            rad_cache[key] = radiation.from_line(g, zc, medium.substrate.height, f_arr)
+        return rad_cache[key]
+
     # every gap's π-network from one call of the gap model (the sides' widths stacked)
     feed_a = np.asarray(v.positive_array("feed_width", feed) if validate else feed, float)
     if coupling is Coupling.GAP:
@@ -230,7 +250,10 @@ def build(
         s = pick(s_model, pos)
         ds = 1.0 if ds_model is None else pick(ds_model, pos)
         factor = 1.0 if adj.c_series_factors is None else adj.c_series_factors[pos]
-        pi = cascade.PiNetwork(pick(c_series_all, pos), pick(c_in_all, pos), pick(c_out_all, pos))
+        c_series: Values = pick(c_series_all, pos)
+        if radiates:
+            c_series = c_series - 1j * np.sqrt(rad(sides[0])[0] * rad(sides[1])[0]) / omega
+        pi = cascade.PiNetwork(c_series, pick(c_in_all, pos), pick(c_out_all, pos))
         centred = gap_model in CENTRE_REFERENCED  # half-gap lines on each side of the π-network
         if centred:
             g_in, z_in = props[sides[0]] if sides[0] is not None else feed_props()
@@ -265,7 +288,9 @@ def build(
         add(cascade.Line(props[j][0], props[j][1], length), moves, j)
 
     def add_stub(j: int, t: Values, i: int) -> None:
-        dl = open_end_extensions(medium, w[j], gap_model)
+        dl: Values = open_end_extensions(medium, w[j], gap_model)
+        if radiates:
+            dl = dl - 1j * rad(j)[1]
         add(cascade.ShuntOpenStub(props[j][0], props[j][1], t + dl), [(Dim.TAP, i, 1.0)], j)
         if emap is not None:
             emap.open_ends.append((len(els) - 1, j))

@@ -16,7 +16,9 @@ Lengths and taps enter line lengths directly; gap widths through the gap model's
 differentiated by complex step (exact); widths through the line's γ(f), z_c(f), the adjacent
 gaps' capacitances and the tapped stubs' open-end extensions, differentiated by a central
 difference (relative step 1e-6) and chained through the cascade's analytic derivatives. The
-builder's :class:`~refine.circuit.builder.ElementMap` says which dimension moves which element.
+radiation conductances (open microstrip) follow the widths through the same line properties.
+The builder's :class:`~refine.circuit.builder.ElementMap` says which dimension moves which
+element.
 """
 
 from __future__ import annotations
@@ -38,7 +40,9 @@ from refine.circuit.builder import (
     line_properties,
 )
 from refine.circuit.layout import Layout
+from refine.physics import radiation
 from refine.physics.constants import C0
+from refine.physics.microstrip import Microstrip
 from refine.physics.strip import (
     StripMedium,
     check_gap_model,
@@ -224,6 +228,8 @@ class StripFilterModel:
             self._gap_gradient(emap, acc, steps)
             if steps is not None:
                 self._width_gradient(steps, emap, acc)
+                if self._radiates:
+                    self._radiation_gradient(steps, emap, els, acc)
             ds11, ds21 = acc.total(len(self.dims), g.stacked11, g.stacked21, g.stacked)
         return Response(g.s11, g.s21, ds11, ds21)
 
@@ -332,6 +338,45 @@ class StripFilterModel:
             dl = (open_end_extensions(med, w + h, m) - open_end_extensions(med, w - h, m)) / (2 * h)
             for e, j in emap.open_ends:
                 acc.add(col[j], e, "length", dl[..., j])
+
+    @property
+    def _radiates(self) -> bool:
+        return isinstance(self.medium, Microstrip) and self.medium.radiates
+
+    def _radiation_gradient(
+        self, steps: _WidthSteps, emap: ElementMap, els: list[cascade.Element], acc: _Chain
+    ) -> None:
+        """The widths' derivatives through the radiation conductances: a gap's conductance is
+        the geometric mean of its sides' (d ln G_gap = ½ d ln G_side), a tapped open end's
+        imaginary extension δ is its own resonator's."""
+        h_sub = self.medium.substrate.height
+        hh = np.moveaxis(steps.h, -1, 0)[..., None]  # (n, [B,] 1)
+        gam = np.stack([g for g, _ in steps.props])
+        zc = np.stack([z for _, z in steps.props])
+        up = radiation.from_line(gam + steps.dgamma * hh, zc + steps.dz_c * hh, h_sub, self.f)
+        down = radiation.from_line(gam - steps.dgamma * hh, zc - steps.dz_c * hh, h_sub, self.f)
+        nominal = radiation.from_line(gam, zc, h_sub, self.f)
+        dlog_g = (up[0] - down[0]) / (2 * hh * nominal[0])  # (n, [B,] nf)
+        d_delta = (up[1] - down[1]) / (2 * hh)
+        omega = 2 * np.pi * self.f
+        dims, elements, spectra = [], [], []
+        for slot in emap.gaps:
+            pi = els[slot.element]
+            assert isinstance(pi, cascade.PiNetwork)
+            g_gap = -omega * np.imag(np.asarray(pi.c_series))
+            for res in slot.resonators:
+                if res is not None:
+                    dims.append(self._position[(Dim.WIDTH, res)])
+                    elements.append(slot.element)
+                    spectra.append(-1j * 0.5 * g_gap * dlog_g[res] / omega)
+        if dims:
+            acc.add_spectra(dims, elements, "c_series", np.stack(spectra))
+        if emap.open_ends:
+            dims = [self._position[(Dim.WIDTH, j)] for _, j in emap.open_ends]
+            elements = [e for e, _ in emap.open_ends]
+            acc.add_spectra(
+                dims, elements, "length", np.stack([-1j * d_delta[j] for _, j in emap.open_ends])
+            )
 
 
 @dataclass(frozen=True)

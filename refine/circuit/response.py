@@ -6,7 +6,10 @@ Everything here goes through the one builder (:mod:`refine.circuit.builder`).
 
 from __future__ import annotations
 
+import math
 import warnings
+from collections.abc import Sequence
+from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -16,6 +19,7 @@ from refine import validity
 from refine.circuit import cascade
 from refine.circuit.builder import Adjustments, Built, build, ideal_elements
 from refine.circuit.layout import Layout
+from refine.physics import calibrated, radiation
 from refine.physics.microstrip import Microstrip
 from refine.physics.strip import GAP_MODELS, StripMedium, medium_kind
 from refine.physics.stripline import Stripline
@@ -26,7 +30,7 @@ from refine.spec.problem import Problem
 def medium_for(problem: Problem, loss: bool = True) -> StripMedium | None:
     """The strip medium of a problem, or None for the ideal medium."""
     if problem.medium == "microstrip":
-        return Microstrip(problem.strip_substrate, loss=loss)
+        return Microstrip(problem.strip_substrate, loss=loss, enclosure=problem.enclosure)
     if problem.medium == "stripline":
         return Stripline(problem.strip_substrate, loss=loss)
     return None
@@ -117,23 +121,91 @@ def evaluate_electrical(
     return cascade.s_parameters(ideal_elements(caps, thetas, f0, z_ref, f), f, z_ref)
 
 
+def spread_models(medium: StripMedium) -> tuple[str, ...]:
+    """The gap models a layout is shown under: every closed form of its medium and, on
+    microstrip, the bundled electrostatic calibration for its ε_r if there is one."""
+    models = GAP_MODELS[medium_kind(medium)]
+    if isinstance(medium, Microstrip):
+        name = calibrated.for_eps_r(medium.substrate.eps_r)
+        if name is not None:
+            models = (*models, f"{calibrated.PREFIX}{name}")
+    return models
+
+
 def model_spread(
     layout: Layout, medium: StripMedium, f: ArrayLike, z_ref: float
 ) -> dict[str, NDArray[np.complex128]]:
-    """The same layout's S-matrix under every gap model available for its medium."""
-    return {
-        m: layout_response(layout, medium, m, f, z_ref) for m in GAP_MODELS[medium_kind(medium)]
-    }
+    """The same layout's S-matrix under every gap model of :func:`spread_models`."""
+    return {m: layout_response(layout, medium, m, f, z_ref) for m in spread_models(medium)}
 
 
 def spread_verdicts(problem: Problem, layout: Layout) -> dict[str, MaskResult]:
     """The layout's mask verdict on the verification grid under every gap model of its medium
     (empty where the medium has only one)."""
     medium = medium_for(problem)
-    if medium is None or len(GAP_MODELS[medium_kind(medium)]) < 2:
+    if medium is None or len(spread_models(medium)) < 2:
         return {}
     f = verification_grid(problem)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", validity.ModelRangeWarning)  # listed in the report
         spread = model_spread(layout, medium, f, problem.z_ref)
     return {m: problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0]) for m, s in spread.items()}
+
+
+@dataclass(frozen=True)
+class LossBudget:
+    """Unloaded Q of each resonator at f0 by mechanism (conductor, dielectric, radiation; inf
+    where the mechanism is absent), and Cohn's midband dissipation loss split the same way."""
+
+    q_conductor: tuple[float, ...]
+    q_dielectric: tuple[float, ...]
+    q_radiation: tuple[float, ...]
+    midband_db: dict[str, float]
+
+    @property
+    def q_unloaded(self) -> tuple[float, ...]:
+        return tuple(
+            1.0 / (1.0 / c + 1.0 / d + 1.0 / r)
+            for c, d, r in zip(self.q_conductor, self.q_dielectric, self.q_radiation, strict=True)
+        )
+
+
+def loss_budget(problem: Problem, layout: Layout, g: Sequence[float]) -> LossBudget:
+    """The resonators' Q at f0 from their lines (Q = β/(2α) for conductor and dielectric
+    loss, Pozar §6.3 [from memory]) and, on open microstrip, Belohoubek & Denlinger's radiation
+    Q (:mod:`refine.physics.radiation`), with Cohn's estimate of the midband loss,
+    ΔL = 4.343 Σ g_k/(FBW·Q_k) dB (Cohn 1959; Matthaei, Young & Jones §4.13 [from memory]),
+    for each mechanism. ``g`` are the prototype's g1..gn."""
+    medium = strip_medium_for(problem)
+    f0 = np.array([problem.f0])
+    qc, qd, qr = [], [], []
+    for w in layout.widths:
+        gamma, _ = medium.line_properties(w, f0)
+        beta = float(np.imag(gamma[0]))
+        ac, ad = (float(np.ravel(x)[0]) for x in medium.attenuation(w, f0))
+        qc.append(beta / (2 * ac) if ac > 0 else math.inf)
+        qd.append(beta / (2 * ad) if ad > 0 else math.inf)
+        if isinstance(medium, Microstrip) and medium.radiates:
+            z0, e_eff = (float(np.ravel(x)[0]) for x in medium.dispersive(w, f0))
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", validity.ModelRangeWarning)
+                qr.append(float(radiation.radiation_q(z0, e_eff, medium.substrate.height, f0)[0]))
+        else:
+            qr.append(math.inf)
+    g_k = np.asarray(g, float)
+    per = {"conductor": qc, "dielectric": qd, "radiation": qr}
+    midband = {
+        k: float(4.343 * np.sum(g_k / (problem.fbw * np.asarray(q)))) for k, q in per.items()
+    }
+    return LossBudget(tuple(qc), tuple(qd), tuple(qr), midband)
+
+
+def lossless_verdict(problem: Problem, layout: Layout) -> MaskResult:
+    """The layout's mask verdict with every loss switched off (conductor, dielectric,
+    radiation): a return loss met only with loss on is met by absorbing power."""
+    medium = strip_medium_for(problem, loss=False)
+    f = verification_grid(problem)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        s = layout_response(layout, medium, problem.gap_model, f, problem.z_ref)
+    return problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])

@@ -237,10 +237,10 @@ def _write_all(
             notes = [
                 "tapped feed: the gap and line models were used; the T-junction is not modelled"
             ]
-    loss = report.loss_note(r)
-    if loss is not None:
-        notes = [loss, *notes]
-    computed = report.figures(r, power_w)  # quoted by both the summary and the report
+    computed = report.figures(r, power_w, sd.design.g)  # quoted by the summary and the report
+    for note in (report.through_loss_note(r, computed.lossless), report.loss_note(r)):
+        if note is not None:
+            notes = [note, *notes]
     written.append(
         export.write_json(
             out / "summary.json", report.summary(r, sd, spread, power_w, notes, computed)

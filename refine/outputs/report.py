@@ -22,10 +22,13 @@ from refine.circuit import cascade
 from refine.circuit.builder import ideal_elements
 from refine.circuit.layout import Layout
 from refine.circuit.response import (
+    LossBudget,
     evaluate_electrical,
     evaluate_layout,
     layout_build,
     layout_group_delay,
+    loss_budget,
+    lossless_verdict,
     strip_medium_for,
 )
 from refine.optimise import seed as job
@@ -34,6 +37,7 @@ from refine.outputs import export
 from refine.physics import gap_fixture
 from refine.physics.substrate import Substrate
 from refine.spec.coupling import Coupling
+from refine.spec.mask import MaskResult
 
 BREAKDOWN_V_PER_M = 1.0e6  # conservative: 1 kV/mm
 
@@ -158,14 +162,43 @@ def _dims(r: RefineResult) -> dict:
 
 class Figures(NamedTuple):
     """What the summary and the report both quote, computed once: the peak voltage across each
-    gap at the input power (empty without a layout) and :func:`passband_figures`."""
+    gap at the input power (empty without a layout), :func:`passband_figures`, and for strip
+    layouts the resonators' loss budget and the mask verdict with every loss switched off."""
 
     volts: list[float]
     passband: dict[str, float]
+    budget: LossBudget | None = None
+    lossless: MaskResult | None = None
 
 
-def figures(r: RefineResult, power_w: float) -> Figures:
-    return Figures(gap_voltages(r, power_w) if r.layout is not None else [], passband_figures(r))
+def figures(r: RefineResult, power_w: float, g: tuple[float, ...] = ()) -> Figures:
+    """``g`` are the prototype's g-values g0..g(n+1) (for the loss budget)."""
+    if r.layout is None:
+        return Figures([], passband_figures(r))
+    p = r.problem
+    budget = loss_budget(p, r.layout, g[1:-1]) if g else None
+    return Figures(
+        gap_voltages(r, power_w), passband_figures(r), budget, lossless_verdict(p, r.layout)
+    )
+
+
+def through_loss_note(r: RefineResult, lossless: MaskResult | None) -> str | None:
+    """A warning when the design meets its return-loss mask only because of its loss: without
+    conductor, dielectric and radiation loss the same layout would fail it."""
+    name = "passband return loss"
+    if lossless is None or name not in r.worst:
+        return None
+    lossy, bare = r.worst[name], lossless.worst[name]
+    if lossy >= 0.0 > bare:
+        return (
+            f"WARNING: the return loss is met only through loss: {lossy:+.2f} dB margin with "
+            f"loss, {bare:+.2f} dB without (the mask sets no insertion-loss limit to stop a "
+            "lossy design from passing)"
+            if r.problem.mask.max_insertion_loss_db is None
+            else f"WARNING: the return loss is met only through loss: {lossy:+.2f} dB margin "
+            f"with loss, {bare:+.2f} dB without"
+        )
+    return None
 
 
 def summary(
@@ -177,7 +210,7 @@ def summary(
     computed: Figures | None = None,
 ) -> dict:
     p = r.problem
-    computed = computed or figures(r, power_w)
+    computed = computed or figures(r, power_w, sd.design.g)
     volts = computed.volts
     out = {
         "problem": p.name,
@@ -238,6 +271,17 @@ def summary(
         ),
         "breakdown_field_v_per_m": BREAKDOWN_V_PER_M,
         "passband": computed.passband,
+        "loss_budget": None
+        if computed.budget is None
+        else {
+            "q_conductor": list(computed.budget.q_conductor),
+            "q_dielectric": list(computed.budget.q_dielectric),
+            "q_radiation": list(computed.budget.q_radiation),
+            "q_unloaded": list(computed.budget.q_unloaded),
+            "cohn_midband_loss_db": computed.budget.midband_db,
+        },
+        "lossless_margins_db": None if computed.lossless is None else computed.lossless.worst,
+        "met_only_through_loss": through_loss_note(r, computed.lossless) is not None,
         "diagnosis": None
         if r.diagnosis is None
         else {
@@ -323,6 +367,46 @@ def combined_verdict(
     )
 
 
+def _inf(q: float) -> str:
+    return "—" if math.isinf(q) else f"{q:.0f}"
+
+
+def _budget_lines(r: RefineResult, computed: Figures) -> list[str]:
+    b = computed.budget
+    assert b is not None
+    p = r.problem
+    radiates = any(not math.isinf(q) for q in b.q_radiation)
+    out = [
+        "",
+        f"## Loss budget (unloaded Q per resonator at {p.f0 / 1e9:.6g} GHz)",
+        "",
+        "| resonator | Q conductor | Q dielectric | Q radiation | Q unloaded |",
+        "|---|---|---|---|---|",
+    ]
+    for k, (c, d, q_r, q_u) in enumerate(
+        zip(b.q_conductor, b.q_dielectric, b.q_radiation, b.q_unloaded, strict=True), 1
+    ):
+        out.append(f"| {k} | {_inf(c)} | {_inf(d)} | {_inf(q_r)} | {_inf(q_u)} |")
+    total = sum(b.midband_db.values())
+    split = ", ".join(f"{k} {v:.2f} dB" for k, v in b.midband_db.items() if v > 0)
+    out += [
+        "",
+        f"Cohn's midband estimate {total:.2f} dB ({split or 'lossless'}); the circuit gives "
+        f"{computed.passband['midband_insertion_loss_db']:.2f} dB. "
+        + (
+            "Radiation: Belohoubek & Denlinger's open-resonator Q, open enclosure; surface waves "
+            "are not included."
+            if radiates
+            else (
+                "No radiation: the problem states a shielded enclosure."
+                if p.enclosure == "shielded"
+                else "No radiation term for this medium."
+            )
+        ),
+    ]
+    return out
+
+
 def report_md(
     r: RefineResult,
     sd: job.Seed,
@@ -332,7 +416,7 @@ def report_md(
     computed: Figures | None = None,
 ) -> str:
     p = r.problem
-    computed = computed or figures(r, power_w)
+    computed = computed or figures(r, power_w, sd.design.g)
     lines = [f"# {html.escape(export.one_line(p.name))}", ""]
     verdict = {
         Status.MET: "**The refined design meets the mask.**",
@@ -415,6 +499,11 @@ def report_md(
         f"{pb['group_delay_spread_s'] * 1e9:.3f} ns across the passband (exact, from the "
         "cascade's frequency derivative)",
     ]
+    note = through_loss_note(r, computed.lossless)
+    if note:
+        lines += ["", f"**{note}**"]
+    if computed.budget is not None:
+        lines += _budget_lines(r, computed)
     lines += ["", "## Dimensions", ""]
     if r.layout is None:
         caps, thetas = r.electrical

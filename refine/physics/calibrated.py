@@ -222,7 +222,7 @@ def gap(
         shunt = shunt * trend[1][sv.size :]
     n = sv.size
     return discontinuities.GapCapacitances(
-        series.reshape(shape), shunt[n : 2 * n].reshape(shape), shunt[2 * n :].reshape(shape)
+        series.reshape(shape), shunt[:n].reshape(shape), shunt[n:].reshape(shape)
     )
 
 

@@ -203,6 +203,9 @@ def solve_log_width(z_of, z0: float, lo: float, hi: float, what: str, ratio: str
 @dataclass(frozen=True)
 class Microstrip:
     """Microstrip on ``substrate``; ``loss`` switches conductor and dielectric loss on or off.
+    ``enclosure`` is ``"open"`` (the strips radiate at their open ends and gaps,
+    :mod:`refine.physics.radiation`) or ``"shielded"`` (a lid and walls far enough away not to
+    change the line properties, which is all the circuit models of a lid: no radiation).
 
     Strip widths are in metres and broadcast against the frequency array: a single width is a
     float, a batch of widths has shape ``(..., 1)``.
@@ -210,6 +213,12 @@ class Microstrip:
 
     substrate: Substrate
     loss: bool = True
+    enclosure: str = "open"
+
+    @property
+    def radiates(self) -> bool:
+        """Whether the circuit adds radiation conductances (open enclosure, losses on)."""
+        return self.loss and self.enclosure == "open"
 
     def _u(self, width: ArrayLike) -> NDArray:
         w = v.positive_array("width", width)

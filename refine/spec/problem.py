@@ -19,6 +19,9 @@ Schema (keys marked * are required)::
     eps_r, height                            * for microstrip and stripline
     metal_thickness, loss_tangent, conductivity, roughness    optional
     eps_r_tolerance, height_tolerance                         optional, 1-sigma, for yield
+    enclosure = "open" (default: microstrip radiates at open ends and gaps) | "shielded"
+                                             (microstrip under a lid far enough away not to change
+                                              the lines: no radiation)
     [fab]                                    * for microstrip and stripline
     min_gap *, min_width, grid, gap_tolerance, width_tolerance, max_total_length,
     etch_bias (per copper edge: the artwork is drawn that much larger; default 0)
@@ -28,8 +31,10 @@ Schema (keys marked * are required)::
                                               the gap model's stated W/h range; "feed": every
                                               resonator at the feed line width; the last: up to
                                               three feed widths, outside the model's range)
-    [models]    gap = microstrip: "garg-bahl" (default) | "kirschning-jansen-koster";
-                      stripline: "altschuler-oliner" (default); not for "ideal"
+    [models]    gap = microstrip: "garg-bahl" (default) | "kirschning-jansen-koster" |
+                      "calibrated"; stripline: "altschuler-oliner" (default); not for "ideal"
+                calibration = a bundled calibration name or a file path (microstrip; implies
+                      gap = "calibrated"; default: the bundled one for the substrate's eps_r)
     [mask]                                   *
     passband_return_loss_db, passband_ripple_db, midband_insertion_loss_db   (at least one)
     [[mask.stopband]]  start, stop, rejection_db
@@ -84,6 +89,7 @@ class Problem:
     source: str = "<memory>"
     resonator_width: str = "free"  # refinable within the gap model's range; "feed": z_ref width
     # ("free-beyond-models": refinable outside the gap model's range too)
+    enclosure: str = "open"  # microstrip: "open" (radiates) or "shielded"
 
     @property
     def strip_substrate(self) -> Substrate:
@@ -308,6 +314,7 @@ class _Reader:
 
 
 CALIBRATED = "calibrated"  # [models] gap: the circuit reads a calibration data file
+ENCLOSURES = ("open", "shielded")
 
 
 def _calibration_model(r: _Reader, models: dict, eps_r: float, source: str) -> str:
@@ -438,9 +445,19 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
             "roughness",
             "eps_r_tolerance",
             "height_tolerance",
+            "enclosure",
         },
     )
     kind = r.choice(med, "medium", "kind", MEDIUM_KINDS)
+    enclosure = "open"
+    if "enclosure" in med:
+        if kind != "microstrip":
+            raise r.fail(
+                "medium.enclosure",
+                med["enclosure"],
+                "applies to microstrip only (stripline is enclosed)",
+            )
+        enclosure = r.choice(med, "medium", "enclosure", ENCLOSURES)
     substrate = None
     fab = None
     if kind == "ideal":
@@ -592,6 +609,7 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         mask,
         source,
         resonator_width,
+        enclosure,
     )
 
 

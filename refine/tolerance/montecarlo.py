@@ -23,7 +23,7 @@ from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import cast
 
 import numpy as np
@@ -186,7 +186,7 @@ def worst_margins(problem: Problem, samples: Samples, f: NDArray) -> NDArray:
                     sub.roughness,
                 )
                 # a substrate whose values are arrays: the line formulas are elementwise
-                medium = type(nominal)(cast(Substrate, batch), nominal.loss)
+                medium = replace(nominal, substrate=cast(Substrate, batch))
             els = build(
                 problem.external,
                 medium,

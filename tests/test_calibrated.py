@@ -1,0 +1,194 @@
+"""The calibrated gap and open-end model (refine.physics.calibrated) and its problem-file keys:
+interpolation, complex-step safety, the range it warns outside, and the bundled calibrations
+against the electrostatic solve they came from."""
+
+from __future__ import annotations
+
+import json
+import math
+import re
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from refine import validity
+from refine.physics import calibrated, strip
+from refine.physics.constants import EPS0
+from refine.physics.microstrip import Microstrip
+from refine.physics.substrate import Substrate
+from refine.spec.problem import ProblemError, load_problem, parse_problem
+
+W_H = (0.3, 0.5, 1.0, 2.0)
+S_H = (0.01, 0.03, 0.1, 0.3, 1.0)
+
+
+def _series(w, s):  # a smooth made-up surface, quadratic in the log coordinates
+    x, y = math.log(w), math.log(s)
+    return math.exp(2.0 + 0.9 * x - 0.4 * y - 0.03 * y * y + 0.05 * x * y)
+
+
+def _shunt(w, s):
+    x, y = math.log(w), math.log(s)
+    return math.exp(0.5 + 0.6 * x + 0.7 * y - 0.04 * x * x)
+
+
+def _entry(v):
+    return {"value": v, "uncertainty": 0.01 * v, "order": 1.0, "raw": [v, v, v]}
+
+
+def write_calibration(path: Path, eps_r: float = 9.8) -> Path:
+    """A calibration file of made-up values (the format the campaign writes)."""
+    data = {
+        "format": calibrated.FORMAT,
+        "eps_r": eps_r,
+        "w_h": list(W_H),
+        "s_h": list(S_H),
+        "provenance": {"method": "made up for a test"},
+        "open_ends": [
+            {"w_h": w, "c_end": _entry(2.0 * w**0.8), "c_line": _entry(10.0 * w**0.5)} for w in W_H
+        ],
+        "gaps": [
+            {"w_h": w, "s_h": s, "c_series": _entry(_series(w, s)), "c_shunt": _entry(_shunt(w, s))}
+            for w in W_H
+            for s in S_H
+        ],
+    }
+    path.write_text(json.dumps(data))
+    return path
+
+
+@pytest.fixture
+def cal(tmp_path):
+    calibrated.load.cache_clear()
+    return calibrated.load(str(write_calibration(tmp_path / "made-up.json")))
+
+
+def test_reproduces_the_grid_and_quadratics_in_log_coordinates(cal):
+    h = 0.5e-3
+    for w, s in [(0.5, 0.03), (1.0, 0.1), (0.7, 0.05), (1.4, 0.2), (0.4, 0.015)]:
+        c = calibrated.gap(cal, w * h, w * h, s * h, h)
+        # three-point slopes are exact for quadratics, so the cubic Hermite interpolant is too
+        assert float(c.c_series) == pytest.approx(_series(w, s) * EPS0 * h, rel=1e-9)
+        assert float(c.c_shunt_in) == pytest.approx(_shunt(w, s) * EPS0 * h, rel=1e-9)
+
+
+def test_is_smooth_across_grid_lines(cal):
+    h = 1e-3
+    s = np.array([0.1 * (1 - 1e-7), 0.1 * (1 + 1e-7)]) * h
+    c = np.asarray(calibrated.gap(cal, 0.7 * h, 0.7 * h, s, h).c_series)
+    assert c[1] == pytest.approx(c[0], rel=1e-6)
+
+
+def test_complex_step_gives_the_derivative(cal):
+    # refine's gradients take d/ds by complex step through the gap model
+    h, w, s = 1e-3, 0.8e-3, 0.07e-3
+    step = 1e-20 * s
+    d_cs = np.imag(calibrated.gap(cal, w, w, s + 1j * step, h).c_series) / step
+    fd = (
+        calibrated.gap(cal, w, w, s * (1 + 1e-6), h).c_series
+        - calibrated.gap(cal, w, w, s * (1 - 1e-6), h).c_series
+    ) / (2e-6 * s)
+    assert float(d_cs) == pytest.approx(float(fd), rel=1e-5)
+
+
+def test_unequal_widths_take_the_geometric_mean_for_the_series_part(cal):
+    h = 1e-3
+    c = calibrated.gap(cal, 0.5e-3, 2.0e-3, 0.1e-3, h)
+    mean = calibrated.gap(cal, 1.0e-3, 1.0e-3, 0.1e-3, h)
+    assert float(c.c_series) == pytest.approx(float(mean.c_series))
+    assert float(c.c_shunt_in) == pytest.approx(
+        float(calibrated.gap(cal, 0.5e-3, 0.5e-3, 0.1e-3, h).c_shunt_in)
+    )
+    assert float(c.c_shunt_out) == pytest.approx(
+        float(calibrated.gap(cal, 2e-3, 2e-3, 0.1e-3, h).c_shunt_in)
+    )
+
+
+def test_outside_the_grid_warns_and_stays_continuous(cal):
+    h = 1e-3
+    with pytest.warns(validity.ModelRangeWarning, match="calibrated range"):
+        out = calibrated.gap(cal, 1e-3, 1e-3, 1.0001e-3, h)
+    inside = calibrated.gap(cal, 1e-3, 1e-3, 0.9999e-3, h)
+    assert float(out.c_series) == pytest.approx(float(inside.c_series), rel=1e-3)
+    with pytest.warns(validity.ModelRangeWarning, match="calibrated range"):
+        dl = calibrated.open_end_extension(cal, 2.5e-3, h)
+    assert np.isfinite(dl) and dl > 0
+
+
+def test_open_end_is_end_over_line_capacitance(cal):
+    h = 1e-3
+    dl = calibrated.open_end_extension(cal, 1e-3, h)
+    assert float(dl) == pytest.approx(2.0 / 10.0 * h)
+
+
+def test_gap_model_name_and_medium_checks(cal, tmp_path):
+    med = Microstrip(Substrate(9.8, 0.635e-3))
+    name = cal.label
+    assert strip.check_gap_model(med, name) == name
+    assert strip.gap_model_wh(name) == (0.3, 2.0)
+    other = Microstrip(Substrate(3.55, 0.508e-3))
+    with pytest.raises(ValueError, match=re.escape("calibrated for eps_r = 9.8")):
+        strip.check_gap_model(other, name)
+
+
+def _problem(models: dict, eps_r: float = 9.8) -> dict:
+    return {
+        "name": "calibrated-keys",
+        "response": {
+            "family": "chebyshev",
+            "ripple_db": 0.1,
+            "order": 3,
+            "center": "10 GHz",
+            "fractional_bandwidth": 0.05,
+            "z_ref": "50 ohm",
+        },
+        "medium": {"kind": "microstrip", "eps_r": eps_r, "height": "0.635 mm"},
+        "fab": {"min_gap": "20 um"},
+        "models": models,
+        "mask": {"passband_return_loss_db": 15.0},
+    }
+
+
+def test_problem_names_a_calibration_by_path(tmp_path):
+    path = write_calibration(tmp_path / "mine.json")
+    src = tmp_path / "p.toml"
+    p = parse_problem(_problem({"gap": "calibrated", "calibration": "mine.json"}), str(src))
+    assert p.gap_model == f"calibrated:{path.resolve()}"
+    assert p.width_range == (0.3, 2.0)
+    # the calibration alone selects the calibrated model
+    q = parse_problem(_problem({"calibration": str(path)}), str(src))
+    assert q.gap_model == p.gap_model
+
+
+def test_problem_calibration_errors(tmp_path):
+    src = str(tmp_path / "p.toml")
+    with pytest.raises(ProblemError, match=r"models.calibration = 'nowhere.json'.*cannot be read"):
+        parse_problem(_problem({"gap": "calibrated", "calibration": "nowhere.json"}), src)
+    path = write_calibration(tmp_path / "er3.json", eps_r=3.0)
+    with pytest.raises(
+        ProblemError, match=re.escape("calibrated for eps_r = 3, but medium.eps_r = 9.8")
+    ):
+        parse_problem(_problem({"calibration": str(path)}), src)
+    with pytest.raises(
+        ProblemError, match=re.escape("applies only with models.gap = 'calibrated'")
+    ):
+        parse_problem(_problem({"gap": "garg-bahl", "calibration": str(path)}), src)
+    with pytest.raises(ProblemError, match=re.escape("no bundled calibration for eps_r = 7.77")):
+        parse_problem(_problem({"gap": "calibrated"}, eps_r=7.77), src)
+
+
+def test_bad_calibration_file_is_refused(tmp_path):
+    bad = tmp_path / "bad.json"
+    bad.write_text(json.dumps({"format": "something else"}))
+    with pytest.raises(ValueError, match="not a refine-static-calibration/1 file"):
+        calibrated.load(str(bad))
+
+
+def test_the_problem_set_still_loads():
+    # today's problems keep working: no problem names a calibration unless it says so
+    for f in sorted(Path(__file__).parents[1].joinpath("problems").glob("*.toml")):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            load_problem(f)
