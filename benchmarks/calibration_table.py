@@ -95,11 +95,11 @@ def fixture_rows() -> list[str]:
     out = []
     for rec, row in zip(fx.records, comparison(fx), strict=True):
         g = row["geometry"]
-        name = calibrated.for_eps_r(g.eps_r)
+        name = calibrated.nearest(g.eps_r)
         if name is None:
             continue
         cal = calibrated.load(name)
-        c = calibrated.gap(cal, g.width, g.width, g.gap, g.height)
+        c = calibrated.gap(cal, g.width, g.width, g.gap, g.height, g.eps_r)
         cs, cp = float(c.c_series), float(c.c_shunt_in)
         us, up = calibrated.relative_uncertainty(cal, g.width, g.gap, g.height)
         em_s, em_p = rec["c_series"], rec["c_shunt"]
@@ -140,6 +140,9 @@ def cost_line() -> str:
 def tables() -> str:
     names = calibrated.bundled_names()
     out = [
+        f"`python benchmarks/calibration_table.py --readme` wrote these tables from "
+        f"{', '.join(f'`{n}`' for n in names)}.",
+        "",
         "Gap capacitances per ε0·h from the electrostatic solve (extrapolated, ± its "
         "uncertainty) and each closed form's error against them:",
         "",
@@ -161,7 +164,8 @@ def tables() -> str:
     if fx:
         out += [
             "",
-            "Against the field solver's nine-gap fixture (calibration interpolated to each geometry):",
+            "Against the field solver's nine-gap fixture (the nearest calibration interpolated to "
+            "each geometry; εr 3.5 from the 3.55 one, scaled by Garg–Bahl's εr exponents):",
             "",
             "| geometry | Cg calibrated (fF) | Cg field solver (fF) | difference "
             "| Cp calibrated (fF) | Cp field solver (fF) | difference |",

@@ -59,9 +59,13 @@ def test_summary_json(alumina_out):
     assert (
         len(lay["gaps"]) == 4 and len(lay["lengths"]) == 3 and all(g >= 15e-6 for g in lay["gaps"])
     )
-    assert set(s["gap_model_spread_db"]) == {"garg-bahl", "kirschning-jansen-koster"}
+    assert set(s["gap_model_spread_db"]) == {
+        "garg-bahl",
+        "kirschning-jansen-koster",
+        "calibrated:static-er9.8",
+    }
     assert len(s["peak_gap_voltage_v"]) == 4 and s["input_power_w"] == 2
-    assert s["models"]["gap"] == "garg-bahl" and s["medium"]["eps_r"] == 9.8
+    assert s["models"]["gap"] == "calibrated:static-er9.8" and s["medium"]["eps_r"] == 9.8
     assert s["fab_violations"] == []
 
 

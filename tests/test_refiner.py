@@ -271,9 +271,14 @@ def test_refined_widths_stay_inside_the_gap_models_range(path):
 
 def test_width_range_bounds_the_design_space():
     """layout_space intersects the width bounds with the model's range (in W/h)."""
+    from dataclasses import replace
+
     from refine.optimise.space import layout_space
 
-    p = load_problem(PROBLEMS[0].parent / "microstrip-x-band-alumina-n3.toml")
+    readme = load_problem(PROBLEMS[0].parent / "microstrip-x-band-alumina-n3.toml")
+    # the bundled calibration's range is the default's (our own grid)
+    assert readme.gap_model == "calibrated:static-er9.8" and readme.width_range == (0.2, 3.2)
+    p = replace(readme, gap_model="garg-bahl")
     sd = job.seed(p)
     lay = sd.strip_realisation.layout
     from refine.circuit.model import strip_model_for

@@ -20,6 +20,11 @@ width (the same treatment as Garg–Bahl's in :mod:`refine.physics.strip`).
 Kirschning–Jansen–Koster closed form's trend (its ratio between the requested and the clamped
 geometry), with a :class:`refine.validity.ModelRangeWarning`.
 
+**A substrate whose ε_r differs a little** from the calibration's (a tolerance study, a
+stand-in substrate, within :data:`EPS_SPREAD`) is carried by Garg–Bahl's ε_r exponents: the
+series capacitance scales as (ε_r/ε_cal)^0.8 (their odd mode), the shunt capacitance as
+(ε_r/ε_cal)^0.9 (their even mode), the open end's Δl by Kirschning–Jansen–Koster's ratio.
+
 Calibrations bundled with refine live in ``refine/physics/calibrations``; a problem names one by
 its file stem (``static-er9.8``) or by a path.
 """
@@ -42,6 +47,7 @@ from refine.physics.microstrip import hammerstad_jensen
 
 BUNDLED = Path(__file__).with_name("calibrations")
 PREFIX = "calibrated:"
+EPS_SPREAD = 0.05  # relative ε_r difference from the calibration's that is carried by scaling
 FORMAT = "refine-static-calibration/1"
 
 
@@ -145,6 +151,16 @@ def for_eps_r(eps_r: float) -> str | None:
     return None
 
 
+def nearest(eps_r: float) -> str | None:
+    """The bundled calibration closest in ε_r to ``eps_r`` within :data:`EPS_SPREAD`, if any."""
+    best = None
+    for name in bundled_names():
+        d = abs(load(name).eps_r / eps_r - 1.0)
+        if d <= EPS_SPREAD and (best is None or d < best[0]):
+            best = (d, name)
+    return None if best is None else best[1]
+
+
 def _weights(nodes: NDArray, q: NDArray) -> NDArray:
     """(len(q), len(nodes)): the C¹ cubic Hermite interpolant with three-point slopes as weights
     on the node values; ``q`` may be complex (the cell is chosen by its real part) and must lie
@@ -187,11 +203,32 @@ def _bicubic(cal: Calibration, table: NDArray, lx: NDArray, ly: NDArray) -> NDAr
     return np.einsum("qi,ij,qj->q", wx, table, wy)
 
 
+def check_eps_r(cal: Calibration, eps_r: ArrayLike) -> None:
+    """ValueError unless every ``eps_r`` is within :data:`EPS_SPREAD` of the calibration's."""
+    e = np.asarray(eps_r, float)
+    worst = float(np.max(np.abs(e / cal.eps_r - 1.0)))
+    if worst > EPS_SPREAD:
+        raise ValueError(
+            f"gap model {cal.label!r}: calibrated for eps_r = {cal.eps_r:g}, the substrate has "
+            f"eps_r = {float(np.max(e)) if e.size > 1 else float(e):g} (allowed: within "
+            f"{100 * EPS_SPREAD:g} % of it)"
+        )
+
+
 def gap(
-    cal: Calibration, w_in: ArrayLike, w_out: ArrayLike, s: ArrayLike, h: float
+    cal: Calibration,
+    w_in: ArrayLike,
+    w_out: ArrayLike,
+    s: ArrayLike,
+    h: ArrayLike,
+    eps_r: ArrayLike | None = None,
 ) -> discontinuities.GapCapacitances:
     """π-network (series, shunt in, shunt out; farads) of a gap ``s`` between strips ``w_in``
-    and ``w_out`` on height ``h`` from calibration ``cal``."""
+    and ``w_out`` on height ``h`` (ε_r ``eps_r``, default the calibration's) from calibration
+    ``cal``. A substrate batch (arrays of ``h``, ``eps_r``) is taken per element."""
+    if np.ndim(h) or (eps_r is not None and np.ndim(eps_r)):
+        return _gap_batched_substrate(cal, w_in, w_out, s, h, eps_r)
+    h = float(np.asarray(h))
     w_in = np.asarray(w_in, float)
     w_out = np.asarray(w_out, float)
     s = np.asarray(s)
@@ -221,8 +258,42 @@ def gap(
         series = series * trend[0][: sv.size]
         shunt = shunt * trend[1][sv.size :]
     n = sv.size
+    if eps_r is not None:
+        ratio = float(np.asarray(eps_r)) / cal.eps_r
+        series, shunt = series * ratio**0.8, shunt * ratio**0.9
     return discontinuities.GapCapacitances(
         series.reshape(shape), shunt[:n].reshape(shape), shunt[n:].reshape(shape)
+    )
+
+
+def _gap_batched_substrate(
+    cal: Calibration,
+    w_in: ArrayLike,
+    w_out: ArrayLike,
+    s: ArrayLike,
+    h: ArrayLike,
+    eps_r: ArrayLike | None,
+) -> discontinuities.GapCapacitances:
+    """:func:`gap` where the substrate's height and ε_r are arrays (one board per element):
+    the capacitances scale with height at fixed ratios, so the look-up runs on W/h and s/h."""
+    e = cal.eps_r if eps_r is None else eps_r
+    shape = np.broadcast_shapes(
+        np.shape(w_in), np.shape(w_out), np.shape(s), np.shape(h), np.shape(e)
+    )
+    hb = np.broadcast_to(np.asarray(h, float), shape)
+    eb = np.broadcast_to(np.asarray(e, float), shape)
+    unit = gap(
+        cal,
+        np.broadcast_to(w_in, shape) / hb,
+        np.broadcast_to(w_out, shape) / hb,
+        np.broadcast_to(s, shape) / hb,
+        1.0,
+    )
+    ratio = eb / cal.eps_r
+    return discontinuities.GapCapacitances(
+        unit.c_series * hb * ratio**0.8,
+        unit.c_shunt_in * hb * ratio**0.9,
+        unit.c_shunt_out * hb * ratio**0.9,
     )
 
 
@@ -240,10 +311,24 @@ def _trend(
     return a.c_series / b.c_series, a.c_shunt_in / b.c_shunt_in
 
 
-def open_end_extension(cal: Calibration, width: ArrayLike, h: float) -> NDArray:
-    """Open-end length extension Δl (m) of strips ``width`` on height ``h``: the calibrated
-    excess capacitance over the calibrated line capacitance per length."""
+def open_end_extension(
+    cal: Calibration, width: ArrayLike, h: ArrayLike, eps_r: ArrayLike | None = None
+) -> NDArray:
+    """Open-end length extension Δl (m) of strips ``width`` on height ``h`` (ε_r ``eps_r``,
+    default the calibration's): the calibrated excess capacitance over the calibrated line
+    capacitance per length."""
+    if np.ndim(h) or (eps_r is not None and np.ndim(eps_r)):
+        e = cal.eps_r if eps_r is None else eps_r
+        shape = np.broadcast_shapes(np.shape(width), np.shape(h), np.shape(e))
+        hb = np.broadcast_to(np.asarray(h, float), shape)
+        eb = np.broadcast_to(np.asarray(e, float), shape)
+        unit = open_end_extension(cal, np.broadcast_to(width, shape) / hb, 1.0)
+        return unit * hb * _kjk_eps_ratio(cal, np.broadcast_to(width, shape) / hb, eb)
+    h = float(np.asarray(h))
     w = np.asarray(width, float)
+    e = cal.eps_r if eps_r is None else float(np.asarray(eps_r))
+    if e != cal.eps_r:
+        return open_end_extension(cal, w, h) * _kjk_eps_ratio(cal, w / h, e)
     lw = np.log(w.ravel() / h)
     lw_c = np.clip(lw, cal.x[0], cal.x[-1])
     wx = _weights(cal.x, lw_c)
@@ -261,6 +346,15 @@ def open_end_extension(cal: Calibration, width: ArrayLike, h: float) -> NDArray:
             kjk = discontinuities.kirschning_jansen_koster_open_end
             dl = dl * kjk(u, cal.eps_r, ee) / kjk(uc, cal.eps_r, eec)
     return dl.reshape(w.shape)
+
+
+def _kjk_eps_ratio(cal: Calibration, u: ArrayLike, eps_r: ArrayLike) -> NDArray:
+    """Kirschning–Jansen–Koster's Δl at ``eps_r`` over its Δl at the calibration's ε_r."""
+    kjk = discontinuities.kirschning_jansen_koster_open_end
+    with validity.unchecked():
+        a = kjk(u, eps_r, hammerstad_jensen(u, eps_r, 0.0)[1])
+        b = kjk(u, cal.eps_r, hammerstad_jensen(u, cal.eps_r, 0.0)[1])
+    return np.asarray(a / b)
 
 
 def relative_uncertainty(

@@ -68,12 +68,7 @@ def check_gap_model(medium: StripMedium, model: str) -> str:
         return v.one_of(f"gap model for {kind}", model, GAP_MODELS[kind])
     if kind != "microstrip":
         raise ValueError(f"gap model {model!r}: calibrations are for microstrip, not {kind}")
-    eps_r = medium.substrate.eps_r
-    if abs(cal.eps_r - eps_r) > 1e-6 * eps_r:
-        raise ValueError(
-            f"gap model {model!r}: calibrated for eps_r = {cal.eps_r:g}, the substrate has "
-            f"eps_r = {eps_r:g}"
-        )
+    calibrated.check_eps_r(cal, medium.substrate.eps_r)
     return model
 
 
@@ -90,7 +85,7 @@ def gap_capacitances(
     sub = medium.substrate
     cal = calibration_of(model)
     if cal is not None:
-        return calibrated.gap(cal, w_in, w_out, s, sub.height)
+        return calibrated.gap(cal, w_in, w_out, s, sub.height, sub.eps_r)
     if model == "garg-bahl":
         w_in = np.asarray(w_in, float)
         w_out = np.asarray(w_out, float)
@@ -121,7 +116,7 @@ def open_end_extensions(
     w = np.asarray(width, float)
     cal = calibration_of(model)
     if cal is not None:
-        return calibrated.open_end_extension(cal, w, sub.height)
+        return calibrated.open_end_extension(cal, w, sub.height, sub.eps_r)
     if isinstance(medium, Stripline):
         return np.broadcast_to(discontinuities.stripline_open_end(sub.height), w.shape)
     u = w / sub.height

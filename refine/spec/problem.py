@@ -31,8 +31,10 @@ Schema (keys marked * are required)::
                                               the gap model's stated W/h range; "feed": every
                                               resonator at the feed line width; the last: up to
                                               three feed widths, outside the model's range)
-    [models]    gap = microstrip: "garg-bahl" (default) | "kirschning-jansen-koster" |
-                      "calibrated"; stripline: "altschuler-oliner" (default); not for "ideal"
+    [models]    gap = microstrip: "calibrated" (default where refine bundles a calibration for
+                      the substrate's eps_r) | "garg-bahl" (default elsewhere) |
+                      "kirschning-jansen-koster"; stripline: "altschuler-oliner" (default);
+                      not for "ideal"
                 calibration = a bundled calibration name or a file path (microstrip; implies
                       gap = "calibrated"; default: the bundled one for the substrate's eps_r)
     [mask]                                   *
@@ -530,10 +532,11 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         gap_model = "ideal"
     elif kind == "microstrip":
         choices = (*GAP_MODELS[kind], CALIBRATED)
-        default = CALIBRATED if "calibration" in models else GAP_MODELS[kind][0]
+        assert substrate is not None
+        bundled = calibrated.for_eps_r(substrate.eps_r) is not None
+        default = CALIBRATED if "calibration" in models or bundled else GAP_MODELS[kind][0]
         gap_model = r.choice(models, "models", "gap", choices, default=default)
         if gap_model == CALIBRATED:
-            assert substrate is not None
             gap_model = _calibration_model(r, models, substrate.eps_r, source)
         elif "calibration" in models:
             raise r.fail(
