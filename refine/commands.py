@@ -19,6 +19,7 @@ from refine.circuit.response import (
     evaluate_layout,
     lossless_verdict,
     strip_medium_for,
+    uncertainty_verdict,
     verification_grid,
 )
 from refine.fullwave import engine, handover, spacemap, verify
@@ -400,6 +401,12 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
         through = report.through_loss_note(r, lossless_verdict(problem, r.layout))
         if through is not None:
             print(through)
+        corners, unc = uncertainty_verdict(problem, r.layout)
+        sentence = report.uncertainty_sentence(report.Figures([], {}, None, None, corners, unc))
+        if r.status is Status.MET and corners.worst_margin < 0.0:
+            print(f"MET ON THE NOMINAL MODEL ONLY: {sentence}")
+        else:
+            print(sentence)
     print()
     print(refined_table(r))
     outside = model_range_line(r)

@@ -150,3 +150,48 @@ def test_loss_budget_and_the_lossless_check_on_the_readme_problem():
     assert b.midband_db["radiation"] > b.midband_db["dielectric"]
     lossless = lossless_verdict(p, lay)
     assert set(lossless.worst) == {k for k in lossless.worst}
+
+
+def test_model_uncertainty_corners_and_the_verdict_they_give():
+    from dataclasses import replace
+
+    from conftest import refined
+
+    from refine.circuit.response import model_uncertainty, uncertainty_verdict
+
+    path = next(p for p in PROBLEMS if p.stem == "microstrip-x-band-alumina-n3")
+    r = refined(path)
+    p = r.problem
+    unc = model_uncertainty(p, r.layout)
+    # the calibration's floor: its largest difference from the field solver's gap fixture
+    assert unc.series == pytest.approx(0.05) and unc.shunt == pytest.approx(0.05)
+    assert unc.radiation == pytest.approx(0.5) and "static-er9.8" in unc.source
+    assert len(unc.corners(len(r.layout.gaps))) == 8
+    worst, _ = uncertainty_verdict(p, r.layout)
+    assert worst.worst_margin < r.worst_margin  # the corners can only be worse than nominal
+    assert worst.worst_margin < 0.0  # this 3 % design is met on the nominal model only
+    shielded = model_uncertainty(replace(p, enclosure="shielded"), r.layout)
+    assert shielded.radiation == 0.0 and len(shielded.corners(4)) == 4
+    gb = model_uncertainty(replace(p, gap_model="garg-bahl"), r.layout)
+    # Garg-Bahl's largest series error against the fixture (README gap-calibration table)
+    assert 0.15 < gb.series < 0.25 and gb.source.startswith("garg-bahl")
+
+
+def test_report_headline_says_met_on_the_nominal_model_only(tmp_path):
+    import json
+
+    from conftest import refined
+
+    import refine
+
+    path = next(p for p in PROBLEMS if p.stem == "microstrip-x-band-alumina-n3")
+    r = refined(path)
+    sd = job.seed(r.problem)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        refine.write_outputs(r, sd, tmp_path / "o")
+    text = (tmp_path / "o/report.md").read_text()
+    assert "MET ON THE NOMINAL CIRCUIT MODEL ONLY" in text
+    s = json.loads((tmp_path / "o/summary.json").read_text())
+    assert s["status"] == "met" and s["model_uncertainty"]["met_across_uncertainty"] is False
+    assert s["model_uncertainty"]["worst_margin_db"] < 0 < s["worst_margin_db"]

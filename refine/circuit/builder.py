@@ -77,6 +77,8 @@ class Adjustments:
         gap never falls below a tenth of the drawn one.
     length_offsets : metres added to each resonator's length; tap_offsets : to each tap.
     loss_factor : multiplies every line's attenuation constant.
+    c_shunt_factor : multiplies every gap's shunt capacitances.
+    radiation_factor : multiplies every radiation conductance (open microstrip).
     """
 
     c_series_factors: tuple[float, ...] | None = None
@@ -84,6 +86,8 @@ class Adjustments:
     length_offsets: tuple[float, ...] | None = None
     tap_offsets: tuple[float, float] | None = None
     loss_factor: float = 1.0
+    c_shunt_factor: float = 1.0
+    radiation_factor: float = 1.0
 
 
 @dataclass(frozen=True)
@@ -219,7 +223,9 @@ def build(
         key = -1 if j is None else j
         if key not in rad_cache:
             g, zc = feed_props() if j is None else props[j]
-            rad_cache[key] = radiation.from_line(g, zc, medium.substrate.height, f_arr)
+            g_end, delta = radiation.from_line(g, zc, medium.substrate.height, f_arr)
+            k = adj.radiation_factor
+            rad_cache[key] = (k * g_end, k * delta)
         return rad_cache[key]
 
     # every gap's π-network from one call of the gap model (the sides' widths stacked)
@@ -233,7 +239,8 @@ def build(
     c_series_all = np.asarray(caps.c_series)
     if adj.c_series_factors is not None:
         c_series_all = c_series_all * np.asarray(adj.c_series_factors, float)
-    c_in_all, c_out_all = np.asarray(caps.c_shunt_in), np.asarray(caps.c_shunt_out)
+    c_in_all = np.asarray(caps.c_shunt_in) * adj.c_shunt_factor
+    c_out_all = np.asarray(caps.c_shunt_out) * adj.c_shunt_factor
     els: list[cascade.Element] = []
     emap = ElementMap() if track else None
 

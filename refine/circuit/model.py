@@ -305,9 +305,10 @@ class StripFilterModel:
         factor = np.array([sl.c_series_factor for sl in slots])
         if ds.ndim > 1:
             factor = factor[:, None]
+        shunt = 1.0 if self.adjust is None else self.adjust.c_shunt_factor
         for q, name in enumerate(_PI_NAMES):
             d = np.imag(caps[q][:g]) / h * ds
-            acc.add_many(dims, elements, name, d * factor if q == 0 else d)
+            acc.add_many(dims, elements, name, d * factor if q == 0 else d * shunt)
         if steps is None or not moves:
             return
         k = len(moves)
@@ -320,7 +321,7 @@ class StripFilterModel:
             factor = factor[:, None]
         for q, name in enumerate(_PI_NAMES):
             d = (np.real(caps[q][g : g + k]) - np.real(caps[q][g + k :])) / (2 * hw)
-            acc.add_many(dims, elements, name, d * factor if q == 0 else d)
+            acc.add_many(dims, elements, name, d * factor if q == 0 else d * shunt)
 
     def _width_gradient(self, steps: _WidthSteps, emap: ElementMap, acc: _Chain) -> None:
         """The widths' derivatives through the lines' γ, z_c and the stubs' open ends (the gaps'
@@ -357,7 +358,8 @@ class StripFilterModel:
         down = radiation.from_line(gam - steps.dgamma * hh, zc - steps.dz_c * hh, h_sub, self.f)
         nominal = radiation.from_line(gam, zc, h_sub, self.f)
         dlog_g = (up[0] - down[0]) / (2 * hh * nominal[0])  # (n, [B,] nf)
-        d_delta = (up[1] - down[1]) / (2 * hh)
+        k_rad = 1.0 if self.adjust is None else self.adjust.radiation_factor
+        d_delta = k_rad * (up[1] - down[1]) / (2 * hh)
         omega = 2 * np.pi * self.f
         dims, elements, spectra = [], [], []
         for slot in emap.gaps:

@@ -20,6 +20,7 @@ from refine.circuit import cascade
 from refine.circuit.builder import Adjustments, Built, build, ideal_elements
 from refine.circuit.layout import Layout
 from refine.physics import calibrated, radiation
+from refine.physics.gap_fixture import comparison, load_fixture
 from refine.physics.microstrip import Microstrip
 from refine.physics.strip import GAP_MODELS, StripMedium, medium_kind
 from refine.physics.stripline import Stripline
@@ -209,3 +210,90 @@ def lossless_verdict(problem: Problem, layout: Layout) -> MaskResult:
         warnings.simplefilter("ignore", validity.ModelRangeWarning)
         s = layout_response(layout, medium, problem.gap_model, f, problem.z_ref)
     return problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
+
+
+RADIATION_SPREAD = 0.5  # ± on the radiation conductances: unvalidated against a converged solve
+
+
+@dataclass(frozen=True)
+class ModelUncertainty:
+    """Relative ± on the gap's series and shunt capacitance and on radiation, with where each
+    comes from."""
+
+    series: float
+    shunt: float
+    radiation: float
+    source: str
+
+    def corners(self, n_gaps: int) -> list[Adjustments]:
+        """Every combination of the three at its ± (eight corners; four without radiation)."""
+        out = []
+        for a in (-1.0, 1.0):
+            for b in (-1.0, 1.0):
+                for c in (-1.0, 1.0) if self.radiation else (0.0,):
+                    out.append(
+                        Adjustments(
+                            c_series_factors=(1.0 + a * self.series,) * n_gaps,
+                            c_shunt_factor=1.0 + b * self.shunt,
+                            radiation_factor=1.0 + c * self.radiation,
+                        )
+                    )
+        return out
+
+
+def model_uncertainty(problem: Problem, layout: Layout) -> ModelUncertainty:
+    """The circuit model's uncertainty for this layout. A calibration: twice its own largest
+    uncertainty over the layout's gaps, at least its largest difference from the field solver's
+    gap fixture (5 %, ``tests/test_calibrated.py``). A closed form: its largest series and RMS
+    shunt error against that fixture. Radiation: ±:data:`RADIATION_SPREAD` on open microstrip."""
+    medium = strip_medium_for(problem)
+    rad = RADIATION_SPREAD if isinstance(medium, Microstrip) and medium.radiates else 0.0
+    model = problem.gap_model
+    if model.startswith(calibrated.PREFIX):
+        cal = calibrated.load(model[len(calibrated.PREFIX) :])
+        h = medium.substrate.height
+        widths = (
+            [layout.feed_width, *layout.widths]
+            if layout.external.value == "gap"
+            else list(layout.widths)
+        )
+        us, up = 0.0, 0.0
+        for k, s in enumerate(layout.gaps):
+            w = math.sqrt(widths[k] * widths[k + 1]) if k + 1 < len(widths) else widths[k]
+            a, b = calibrated.relative_uncertainty(cal, w, s, h)
+            us, up = max(us, float(a)), max(up, float(b))
+        return ModelUncertainty(
+            max(2 * us, FIXTURE_AGREEMENT),
+            max(2 * up, FIXTURE_AGREEMENT),
+            rad,
+            f"calibration {cal.name}",
+        )
+    if model in GAP_MODELS["microstrip"]:
+        rows = comparison(load_fixture())
+        series = max(abs(r["models"][model][0]) for r in rows)
+        shunt = math.sqrt(sum(r["models"][model][1] ** 2 for r in rows) / len(rows))
+        return ModelUncertainty(
+            series, shunt, rad, f"{model} against the field solver's gap fixture"
+        )
+    return ModelUncertainty(0.0, 0.0, rad, f"{model}: no uncertainty data")
+
+
+FIXTURE_AGREEMENT = 0.05  # the calibrations' largest series difference from the gap fixture
+
+
+def uncertainty_verdict(problem: Problem, layout: Layout) -> tuple[MaskResult, ModelUncertainty]:
+    """The layout's worst mask margin per region over the model-uncertainty corners."""
+    unc = model_uncertainty(problem, layout)
+    f = verification_grid(problem)
+    medium = strip_medium_for(problem)
+    worst: dict[str, float] = {}
+    where: dict[str, float] = {}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        for adj in unc.corners(len(layout.gaps)):
+            s = layout_response(layout, medium, problem.gap_model, f, problem.z_ref, adj)
+            res = problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
+            for k, m in res.worst.items():
+                if k not in worst or m < worst[k]:
+                    worst[k], where[k] = m, res.where[k]
+    return MaskResult(worst, where), unc

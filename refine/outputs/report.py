@@ -23,6 +23,7 @@ from refine.circuit.builder import ideal_elements
 from refine.circuit.layout import Layout
 from refine.circuit.response import (
     LossBudget,
+    ModelUncertainty,
     evaluate_electrical,
     evaluate_layout,
     layout_build,
@@ -30,6 +31,7 @@ from refine.circuit.response import (
     loss_budget,
     lossless_verdict,
     strip_medium_for,
+    uncertainty_verdict,
 )
 from refine.optimise import seed as job
 from refine.optimise.refiner import RefineResult, Status
@@ -169,6 +171,8 @@ class Figures(NamedTuple):
     passband: dict[str, float]
     budget: LossBudget | None = None
     lossless: MaskResult | None = None
+    corners: MaskResult | None = None  # worst margins over the model-uncertainty corners
+    uncertainty: ModelUncertainty | None = None
 
 
 def figures(r: RefineResult, power_w: float, g: tuple[float, ...] = ()) -> Figures:
@@ -177,8 +181,28 @@ def figures(r: RefineResult, power_w: float, g: tuple[float, ...] = ()) -> Figur
         return Figures([], passband_figures(r))
     p = r.problem
     budget = loss_budget(p, r.layout, g[1:-1]) if g else None
+    corners, unc = uncertainty_verdict(p, r.layout)
     return Figures(
-        gap_voltages(r, power_w), passband_figures(r), budget, lossless_verdict(p, r.layout)
+        gap_voltages(r, power_w),
+        passband_figures(r),
+        budget,
+        lossless_verdict(p, r.layout),
+        corners,
+        unc,
+    )
+
+
+def uncertainty_sentence(computed: Figures) -> str | None:
+    """The worst margin over the model-uncertainty corners, in words (None without them)."""
+    c, u = computed.corners, computed.uncertainty
+    if c is None or u is None:
+        return None
+    spread = f"gap series ±{100 * u.series:.0f} %, shunt ±{100 * u.shunt:.0f} %" + (
+        f", radiation ±{100 * u.radiation:.0f} %" if u.radiation else ""
+    )
+    return (
+        f"worst margin over the model-uncertainty corners {c.worst_margin:+.2f} dB "
+        f"({spread}; from {u.source})"
     )
 
 
@@ -282,6 +306,17 @@ def summary(
         },
         "lossless_margins_db": None if computed.lossless is None else computed.lossless.worst,
         "met_only_through_loss": through_loss_note(r, computed.lossless) is not None,
+        "model_uncertainty": None
+        if computed.uncertainty is None or computed.corners is None
+        else {
+            "series": computed.uncertainty.series,
+            "shunt": computed.uncertainty.shunt,
+            "radiation": computed.uncertainty.radiation,
+            "source": computed.uncertainty.source,
+            "worst_margins_db": computed.corners.worst,
+            "worst_margin_db": computed.corners.worst_margin,
+            "met_across_uncertainty": computed.corners.worst_margin >= 0.0,
+        },
         "diagnosis": None
         if r.diagnosis is None
         else {
@@ -418,8 +453,19 @@ def report_md(
     p = r.problem
     computed = computed or figures(r, power_w, sd.design.g)
     lines = [f"# {html.escape(export.one_line(p.name))}", ""]
+    robust = computed.corners is None or computed.corners.worst_margin >= 0.0
+    met_text = (
+        "**The refined design meets the mask.**"
+        if computed.corners is None
+        else "**The refined design meets the mask, also across the circuit model's stated "
+        f"uncertainty** ({uncertainty_sentence(computed)})."
+        if robust
+        else "**MET ON THE NOMINAL CIRCUIT MODEL ONLY: the refined design meets the mask, but not "
+        f"across the model's stated uncertainty** ({uncertainty_sentence(computed)}). Check it on "
+        "the field solver before building it."
+    )
     verdict = {
-        Status.MET: "**The refined design meets the mask.**",
+        Status.MET: met_text,
         Status.NOT_MET: "**NOT MET: the best design found does not meet the mask.** The outputs describe that best design.",
         Status.INFEASIBLE: "**INFEASIBLE: no design meeting the mask exists under these fab rules** (see the diagnosis). The outputs describe the best design found.",
     }[r.status]
