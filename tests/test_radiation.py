@@ -195,3 +195,32 @@ def test_report_headline_says_met_on_the_nominal_model_only(tmp_path):
     s = json.loads((tmp_path / "o/summary.json").read_text())
     assert s["status"] == "met" and s["model_uncertainty"]["met_across_uncertainty"] is False
     assert s["model_uncertainty"]["worst_margin_db"] < 0 < s["worst_margin_db"]
+
+
+@pytest.mark.parametrize("external", ["gap", "tap"])
+def test_gradients_with_shunt_and_radiation_factors(external):
+    # the uncertainty corners' factors enter the refiner's exact gradient too
+    from refine.circuit.builder import Adjustments
+    from refine.circuit.model import StripFilterModel
+
+    med = Microstrip(Substrate(9.8, 0.635e-3, 4e-6, 1e-4, 4.1e7))
+    f = np.linspace(9e9, 11e9, 21)
+    n = 3
+    adj = Adjustments(c_shunt_factor=1.2, radiation_factor=1.5)
+    m = StripFilterModel(med, "garg-bahl", 50.0, external, n, 0.6e-3, f, True, None, adj)
+    ng = n + 1 if external == "gap" else n - 1
+    p = [*np.linspace(60e-6, 200e-6, ng), 5.1e-3, 5.3e-3, 5.1e-3]
+    if external == "tap":
+        p += [1.0e-3, 1.2e-3]
+    p = np.array([*p, 0.7e-3, 0.8e-3, 0.7e-3])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        r = m.response(p, True)
+        for i in range(len(p)):
+            step = 1e-6 * p[i]
+            up, dn = p.copy(), p.copy()
+            up[i] += step
+            dn[i] -= step
+            for got, attr in ((r.ds21[i], "s21"), (r.ds11[i], "s11")):
+                fd = (getattr(m.response(up), attr) - getattr(m.response(dn), attr)) / (2 * step)
+                np.testing.assert_allclose(got, fd, rtol=0, atol=1e-5 * np.max(np.abs(fd)))
