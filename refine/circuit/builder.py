@@ -217,10 +217,11 @@ def build(
     radiates = isinstance(medium, Microstrip) and medium.radiates
     f_arr = np.asarray(f, float)
     omega = 2 * np.pi * f_arr
-    rad_cache: dict[int, tuple[NDArray, NDArray]] = {}
+    rad_cache: dict[object, tuple[NDArray, NDArray]] = {}
 
     def rad(j: int | None) -> tuple[NDArray, NDArray]:  # (G, δ) of resonator j, or the feed
-        key = -1 if j is None else j
+        # one computation per distinct strip width (resonators often share one)
+        key: object = "feed" if j is None else (j if batched else float(np.asarray(w[j], float)))
         if key not in rad_cache:
             g, zc = feed_props() if j is None else props[j]
             g_end, delta = radiation.from_line(g, zc, medium.substrate.height, f_arr)

@@ -161,31 +161,40 @@ def nearest(eps_r: float) -> str | None:
     return None if best is None else best[1]
 
 
-def _weights(nodes: NDArray, q: NDArray) -> NDArray:
-    """(len(q), len(nodes)): the C¹ cubic Hermite interpolant with three-point slopes as weights
-    on the node values; ``q`` may be complex (the cell is chosen by its real part) and must lie
-    within the nodes."""
-    n = nodes.size
-    h = np.diff(nodes)
-    # slope at each node as weights on the node values
+@functools.lru_cache(maxsize=64)
+def _slopes(nodes: bytes) -> NDArray:
+    """(n, n): the three-point slope at each node (given as the bytes of a float64 array, to be
+    hashable) as weights on the node values."""
+    x = np.frombuffer(nodes, dtype=np.float64)
+    n = x.size
+    h = np.diff(x)
     slope = np.zeros((n, n))
     slope[0, :2] = [-1 / h[0], 1 / h[0]]
     slope[-1, -2:] = [-1 / h[-1], 1 / h[-1]]
     for i in range(1, n - 1):
         a, b = h[i - 1], h[i]
         slope[i, i - 1 : i + 2] = [-b / (a * (a + b)), (b - a) / (a * b), a / (b * (a + b))]
-    k = np.clip(np.searchsorted(nodes, np.real(q), side="right") - 1, 0, n - 2)
-    dx = h[k]
+    return slope
+
+
+def _weights(nodes: NDArray, q: NDArray) -> NDArray:
+    """(len(q), len(nodes)): the C¹ cubic Hermite interpolant with three-point slopes as weights
+    on the node values; ``q`` may be complex (the cell is chosen by its real part) and must lie
+    within the nodes."""
+    n = nodes.size
+    slope = _slopes(nodes.tobytes())
+    k = np.searchsorted(nodes, np.real(q), side="right") - 1
+    np.clip(k, 0, n - 2, out=k)
+    dx = nodes[k + 1] - nodes[k]
     t = (q - nodes[k]) / dx
-    h00 = 2 * t**3 - 3 * t**2 + 1
-    h10 = t**3 - 2 * t**2 + t
-    h01 = -2 * t**3 + 3 * t**2
-    h11 = t**3 - t**2
+    t2 = t * t
+    h01 = t2 * (3.0 - 2.0 * t)
+    h10 = (t2 * t - 2.0 * t2 + t) * dx
+    h11 = (t2 * t - t2) * dx
+    out = h10[:, None] * slope[k] + h11[:, None] * slope[k + 1]
     rows = np.arange(q.size)
-    out = np.zeros((q.size, n), dtype=np.result_type(q, float))
-    out[rows, k] += h00
+    out[rows, k] += 1.0 - h01
     out[rows, k + 1] += h01
-    out += (h10 * dx)[:, None] * slope[k] + (h11 * dx)[:, None] * slope[k + 1]
     return out
 
 
