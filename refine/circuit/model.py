@@ -354,12 +354,28 @@ class StripFilterModel:
         hh = np.moveaxis(steps.h, -1, 0)[..., None]  # (n, [B,] 1)
         gam = np.stack([g for g, _ in steps.props])
         zc = np.stack([z for _, z in steps.props])
-        up = radiation.from_line(gam + steps.dgamma * hh, zc + steps.dz_c * hh, h_sub, self.f)
-        down = radiation.from_line(gam - steps.dgamma * hh, zc - steps.dz_c * hh, h_sub, self.f)
-        nominal = radiation.from_line(gam, zc, h_sub, self.f)
-        dlog_g = (up[0] - down[0]) / (2 * hh * nominal[0])  # (n, [B,] nf)
+        dg, dz = steps.dgamma, steps.dz_c
+        back: slice | NDArray = slice(None)
+        if steps.w.ndim == 1:  # one design: each distinct width once (resonators often share one)
+            _, first, inverse = np.unique(steps.w, return_index=True, return_inverse=True)
+            gam, zc, dg, dz, hh, back = (
+                gam[first],
+                zc[first],
+                dg[first],
+                dz[first],
+                hh[first],
+                inverse,
+            )
+        m = gam.shape[0]
+        g3, d3 = radiation.from_line(
+            np.concatenate([gam, gam + dg * hh, gam - dg * hh]),
+            np.concatenate([zc, zc + dz * hh, zc - dz * hh]),
+            h_sub,
+            self.f,
+        )
+        dlog_g = ((g3[m : 2 * m] - g3[2 * m :]) / (2 * hh * g3[:m]))[back]  # (n, [B,] nf)
         k_rad = 1.0 if self.adjust is None else self.adjust.radiation_factor
-        d_delta = k_rad * (up[1] - down[1]) / (2 * hh)
+        d_delta = (k_rad * (d3[m : 2 * m] - d3[2 * m :]) / (2 * hh))[back]
         omega = 2 * np.pi * self.f
         dims, elements, spectra = [], [], []
         for slot in emap.gaps:
