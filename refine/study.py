@@ -37,7 +37,7 @@ import threading
 import time
 import tomllib
 import warnings
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass
 from pathlib import Path
@@ -278,6 +278,29 @@ def _read_store(store: Path) -> dict[int, dict]:
     return rows
 
 
+def unordered(
+    fn: Callable[..., Any], args: list[tuple], workers: int | None, client: Any = None
+) -> Iterator[Any]:
+    """``fn(*a)`` for every ``a`` in ``args``, yielded as each finishes: on a Dask ``client``,
+    in this process (``workers == 1``), or on a local pool whose workers end with this process."""
+    if client is not None:
+        from distributed import as_completed as dask_completed
+
+        for fut in dask_completed([client.submit(fn, *a, pure=False) for a in args]):
+            yield fut.result()
+    elif workers == 1:
+        for a in args:
+            yield fn(*a)
+    else:
+        with ProcessPoolExecutor(
+            max_workers=workers or os.cpu_count(),
+            initializer=watch_parent,
+            initargs=(os.getpid(),),
+        ) as pool:
+            for fut in as_completed([pool.submit(fn, *a) for a in args]):
+                yield fut.result()
+
+
 def check_scheduler(address: str, timeout: float = 5.0):
     """A connected Dask client, or StudyError if nothing answers at ``address``."""
     try:
@@ -385,23 +408,8 @@ def _run_study(
         (k, study.designs[k], f"{study.source}#{k}", study.yield_samples, study.max_evaluations)
         for k in todo
     ]
-    if client is not None:
-        futures = [client.submit(run_design, *a, pure=False) for a in args]
-        from distributed import as_completed as dask_completed
-
-        for fut in dask_completed(futures):
-            finish(fut.result())
-    elif workers == 1:
-        for a in args:
-            finish(run_design(*a))
-    else:
-        with ProcessPoolExecutor(
-            max_workers=workers or os.cpu_count(),
-            initializer=watch_parent,
-            initargs=(os.getpid(),),
-        ) as pool:
-            for fut in as_completed([pool.submit(run_design, *a) for a in args]):
-                finish(fut.result())
+    for row in unordered(run_design, args, workers, client):
+        finish(row)
     rows = []
     for k in range(total):
         row = {

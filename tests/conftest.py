@@ -12,6 +12,8 @@ import warnings
 from functools import cache
 from pathlib import Path
 
+import numpy as np
+
 ROOT = Path(__file__).resolve().parent.parent
 DATA = ROOT / "tests" / "data"
 PROBLEMS = sorted((ROOT / "problems").glob("*.toml"))
@@ -38,3 +40,18 @@ def refined(path: Path):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ModelRangeWarning)  # listed in the report instead
         return design(load_problem(path))
+
+
+def fd_gradient_check(model, p, rel=1e-5):
+    """A model's exact gradient of S11 and S21 against central differences (relative step 1e-6)."""
+    r = model.response(p, True)
+    for i in range(len(p)):
+        h = 1e-6 * p[i]
+        up, dn = p.copy(), p.copy()
+        up[i] += h
+        dn[i] -= h
+        for ours, attr in ((r.ds21[i], "s21"), (r.ds11[i], "s11")):
+            fd = (getattr(model.response(up), attr) - getattr(model.response(dn), attr)) / (2 * h)
+            np.testing.assert_allclose(
+                ours, fd, rtol=0, atol=rel * np.max(np.abs(fd)), err_msg=model.names[i]
+            )

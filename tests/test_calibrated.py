@@ -12,6 +12,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import fd_gradient_check
 
 from refine import validity
 from refine.physics import calibrated, strip
@@ -234,17 +235,9 @@ def test_calibrated_model_gradients_match_finite_differences():
         if external == "tap":
             p += [1.0e-3, 1.2e-3]
         p += list(rng.uniform(0.4e-3, 1.0e-3, n))
-        p = np.array(p)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", validity.ModelRangeWarning)
-            r = m.response(p, True)
-            for i in range(len(p)):
-                step = 1e-6 * p[i]
-                up, dn = p.copy(), p.copy()
-                up[i] += step
-                dn[i] -= step
-                fd = (m.response(up).s21 - m.response(dn).s21) / (2 * step)
-                np.testing.assert_allclose(r.ds21[i], fd, rtol=0, atol=1e-5 * np.max(np.abs(fd)))
+            fd_gradient_check(m, np.array(p))
 
 
 def test_a_nearby_eps_r_is_carried_by_scaling_and_a_distant_one_refused(cal):

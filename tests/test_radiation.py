@@ -8,7 +8,7 @@ import warnings
 
 import numpy as np
 import pytest
-from conftest import PROBLEMS
+from conftest import PROBLEMS, fd_gradient_check
 
 from refine import validity
 from refine.circuit.builder import build
@@ -215,12 +215,4 @@ def test_gradients_with_shunt_and_radiation_factors(external):
     p = np.array([*p, 0.7e-3, 0.8e-3, 0.7e-3])
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", validity.ModelRangeWarning)
-        r = m.response(p, True)
-        for i in range(len(p)):
-            step = 1e-6 * p[i]
-            up, dn = p.copy(), p.copy()
-            up[i] += step
-            dn[i] -= step
-            for got, attr in ((r.ds21[i], "s21"), (r.ds11[i], "s11")):
-                fd = (getattr(m.response(up), attr) - getattr(m.response(dn), attr)) / (2 * step)
-                np.testing.assert_allclose(got, fd, rtol=0, atol=1e-5 * np.max(np.abs(fd)))
+        fd_gradient_check(m, p)

@@ -12,7 +12,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from conftest import PROBLEMS, expected_outcome, refined
+from conftest import PROBLEMS, expected_outcome, fd_gradient_check, refined
 
 from refine.circuit.model import IdealFilterModel, StripFilterModel
 from refine.circuit.response import verification_grid
@@ -100,20 +100,6 @@ def test_wideband_ideal_problems_recover_return_loss():
         assert r.seed_worst["passband return loss"] < 0 < r.worst["passband return loss"]
 
 
-def _fd_gradient_check(model, p, rel=1e-5):
-    r = model.response(p, True)
-    for i in range(len(p)):
-        h = 1e-6 * p[i]
-        up, dn = p.copy(), p.copy()
-        up[i] += h
-        dn[i] -= h
-        for ours, attr in ((r.ds21[i], "s21"), (r.ds11[i], "s11")):
-            fd = (getattr(model.response(up), attr) - getattr(model.response(dn), attr)) / (2 * h)
-            np.testing.assert_allclose(
-                ours, fd, rtol=0, atol=rel * np.max(np.abs(fd)), err_msg=model.names[i]
-            )
-
-
 @pytest.mark.parametrize("gap_model", ["garg-bahl", "kirschning-jansen-koster"])
 @pytest.mark.parametrize("external", ["gap", "tap"])
 def test_refiner_gradients_match_finite_differences(gap_model, external):
@@ -130,7 +116,7 @@ def test_refiner_gradients_match_finite_differences(gap_model, external):
         p += list(rng.uniform(0.4e-3, 1.2e-3, n))
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ModelRangeWarning)
-            _fd_gradient_check(m, np.array(p))
+            fd_gradient_check(m, np.array(p))
 
 
 def test_stripline_and_ideal_gradients_match_finite_differences():
@@ -140,12 +126,12 @@ def test_stripline_and_ideal_gradients_match_finite_differences():
     )
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ModelRangeWarning)
-        _fd_gradient_check(
+        fd_gradient_check(
             m,
             np.array([100e-6, 800e-6, 800e-6, 100e-6, 62e-3, 62e-3, 62e-3, 1.3e-3, 1.2e-3, 1.4e-3]),
         )
     mi = IdealFilterModel(2e9, 50.0, 3, np.linspace(1.5e9, 2.5e9, 31))
-    _fd_gradient_check(mi, np.array([0.55e-12, 0.19e-12, 0.19e-12, 0.55e-12, 2.7, 2.9, 2.7]))
+    fd_gradient_check(mi, np.array([0.55e-12, 0.19e-12, 0.19e-12, 0.55e-12, 2.7, 2.9, 2.7]))
 
 
 def test_met_is_decided_on_a_denser_grid_with_exact_edges():

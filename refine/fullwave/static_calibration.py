@@ -20,11 +20,9 @@ from __future__ import annotations
 import argparse
 import datetime
 import json
-import os
 import sys
 import time
 from collections.abc import Callable
-from concurrent.futures import ProcessPoolExecutor, as_completed
 from pathlib import Path
 from typing import Any
 
@@ -32,7 +30,7 @@ from refine import _validate as v
 from refine.fullwave import electrostatic as es
 from refine.outputs.export import write_text_atomic
 from refine.physics.constants import EPS0
-from refine.study import append_row, check_scheduler, repair_store, watch_parent
+from refine.study import append_row, check_scheduler, repair_store, unordered
 from refine.version import VERSION
 
 FORMAT = "refine-static-calibration/1"
@@ -110,23 +108,8 @@ def calibrate(
         if progress is not None:
             progress(len(done), total, row)
 
-    if client is not None:
-        from distributed import as_completed as dask_completed
-
-        futures = [client.submit(solve_point, eps_r, *p, pure=False) for p in todo]
-        for fut in dask_completed(futures):
-            finish(fut.result())
-    elif workers == 1:
-        for p in todo:
-            finish(solve_point(eps_r, *p))
-    else:
-        with ProcessPoolExecutor(
-            max_workers=workers or os.cpu_count(),
-            initializer=watch_parent,
-            initargs=(os.getpid(),),
-        ) as pool:
-            for fut in as_completed([pool.submit(solve_point, eps_r, *p) for p in todo]):
-                finish(fut.result())
+    for row in unordered(solve_point, [(eps_r, *p) for p in todo], workers, client):
+        finish(row)
     rows = [done[_key(*p)] for p in points(w_h, s_h)]
     data = {
         "format": FORMAT,
