@@ -24,6 +24,7 @@ from refine.physics.gap_fixture import comparison, load_fixture
 from refine.physics.microstrip import Microstrip
 from refine.physics.strip import GAP_MODELS, StripMedium, medium_kind
 from refine.physics.stripline import Stripline
+from refine.spec.coupling import Coupling
 from refine.spec.mask import MaskResult
 from refine.spec.problem import Problem
 
@@ -253,13 +254,13 @@ def model_uncertainty(problem: Problem, layout: Layout) -> ModelUncertainty:
         cal = calibrated.load(model[len(calibrated.PREFIX) :])
         h = medium.substrate.height
         widths = (
-            [layout.feed_width, *layout.widths]
-            if layout.external.value == "gap"
+            [layout.feed_width, *layout.widths, layout.feed_width]
+            if layout.external is Coupling.GAP
             else list(layout.widths)
         )
         us, up = 0.0, 0.0
-        for k, s in enumerate(layout.gaps):
-            w = math.sqrt(widths[k] * widths[k + 1]) if k + 1 < len(widths) else widths[k]
+        for k, s in enumerate(layout.gaps):  # gap k lies between widths k and k + 1
+            w = math.sqrt(widths[k] * widths[k + 1])
             a, b = calibrated.relative_uncertainty(cal, w, s, h)
             us, up = max(us, float(a)), max(up, float(b))
         return ModelUncertainty(
