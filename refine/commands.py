@@ -17,9 +17,7 @@ from refine import study
 from refine.circuit.response import (
     evaluate_electrical,
     evaluate_layout,
-    lossless_verdict,
     strip_medium_for,
-    uncertainty_verdict,
     verification_grid,
 )
 from refine.fullwave import engine, handover, spacemap, verify
@@ -397,13 +395,14 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
     loss = report.loss_note(r)
     if loss is not None:
         print(loss)
-    if r.layout is not None:
-        through = report.through_loss_note(r, lossless_verdict(problem, r.layout))
+    # computed once: printed here and quoted by the hand-over files of this same design
+    computed = report.figures(r, args.power, sd.design.g) if r.layout is not None else None
+    if computed is not None and computed.corners is not None:
+        through = report.through_loss_note(r, computed.lossless)
         if through is not None:
             print(through)
-        corners, unc = uncertainty_verdict(problem, r.layout)
-        sentence = report.uncertainty_sentence(report.Figures([], {}, None, None, corners, unc))
-        if r.status is Status.MET and corners.worst_margin < 0.0:
+        sentence = report.uncertainty_sentence(computed)
+        if r.status is Status.MET and computed.corners.worst_margin < 0.0:
             print(f"MET ON THE NOMINAL MODEL ONLY: {sentence}")
         else:
             print(sentence)
@@ -430,6 +429,7 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
         print("FAB RULE VIOLATIONS: " + "; ".join(r.fab_violations))
     if args.centre_yield:
         r = _centre(problem, r, args)
+        computed = None  # a new layout
     if args.out is not None:
         written = outputs.write_outputs(
             r,
@@ -441,6 +441,7 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
             dxf_version="R12" if args.dxf_r12 else "R2010",
             painters=painters,
             touchstone2=args.touchstone_2,
+            computed=computed,
         )
         print()
         print(f"wrote {len(written)} files to {args.out}: " + ", ".join(w.name for w in written))

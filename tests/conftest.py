@@ -55,3 +55,23 @@ def fd_gradient_check(model, p, rel=1e-5):
             np.testing.assert_allclose(
                 ours, fd, rtol=0, atol=rel * np.max(np.abs(fd)), err_msg=model.names[i]
             )
+
+
+def microstrip_problem(name: str = "a-test-problem", eps_r: float = 9.8, **tables) -> dict:
+    """A small valid microstrip problem as parsed TOML (our own scenario: N=3, 5 % at 10 GHz
+    on 0.635 mm); ``tables`` add or replace top-level tables."""
+    return {
+        "name": name,
+        "response": {
+            "family": "chebyshev",
+            "ripple_db": 0.1,
+            "order": 3,
+            "center": "10 GHz",
+            "fractional_bandwidth": 0.05,
+            "z_ref": "50 ohm",
+        },
+        "medium": {"kind": "microstrip", "eps_r": eps_r, "height": "0.635 mm"},
+        "fab": {"min_gap": "20 um"},
+        "mask": {"passband_return_loss_db": 15.0},
+        **tables,
+    }

@@ -12,7 +12,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from conftest import fd_gradient_check
+from conftest import fd_gradient_check, microstrip_problem
 
 from refine import validity
 from refine.physics import calibrated, strip
@@ -135,21 +135,7 @@ def test_gap_model_name_and_medium_checks(cal, tmp_path):
 
 
 def _problem(models: dict, eps_r: float = 9.8) -> dict:
-    return {
-        "name": "calibrated-keys",
-        "response": {
-            "family": "chebyshev",
-            "ripple_db": 0.1,
-            "order": 3,
-            "center": "10 GHz",
-            "fractional_bandwidth": 0.05,
-            "z_ref": "50 ohm",
-        },
-        "medium": {"kind": "microstrip", "eps_r": eps_r, "height": "0.635 mm"},
-        "fab": {"min_gap": "20 um"},
-        "models": models,
-        "mask": {"passband_return_loss_db": 15.0},
-    }
+    return microstrip_problem("calibrated-keys", eps_r, models=models)
 
 
 def test_problem_names_a_calibration_by_path(tmp_path):

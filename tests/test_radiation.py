@@ -8,7 +8,7 @@ import warnings
 
 import numpy as np
 import pytest
-from conftest import PROBLEMS, fd_gradient_check
+from conftest import PROBLEMS, fd_gradient_check, microstrip_problem
 
 from refine import validity
 from refine.circuit.builder import build
@@ -107,20 +107,7 @@ def test_gap_carries_radiation_as_complex_capacitance():
 
 
 def test_problem_enclosure_key():
-    base = {
-        "name": "enclosure",
-        "response": {
-            "family": "chebyshev",
-            "ripple_db": 0.1,
-            "order": 3,
-            "center": "10 GHz",
-            "fractional_bandwidth": 0.05,
-            "z_ref": "50 ohm",
-        },
-        "medium": {"kind": "microstrip", "eps_r": 9.8, "height": "0.635 mm"},
-        "fab": {"min_gap": "20 um"},
-        "mask": {"passband_return_loss_db": 15.0},
-    }
+    base = microstrip_problem("enclosure")
     assert parse_problem(base).enclosure == "open"
     base["medium"]["enclosure"] = "shielded"
     assert parse_problem(base).enclosure == "shielded"

@@ -134,11 +134,20 @@ def spread_models(medium: StripMedium) -> tuple[str, ...]:
     return models
 
 
-def model_spread(
-    layout: Layout, medium: StripMedium, f: ArrayLike, z_ref: float
-) -> dict[str, NDArray[np.complex128]]:
-    """The same layout's S-matrix under every gap model of :func:`spread_models`."""
-    return {m: layout_response(layout, medium, m, f, z_ref) for m in spread_models(medium)}
+def layout_verdict(
+    problem: Problem,
+    layout: Layout,
+    medium: StripMedium,
+    gap_model: str,
+    adjust: Adjustments | None = None,
+) -> MaskResult:
+    """The layout's mask verdict on the verification grid for one choice of medium, gap model
+    and model adjustments (range warnings muted: the report lists them)."""
+    f = verification_grid(problem)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        s = layout_response(layout, medium, gap_model, f, problem.z_ref, adjust)
+    return problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
 
 
 def spread_verdicts(problem: Problem, layout: Layout) -> dict[str, MaskResult]:
@@ -147,11 +156,7 @@ def spread_verdicts(problem: Problem, layout: Layout) -> dict[str, MaskResult]:
     medium = medium_for(problem)
     if medium is None or len(spread_models(medium)) < 2:
         return {}
-    f = verification_grid(problem)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", validity.ModelRangeWarning)  # listed in the report
-        spread = model_spread(layout, medium, f, problem.z_ref)
-    return {m: problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0]) for m, s in spread.items()}
+    return {m: layout_verdict(problem, layout, medium, m) for m in spread_models(medium)}
 
 
 @dataclass(frozen=True)
@@ -206,11 +211,7 @@ def lossless_verdict(problem: Problem, layout: Layout) -> MaskResult:
     """The layout's mask verdict with every loss switched off (conductor, dielectric,
     radiation): a return loss met only with loss on is met by absorbing power."""
     medium = strip_medium_for(problem, loss=False)
-    f = verification_grid(problem)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", validity.ModelRangeWarning)
-        s = layout_response(layout, medium, problem.gap_model, f, problem.z_ref)
-    return problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
+    return layout_verdict(problem, layout, medium, problem.gap_model)
 
 
 RADIATION_SPREAD = 0.5  # ± on the radiation conductances: unvalidated against a converged solve
@@ -285,16 +286,12 @@ FIXTURE_AGREEMENT = 0.05  # the calibrations' largest series difference from the
 def uncertainty_verdict(problem: Problem, layout: Layout) -> tuple[MaskResult, ModelUncertainty]:
     """The layout's worst mask margin per region over the model-uncertainty corners."""
     unc = model_uncertainty(problem, layout)
-    f = verification_grid(problem)
     medium = strip_medium_for(problem)
     worst: dict[str, float] = {}
     where: dict[str, float] = {}
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", validity.ModelRangeWarning)
-        for adj in unc.corners(len(layout.gaps)):
-            s = layout_response(layout, medium, problem.gap_model, f, problem.z_ref, adj)
-            res = problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
-            for k, m in res.worst.items():
-                if k not in worst or m < worst[k]:
-                    worst[k], where[k] = m, res.where[k]
+    for adj in unc.corners(len(layout.gaps)):
+        res = layout_verdict(problem, layout, medium, problem.gap_model, adj)
+        for k, m in res.worst.items():
+            if k not in worst or m < worst[k]:
+                worst[k], where[k] = m, res.where[k]
     return MaskResult(worst, where), unc

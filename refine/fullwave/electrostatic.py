@@ -102,17 +102,6 @@ def _graded_sizes(span: float, first: float, largest: float, ratio: float) -> li
     return sizes
 
 
-def graded_edges(length: float, first: float, largest: float, ratio: float = GRADING) -> NDArray:
-    """Panel edges on [0, length], fine at both ends: sizes grow geometrically from ``first`` by
-    ``ratio`` up to ``largest``, uniform between (the same grading at every length, so that two
-    strips of different length differ only in their uniform middle)."""
-    sizes = _graded_sizes(0.5 * length, first, largest, ratio)
-    middle = length - 2 * sum(sizes)
-    n_mid = max(1, math.ceil(middle / largest - 1e-9))
-    steps = sizes + [middle / n_mid] * n_mid + sizes[::-1]
-    return np.concatenate([[0.0], np.cumsum(steps)])
-
-
 def half_width_edges(
     half_width: float, first: float, largest: float, ratio: float = GRADING
 ) -> NDArray:

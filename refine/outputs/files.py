@@ -173,17 +173,19 @@ def write_outputs(
     dxf_version: str = "R2010",
     painters: Painters | None = None,
     touchstone2: bool = False,
+    computed: report.Figures | None = None,
 ) -> list[Path]:
     """Write every hand-over file; returns the paths written. A clash in ``out`` is refused
     unless ``force``; ``said`` names them in messages (the command passes its options).
     ``dxf_version`` is "R2010" or "R12" (for shops that ask for the oldest DXF). ``painters``
     are drawing processes started earlier (see :class:`Painters`); by default they start here.
-    ``touchstone2`` adds ``response.ts``, the same response as Touchstone 2.0."""
+    ``touchstone2`` adds ``response.ts``, the same response as Touchstone 2.0. ``computed``:
+    :func:`refine.outputs.report.figures` of this design at ``power_w``, if the caller has it."""
     with locked_folder(out, force, said=said) as folder:
         if painters is not None:
-            return _write_all(r, sd, folder, power_w, dxf_version, painters, touchstone2)
+            return _write_all(r, sd, folder, power_w, dxf_version, painters, touchstone2, computed)
         with Painters() as own:
-            return _write_all(r, sd, folder, power_w, dxf_version, own, touchstone2)
+            return _write_all(r, sd, folder, power_w, dxf_version, own, touchstone2, computed)
 
 
 def _write_all(
@@ -194,6 +196,7 @@ def _write_all(
     dxf_version: str,
     painters: Painters,
     touchstone2: bool = False,
+    computed: report.Figures | None = None,
 ) -> list[Path]:
     p = r.problem
     f = sweep(p)
@@ -237,7 +240,8 @@ def _write_all(
             notes = [
                 "tapped feed: the gap and line models were used; the T-junction is not modelled"
             ]
-    computed = report.figures(r, power_w, sd.design.g)  # quoted by the summary and the report
+    if computed is None:  # quoted by both the summary and the report
+        computed = report.figures(r, power_w, sd.design.g)
     for note in (report.through_loss_note(r, computed.lossless), report.loss_note(r)):
         if note is not None:
             notes = [note, *notes]
