@@ -146,6 +146,11 @@ def build_parser() -> argparse.ArgumentParser:
         help="add a correlated over-etch: one edge shift per board moving every edge together",
     )
     p.add_argument(
+        "--without-model-error",
+        action="store_true",
+        help="sample the shop's tolerances only, not the circuit model's stated uncertainty",
+    )
+    p.add_argument(
         "--out",
         metavar="DIR",
         help="folder for yield.csv and yield.png (default: the layout's folder)",

@@ -18,6 +18,7 @@ from refine.circuit.response import (
     evaluate_electrical,
     evaluate_layout,
     strip_medium_for,
+    uncertainty_verdict,
     verification_grid,
 )
 from refine.fullwave import engine, handover, spacemap, verify
@@ -300,7 +301,7 @@ def _centre(problem, r: RefineResult, args: argparse.Namespace) -> RefineResult:
     from dataclasses import replace
 
     print()
-    if r.status is not Status.MET or r.layout is None:
+    if r.status not in NOMINALLY_MET or r.layout is None:
         print(
             "yield centring skipped: it starts from a design that meets the mask on a strip medium"
         )
@@ -330,12 +331,26 @@ def _centre(problem, r: RefineResult, args: argparse.Namespace) -> RefineResult:
     if not res.passed:
         print("  the centred layout misses the mask at nominal; the refined layout is kept")
         return r
+    corners, unc = uncertainty_verdict(problem, c.layout)
+    if r.status is Status.MET and not corners.passed:
+        print(
+            "  the centred layout misses the mask at a corner of the model's uncertainty "
+            f"({corners.worst_margin:+.2f} dB); the refined layout is kept"
+        )
+        return r
     note = (
         f"yield-centred: {100 * b.yield_fraction:.1f} % -> {100 * a.yield_fraction:.1f} % under the fab "
         f"tolerances ({'with' if args.correlated else 'without'} correlated over-etch)"
     )
     return replace(
-        r, layout=c.layout, worst=dict(res.worst), where=dict(res.where), notes=(*r.notes, note)
+        r,
+        layout=c.layout,
+        worst=dict(res.worst),
+        where=dict(res.where),
+        notes=(*r.notes, note),
+        corners=corners,
+        uncertainty=unc,
+        status=Status.MET if corners.passed else Status.MET_NOMINAL_ONLY,
     )
 
 
@@ -401,11 +416,7 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
         through = report.through_loss_note(r, computed.lossless)
         if through is not None:
             print(through)
-        sentence = report.uncertainty_sentence(computed)
-        if r.status is Status.MET and computed.corners.worst_margin < 0.0:
-            print(f"MET ON THE NOMINAL MODEL ONLY: {sentence}")
-        else:
-            print(sentence)
+        print(report.uncertainty_sentence(computed))
     print()
     print(refined_table(r))
     outside = model_range_line(r)
@@ -414,6 +425,11 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
     if r.status is not Status.MET:
         print()
         print("binding: " + "; ".join(r.binding))
+        if r.status is Status.MET_NOMINAL_ONLY and r.corners is not None:
+            print(
+                "model-uncertainty corners: "
+                + "; ".join(f"{k} {m:+.2f} dB" for k, m in r.corners.worst.items())
+            )
     if r.diagnosis is not None and (
         r.status is not Status.MET or not r.diagnosis.couplings_reachable
     ):
@@ -457,13 +473,12 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
             )
             print("wrote " + ", ".join(w.name for w in written))
             print(
-                f"verdict: circuit model {'met' if r.status is Status.MET else 'NOT met'} "
-                f"({r.worst_margin:+.2f} dB); field solver, mesh {args.fullwave}: "
-                f"{check.verdict_sentence()}"
+                f"verdict: circuit model {r.status.value} ({r.worst_margin:+.2f} dB); field "
+                f"solver, mesh {args.fullwave}: {check.verdict_sentence()}"
             )
-            if r.status is Status.MET:  # the field solver's verdict decides a met design
+            if r.status in NOMINALLY_MET:  # the field solver's verdict decides a met design
                 return FIELD_EXIT[check.verdict]
-    return 0 if r.status is Status.MET else 1
+    return STATUS_EXIT[r.status]
 
 
 def model_range_line(r) -> str | None:
@@ -491,6 +506,10 @@ def model_range_line(r) -> str | None:
 
 # exit codes of a field check: met / not met beyond the mesh uncertainty, undecided at the mesh
 FIELD_EXIT = {MeshVerdict.MET: 0, MeshVerdict.NOT_MET: 1, MeshVerdict.UNDECIDED: 4}
+#: the design verb's exit code per status: met (also at every model-uncertainty corner) 0; met on
+#: the nominal model only 5; not met or infeasible 1
+STATUS_EXIT = {Status.MET: 0, Status.MET_NOMINAL_ONLY: 5, Status.NOT_MET: 1, Status.INFEASIBLE: 1}
+NOMINALLY_MET = (Status.MET, Status.MET_NOMINAL_ONLY)
 
 
 def _say(line: str) -> None:
@@ -535,7 +554,9 @@ def _cmd_yield(args: argparse.Namespace) -> int:
         )
     if not 0 <= args.seed < 2**63:
         raise UsageError(f"--seed = {args.seed} is outside the allowed range 0..2**63-1")
-    res = tolerance.estimate_yield(problem, lay, args.samples, args.seed, args.correlated)
+    res = tolerance.estimate_yield(
+        problem, lay, args.samples, args.seed, args.correlated, not args.without_model_error
+    )
     tol = res.tolerances
     kind = "independent + correlated over-etch" if tol.correlated else "independent"
     lo, hi = res.interval
@@ -559,10 +580,15 @@ def _cmd_yield(args: argparse.Namespace) -> int:
         for s_ in res.sensitivities
     ]
     print(_table(["dimension", "dB per 1-sigma", "dB per um"], rows))
-    if not args.correlated:
-        print("(lengths and taps have no independent tolerance: they move with --correlated)")
+    if res.model is not None:
+        u = res.model
+        print(
+            f"model error sampled too (one draw per {tolerance.CHUNK} boards, uniform within "
+            f"gap series ±{100 * u.series:.0f} %, shunt ±{100 * u.shunt:.0f} %, radiation "
+            f"±{100 * u.radiation:.0f} %; --without-model-error leaves it out)"
+        )
     out.mkdir(parents=True, exist_ok=True)
-    smp = tolerance.sample(lay, tol, res.samples, res.seed, problem.substrate)
+    smp = tolerance.sample(lay, tol, res.samples, res.seed, problem.substrate, res.model)
     cols = {
         "worst_margin_db": res.margins,
         "meets_mask": res.margins >= 0,
@@ -656,10 +682,18 @@ def _cmd_check(args: argparse.Namespace) -> int:
     res = problem.mask.evaluate(f, s[:, 0, 0], s[:, 1, 0])
     print(f"{args.layout} against {problem.name} ({f.size} points, physical model with loss):")
     print(margins_table(res))
-    print(
-        f"status: mask {'met' if res.passed else 'NOT met'} (worst margin {res.worst_margin:+.2f} dB)"
-    )
-    return 0 if res.passed else 1
+    corners = None
+    if not isinstance(lay, dict):
+        corners, unc = uncertainty_verdict(problem, lay)
+        print(f"model-uncertainty corners: {report.corner_sentence(corners, unc)}")
+    if not res.passed:
+        word, code = "NOT met", 1
+    elif corners is not None and not corners.passed:
+        word, code = "MET ON THE NOMINAL MODEL ONLY", STATUS_EXIT[Status.MET_NOMINAL_ONLY]
+    else:
+        word, code = "met", 0
+    print(f"status: mask {word} (worst margin {res.worst_margin:+.2f} dB)")
+    return code
 
 
 def _free_widths(args: argparse.Namespace) -> bool | None:

@@ -201,6 +201,7 @@ def run_design(
         }
         if r.layout is not None:
             row |= {
+                "corner_margin_db": r.corner_margin,
                 "smallest_gap_m": min(r.layout.gaps),
                 "total_length_m": r.layout.total_length,
                 "end_resonator_width_m": r.layout.widths[0],
@@ -208,7 +209,7 @@ def run_design(
         if (
             yield_samples
             and r.layout is not None
-            and r.status.value == "met"
+            and r.status.value in ("met", "met on the nominal model only")
             and problem.fab is not None
         ):
             try:

@@ -31,6 +31,13 @@ def expected_outcome(path: Path) -> str:
     return m.group(1)
 
 
+def expected_status(path: Path) -> str:
+    """The status a feasible bundled problem file promises ("met", or "met on the nominal model
+    only" when its mask does not hold at every corner of the circuit model's uncertainty)."""
+    m = re.search(r"Expected status: ([a-z ]+)", path.read_text())
+    return "met" if m is None else m.group(1).strip()
+
+
 @cache
 def refined(path: Path):
     """The refiner's result for a bundled problem file (computed once per session)."""

@@ -33,6 +33,8 @@ GAP = Layout(
     (5.0e-3, 5.1e-3, 5.0e-3),
 )
 
+NOMINAL_ONLY = 5  # the design exit code for a mask met on the nominal model only
+
 
 def _polygons(art):
     from shapely import Polygon
@@ -161,7 +163,9 @@ def test_design_out_writes_the_artwork_with_the_problems_etch_bias(tmp_path):
     prob = tmp_path / "p.toml"
     prob.write_text(src)
     out = tmp_path / "out"
-    assert main(["design", str(prob), "--out", str(out), "--dxf-r12"]) == 0
+    assert (
+        main(["design", str(prob), "--out", str(out), "--dxf-r12"]) == NOMINAL_ONLY
+    )  # met, not at every model corner
     doc = ezdxf.readfile(out / "layout.dxf")
     assert doc.dxfversion == "AC1009"
     report = (out / "report.md").read_text()

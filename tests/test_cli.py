@@ -9,6 +9,7 @@ import pytest
 from refine.cli import main
 
 ROOT = Path(__file__).parent.parent
+NOMINAL_ONLY = 5  # the design exit code for a mask met on the nominal model only
 PROBLEM = ROOT / "problems" / "microstrip-x-band-alumina-n3.toml"
 
 
@@ -50,7 +51,9 @@ def test_design_on_microstrip_prints_layout_shortfall_and_spread(capsys):
 
 
 def test_design_feasible_alumina_meets_mask(capsys):
-    assert main(["design", str(ROOT / "problems/microstrip-x-band-alumina-n3.toml")]) == 0
+    assert (
+        main(["design", str(ROOT / "problems/microstrip-x-band-alumina-n3.toml")]) == NOMINAL_ONLY
+    )  # met, not at every model corner
     out = capsys.readouterr().out
     assert "status: MET" in out and "refined (dB)" in out and "resonator 1 length" in out
     assert "snapped to the shop's 0.5 um grid" in out
@@ -73,7 +76,9 @@ def test_design_stripline(capsys):
 
 
 def test_tapped_problem_shows_a_tapped_seed(capsys):
-    assert main(["design", str(ROOT / "problems/ms-pcb-tap-5g8-n3-3pct.toml")]) == 0
+    assert (
+        main(["design", str(ROOT / "problems/ms-pcb-tap-5g8-n3-3pct.toml")]) == NOMINAL_ONLY
+    )  # met, not at every model corner
     out = capsys.readouterr().out
     seed_part = out[out.index("realised seed") : out.index("refining")]
     assert "tap in" in seed_part and "tap out" in seed_part and "gap 1" in seed_part
@@ -84,7 +89,8 @@ def test_tapped_problem_shows_a_tapped_seed(capsys):
 def test_fixed_widths_keeps_every_resonator_at_the_feed_width(tmp_path):
     out = tmp_path / "fw"
     prob = str(ROOT / "problems/microstrip-x-band-alumina-n3.toml")
-    assert main(["design", prob, "--fixed-widths", "--centre-yield", "--out", str(out)]) == 0
+    code = main(["design", prob, "--fixed-widths", "--centre-yield", "--out", str(out)])
+    assert code == NOMINAL_ONLY
     lay = json.loads((out / "layout.json").read_text())
     assert all(w == lay["feed_width"] for w in lay["widths"])
 
@@ -122,7 +128,9 @@ def test_options_are_checked_before_any_work(tmp_path, capsys):
 
 def test_yield_seed_and_layout_values_are_checked(tmp_path, capsys):
     lay = tmp_path / "layout.json"
-    assert main(["design", str(PROBLEM), "--out", str(tmp_path)]) == 0
+    assert (
+        main(["design", str(PROBLEM), "--out", str(tmp_path)]) == NOMINAL_ONLY
+    )  # met, not at every model corner
     capsys.readouterr()
     assert main(["yield", str(lay), "--problem", str(PROBLEM), "--seed", "-1"]) == 2
     assert "--seed = -1 is outside the allowed range 0..2**63-1" in capsys.readouterr().err
@@ -164,7 +172,7 @@ def test_synth_puts_each_electrical_length_on_its_resonator_row(capsys):
 def test_design_prints_one_grouped_model_range_line(capsys, tmp_path):
     garg_bahl = tmp_path / "gb.toml"
     garg_bahl.write_text(PROBLEM.read_text() + '\n[models]\ngap = "garg-bahl"\n')
-    assert main(["design", str(garg_bahl)]) == 0
+    assert main(["design", str(garg_bahl)]) == NOMINAL_ONLY  # met, not at every model corner
     lines = [x for x in capsys.readouterr().out.splitlines() if "stated range" in x]
     assert len(lines) == 1
     assert "Garg-Bahl gap s/W outside [0.1, 1] at gap 0, gap 3" in lines[0]
@@ -195,7 +203,9 @@ def test_diagnosis_quotes_only_widths_the_design_may_have():
 
 
 def test_yield_lists_every_dimension(tmp_path, capsys):
-    assert main(["design", str(PROBLEM), "--out", str(tmp_path)]) == 0
+    assert (
+        main(["design", str(PROBLEM), "--out", str(tmp_path)]) == NOMINAL_ONLY
+    )  # met, not at every model corner
     capsys.readouterr()
     assert (
         main(

@@ -29,6 +29,7 @@ from refine.spec.problem import load_problem
 from refine.synthesis import inverters as synthesis
 
 ROOT = Path(__file__).parent.parent
+NOMINAL_ONLY = 5  # the design exit code for a mask met on the nominal model only
 TAP_PROBLEM = ROOT / "problems/ms-alumina-tap-10g-n3-10pct.toml"
 ALUMINA = Substrate(9.8, 0.635e-3)
 
@@ -101,6 +102,25 @@ def _tap_layout():
         (4.9e-3, 5e-3, 4.9e-3),
         (1.5e-3, 1.5e-3),
     )
+
+
+def test_thirds_rule_puts_the_edge_between_two_lines():
+    """Each metal edge: a line a third of the edge cell inside the metal, one two thirds outside,
+    none on the edge (common practice, no source); a gap's cell is at most half the gap."""
+    gap, width = 40e-6, 0.6e-3
+    st_ = geometry.gap_structure(width, gap, 3e-3)
+    res = geometry.Resolution("t", 50e-6, edge_rule="thirds")
+    m = geometry.build_mesh(st_, ALUMINA, 14e9, res)
+    d = gap / 2  # the gap's edges take half the gap
+    for x, inside in ((0.0, -1), (gap, +1)):  # feed-in end (metal below), feed-out start
+        assert np.min(np.abs(m.x - x)) > d / 10
+        assert np.min(np.abs(m.x - (x + inside * d / 3))) < 1e-12
+        assert np.min(np.abs(m.x - (x - inside * 2 * d / 3))) < 1e-12
+    for y, inside in ((-width / 2, +1), (width / 2, -1)):
+        assert np.min(np.abs(m.y - y)) > 50e-6 / 10
+        assert np.min(np.abs(m.y - (y + inside * 50e-6 / 3))) < 1e-12
+    with pytest.raises(ValueError, match="edge_rule must be one of on-edge, thirds"):
+        geometry.Resolution("t", 50e-6, edge_rule="middle")
 
 
 @pytest.mark.parametrize("make", [_gap_layout, _tap_layout])
@@ -341,7 +361,7 @@ def test_space_mapping_meets_the_mask_on_a_stand_in_fine_model(monkeypatch, meth
     from refine.optimise.refiner import refine_problem
 
     r = refine_problem(p, seed=job.seed(p))
-    assert r.status.value == "met"
+    assert r.worst_margin >= 0.0  # met on the nominal model (not at every model corner)
     fine = replace(p, substrate=replace(p.substrate, eps_r=10.1))
 
     def fake_check(problem, layout, mesh="coarse", workdir=None, threads=0, progress=None):
@@ -476,7 +496,9 @@ def test_fullwave_command_writes_its_files_and_extends_the_report(monkeypatch, t
     from skrf import Network
 
     out = tmp_path / "out"
-    assert main(["design", str(TAP_PROBLEM), "--out", str(out)]) == 0
+    assert (
+        main(["design", str(TAP_PROBLEM), "--out", str(out)]) == NOMINAL_ONLY
+    )  # met, not at every model corner
     _stand_in(monkeypatch)
     lay = out / "layout.json"
     code = main(["fullwave", str(lay), "--problem", str(TAP_PROBLEM)])
@@ -501,7 +523,9 @@ def test_fullwave_command_writes_its_files_and_extends_the_report(monkeypatch, t
 
 def test_fullwave_correct_meets_the_mask_on_the_stand_in(monkeypatch, tmp_path, capsys):
     out = tmp_path / "out"
-    assert main(["design", str(TAP_PROBLEM), "--out", str(out)]) == 0
+    assert (
+        main(["design", str(TAP_PROBLEM), "--out", str(out)]) == NOMINAL_ONLY
+    )  # met, not at every model corner
     _stand_in(monkeypatch)
     code = main(["fullwave", str(out / "layout.json"), "--problem", str(TAP_PROBLEM), "--correct"])
     assert code == 0
@@ -538,7 +562,8 @@ def test_design_with_fullwave_puts_the_comparison_in_the_report(monkeypatch, tmp
     assert "## Field-solver check" in report and "mask NOT met on the field solver" in report
     top = report.split("## Specification")[0]
     assert "NOT MET ON THE FIELD SOLVER" in top and "The refined design meets the mask" not in top
-    assert "| circuit model | met |" in top and "| field solver (mesh `coarse`) | NOT met |" in top
+    assert "| circuit model | met on the nominal model only |" in top
+    assert "| field solver (mesh `coarse`) | NOT met |" in top
     assert json.loads((out / "summary.json").read_text())["meets_mask_on_field_solver"] == "not met"
     assert "## Gap models against the field solver" in report
     assert (out / "fullwave.s2p").exists()
@@ -584,7 +609,9 @@ def test_one_mesh_check_is_undecided_and_exits_4(monkeypatch, tmp_path, capsys):
     """A check on one mesh cannot bound its error: the command says undecided, names the mesh
     that would decide, and exits 4 (neither met nor not met)."""
     out = tmp_path / "out"
-    assert main(["design", str(TAP_PROBLEM), "--out", str(out)]) == 0
+    assert (
+        main(["design", str(TAP_PROBLEM), "--out", str(out)]) == NOMINAL_ONLY
+    )  # met, not at every model corner
     _stand_in(monkeypatch)
     inner = verify.check_layout
 

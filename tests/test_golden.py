@@ -38,6 +38,11 @@ def test_outcome_matches_the_golden_record(path):
     r = refined(path)
     assert r.status.value == want["status"]
     assert r.evaluations == want["evaluations"]
+    assert r.robust_evaluations == want["robust_evaluations"]
+    if want["corners_db"] is None:
+        assert r.corners is None
+    else:
+        assert r.corners.worst == pytest.approx(want["corners_db"], abs=1e-9)
     for key, got in (("worst_db", r.worst), ("seed_worst_db", r.seed_worst)):
         assert got.keys() == want[key].keys()
         for region, m in got.items():

@@ -36,12 +36,21 @@ PML_CELLS = 8
 FEED_SHIFT_CELLS = 10  # launch past the absorbing layer (PML_CELLS) with two cells to spare
 
 
+#: Mesh lines at a metal edge. "on-edge": one line on the edge itself. "thirds": no line on the
+#: edge, one a third of the edge cell inside the metal and one two thirds outside, the usual FDTD
+#: rule for thin conductors (common practice, no source): the field's edge singularity then falls
+#: between two lines, where a staircased sheet edge effectively sits, instead of on a line where
+#: the engine's sheet ends a fraction of a cell short or long.
+EDGE_RULES = ("on-edge", "thirds")
+
+
 @dataclass(frozen=True)
 class Resolution:
     """A mesh preset. edge_cell: the cell at strip and gap edges (m), never more than half the
     smallest gap; cells_per_wavelength: in the substrate at the top of the band; ratio: the
     largest growth between neighbouring cells; side_margin, air_above: the box beyond the copper
-    on its open sides and above the substrate, in substrate heights."""
+    on its open sides and above the substrate, in substrate heights; edge_rule: where the mesh
+    lines sit at a metal edge (:data:`EDGE_RULES`)."""
 
     name: str
     edge_cell: float
@@ -49,11 +58,16 @@ class Resolution:
     ratio: float = 1.3
     side_margin: float = 6.0
     air_above: float = 8.0
+    edge_rule: str = "on-edge"
 
     def __post_init__(self) -> None:
         v.positive("mesh edge_cell", self.edge_cell)
         v.integer_in_range("mesh cells_per_wavelength", self.cells_per_wavelength, 10, 80)
         v.real_in_range("mesh ratio", self.ratio, 1.05, 1.6)
+        if self.edge_rule not in EDGE_RULES:
+            raise ValueError(
+                f"mesh edge_rule must be one of {', '.join(EDGE_RULES)}, got {self.edge_rule!r}"
+            )
 
     def halved(self, times: int = 1) -> Resolution:
         return replace(self, name=f"{self.name}/{2**times}", edge_cell=self.edge_cell / 2**times)
@@ -196,13 +210,7 @@ def build_mesh(st: Structure, substrate: Substrate, f_max: float, res: Resolutio
     d_max = meshing.max_cell(f_max, substrate.eps_r, res.cells_per_wavelength)
     edge = min(res.edge_cell, d_max)
     margin = res.side_margin * h
-    pts: dict[str, list[tuple[float, float]]] = {"x": [], "y": []}
-    for s in st.strips:
-        pts["x"] += [(s.x0, edge), (s.x1, edge)]
-        pts["y"] += [(s.y0, edge), (s.y1, edge)]
-    for axis, a, b in st.openings:
-        cell = min(edge, 0.5 * (b - a))
-        pts[axis] += [(a, cell), (b, cell)]
+    pts = edge_points(st, edge, res.edge_rule)
     box = {
         "x": [min(s.x0 for s in st.strips), max(s.x1 for s in st.strips)],
         "y": [min(s.y0 for s in st.strips), max(s.y1 for s in st.strips)],
@@ -231,6 +239,28 @@ def build_mesh(st: Structure, substrate: Substrate, f_max: float, res: Resolutio
     # guarantee a line exactly at the substrate top
     assert np.any(lines["z"] == h)
     return Mesh(lines["x"], lines["y"], lines["z"], edge, d_max)
+
+
+def edge_points(st: Structure, edge: float, rule: str) -> dict[str, list[tuple[float, float]]]:
+    """Fixed mesh points (position, cell) per axis at every metal edge under ``rule``
+    (:data:`EDGE_RULES`). A gap's two edges take a cell of at most half the gap."""
+    # (axis, position, side of the metal: +1 above the position, -1 below) -> cell
+    edges: dict[tuple[str, float, int], float] = {}
+    for s in st.strips:
+        for axis, lo, hi in (("x", s.x0, s.x1), ("y", s.y0, s.y1)):
+            edges[(axis, lo, +1)] = edge
+            edges[(axis, hi, -1)] = edge
+    for axis, a, b in st.openings:
+        cell = min(edge, 0.5 * (b - a))
+        for key in ((axis, a, -1), (axis, b, +1)):
+            edges[key] = min(edges.get(key, edge), cell)
+    pts: dict[str, list[tuple[float, float]]] = {"x": [], "y": []}
+    for (axis, pos, side), cell in edges.items():
+        if rule == "thirds":
+            pts[axis] += [(pos + side * cell / 3.0, cell), (pos - side * 2.0 * cell / 3.0, cell)]
+        else:
+            pts[axis].append((pos, cell))
+    return pts
 
 
 def boundaries(st: Structure) -> list[str]:

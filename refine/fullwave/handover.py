@@ -175,12 +175,13 @@ def _write_check(c: FieldCheck, out: Path) -> list[Path]:
             _, tail = rest.split(VERDICT_END, 1)
             margin = c.figure("worst mask margin")
             both = combined_verdict(
-                bool(data["meets_mask"]),
+                bool(data.get("meets_mask_on_nominal_model", data["meets_mask"])),
                 float(data["worst_margin_db"]),
                 FIELD_STATE[c.verdict],
                 f"{margin.value:+.2f} dB"
                 + ("" if margin.uncertainty is None else f" ± {margin.uncertainty:.2f} dB"),
                 c.mesh,
+                str(data.get("status", "")),
             )
             text = f"{head}{VERDICT_START}\n{both}\n{VERDICT_END}{tail}"
         written.append(export.write_text_atomic(report, text))

@@ -21,9 +21,15 @@ from numpy.typing import NDArray
 from refine.circuit.builder import Dim
 from refine.circuit.layout import Layout
 from refine.circuit.model import IdealFilterModel, StripFilterModel, strip_model_for
-from refine.circuit.response import strip_medium_for, verification_grid
+from refine.circuit.response import (
+    ModelUncertainty,
+    strip_medium_for,
+    uncertainty_verdict,
+    verification_grid,
+)
 from refine.optimise import seed as job
 from refine.optimise.minimax import Stopping, Strategy, minimax, optimiser_grid
+from refine.optimise.robust import robust_refine
 from refine.optimise.space import (
     DesignSpace,
     Variable,
@@ -43,7 +49,13 @@ from refine.validity import require_finite
 
 
 class Status(enum.Enum):
+    """MET: the mask is met on the circuit model and at every corner of its stated uncertainty
+    (:func:`refine.circuit.response.model_uncertainty`); MET_NOMINAL_ONLY: met on the nominal
+    model, not at every corner (both margins are reported); NOT_MET; INFEASIBLE: not met, and
+    the closed-form couplings are beyond the fab rules."""
+
     MET = "met"
+    MET_NOMINAL_ONLY = "met on the nominal model only"
     NOT_MET = "not met"
     INFEASIBLE = "infeasible"
 
@@ -64,6 +76,9 @@ class RefineResult:
     unsnapped_margin, snapped_margin : verified worst margin before and after snapping to the
         shop's grid (snapped_margin is None without a grid).
     fab_violations : fab rules the returned layout breaks (always empty; checked, not assumed).
+    corners : worst margin per region over the model-uncertainty corners (strip media; None
+        for the ideal medium), with ``uncertainty`` the ± judged; robust_evaluations: the
+        robust refinement's model evaluations (0 when it did not run).
     """
 
     problem: Problem
@@ -85,6 +100,14 @@ class RefineResult:
     snapped_margin: float | None
     fab_violations: tuple[str, ...]
     notes: tuple[str, ...] = field(default=())
+    corners: MaskResult | None = None
+    uncertainty: ModelUncertainty | None = None
+    robust_evaluations: int = 0
+
+    @property
+    def corner_margin(self) -> float | None:
+        """Worst margin (dB) over the model-uncertainty corners, None for the ideal medium."""
+        return None if self.corners is None else self.corners.worst_margin
 
     @property
     def worst_margin(self) -> float:
@@ -323,8 +346,24 @@ def refine_problem(
         f"{problem.name}: refined layout", [*layout.gaps, *layout.lengths, *layout.widths]
     )
     violations = fab_violations(fab, layout)
+    robust_evaluations = 0
+    if res.passed and not violations and problem.uncertainty == "robust":
+        rr = robust_refine(problem, layout, free_widths=free_widths)
+        robust_evaluations = rr.evaluations
+        if rr.moved:
+            notes.append(
+                f"refined for the model's uncertainty: worst corner margin "
+                f"{rr.start_corner_margin:+.2f} dB -> {rr.corners.worst_margin:+.2f} dB, "
+                f"nominal {res.worst_margin:+.2f} dB -> {rr.nominal.worst_margin:+.2f} dB"
+            )
+            layout, res = rr.layout, rr.nominal
+            z = space.to_free(space.clip(model.vector(layout)))
+            violations = fab_violations(fab, layout)
+        corners, unc = rr.corners, rr.uncertainty
+    else:
+        corners, unc = uncertainty_verdict(problem, layout)
     if res.passed and not violations:
-        status = Status.MET
+        status = Status.MET if corners.passed else Status.MET_NOMINAL_ONLY
     elif not diag.couplings_reachable:
         status = Status.INFEASIBLE
     else:
@@ -349,6 +388,9 @@ def refine_problem(
         snapped_margin,
         tuple(violations),
         tuple(notes + list(real.notes)),
+        corners,
+        unc,
+        robust_evaluations,
     )
 
 

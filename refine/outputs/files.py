@@ -205,6 +205,7 @@ def _write_all(
     require_finite(f"{p.name}: closed-form seed response", s_seed)
     status = {
         "met": "meets the mask",
+        "met on the nominal model only": "meets the mask on the nominal model only",
         "not met": "DOES NOT MEET THE MASK",
         "infeasible": "INFEASIBLE: DOES NOT MEET THE MASK",
     }[r.status.value]

@@ -123,7 +123,8 @@ def garg_bahl_gap(w: ArrayLike, s: ArrayLike, h: ArrayLike, eps_r: ArrayLike) ->
         cs1c = 0.5 * co1 - 0.25 * ce1
         cs1 = np.real(cs1c)
         p = np.imag(cs1c) / hstep / cs1  # d ln C / d (s/W) at 1 = d ln C / d ln(s/W) at 1
-        cont = cs1 * (s / w) ** p
+        # only where s/W > 1 (elsewhere 1: a steep p would overflow on the unused branch)
+        cont = cs1 * np.where(x > 1.0, s / w, 1.0) ** p
         c_series = np.where(x > 1.0, cont, c_series)
     floor = GB_SERIES_FLOOR * 0.5 * c_odd
     if np.any(np.real(c_series) < np.real(floor)):

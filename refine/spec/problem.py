@@ -37,6 +37,9 @@ Schema (keys marked * are required)::
                       not for "ideal"
                 calibration = a bundled calibration name or a file path (microstrip; implies
                       gap = "calibrated"; default: the bundled one for the substrate's eps_r)
+                uncertainty = "robust" (default: after meeting the mask, refine for the worst
+                      corner of the model's stated uncertainty) | "judge" (judge the corners
+                      only); either way "met" needs the mask met at every corner
     [mask]                                   *
     passband_return_loss_db, passband_ripple_db, midband_insertion_loss_db   (at least one)
     [[mask.stopband]]  start, stop, rejection_db
@@ -92,6 +95,7 @@ class Problem:
     resonator_width: str = "free"  # refinable within the gap model's range; "feed": z_ref width
     # ("free-beyond-models": refinable outside the gap model's range too)
     enclosure: str = "open"  # microstrip: "open" (radiates) or "shielded"
+    uncertainty: str = "robust"  # "robust": refine for the worst model corner; "judge": only judge
 
     @property
     def strip_substrate(self) -> Substrate:
@@ -317,6 +321,7 @@ class _Reader:
 
 CALIBRATED = "calibrated"  # [models] gap: the circuit reads a calibration data file
 ENCLOSURES = ("open", "shielded")
+UNCERTAINTY_USES = ("robust", "judge")  # [models] uncertainty
 
 
 def _calibration_model(r: _Reader, models: dict, eps_r: float, source: str) -> str:
@@ -524,9 +529,10 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
     resonator_width = r.choice(res_t, "resonators", "width", RESONATOR_WIDTHS, default="free")
     if kind == "ideal" and "width" in res_t:
         raise r.fail("resonators.width", res_t["width"], "does not apply to medium kind 'ideal'")
-    models = r.table(data, "models", {"gap", "calibration"}, required=False)
+    models = r.table(data, "models", {"gap", "calibration", "uncertainty"}, required=False)
+    uncertainty = r.choice(models, "models", "uncertainty", UNCERTAINTY_USES, default="robust")
     if kind == "ideal":
-        for key in ("gap", "calibration"):
+        for key in ("gap", "calibration", "uncertainty"):
             if key in models:
                 raise r.fail(f"models.{key}", models[key], "does not apply to medium kind 'ideal'")
         gap_model = "ideal"
@@ -613,6 +619,7 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         source,
         resonator_width,
         enclosure,
+        uncertainty,
     )
 
 

@@ -7,7 +7,8 @@ problem is deterministic and smooth), each sample's mask regions entering as one
 constraint. It runs on the one optimiser entry (:func:`refine.optimise.minimax.minimax`) in the
 refiner's design space (:func:`refine.optimise.space.layout_space`); the result is snapped to
 the shop's grid and kept only if its Monte Carlo yield, on samples independent of the design
-samples, is higher.
+samples, is higher. Centring is for the shop's tolerances: its yields leave the model's own
+uncertainty out (robust refinement, :mod:`refine.optimise.robust`, deals with that).
 """
 
 from __future__ import annotations
@@ -23,7 +24,7 @@ from refine.circuit.model import strip_model_for
 from refine.circuit.response import strip_medium_for
 from refine.optimise.minimax import Stopping, minimax
 from refine.optimise.space import fab_violations, layout_space, snap
-from refine.spec.mask import Mask
+from refine.optimise.stacked import StackedMask
 from refine.spec.problem import Problem
 from refine.tolerance.montecarlo import (
     Tolerances,
@@ -60,7 +61,7 @@ def centre_for_yield(
     fab = problem.fab
     assert fab is not None  # a strip problem (Tolerances.from_problem refuses the ideal medium)
     tol = Tolerances.from_problem(problem, correlated)
-    before = estimate_yield(problem, layout, check_samples, seed + 1, correlated)
+    before = estimate_yield(problem, layout, check_samples, seed + 1, correlated, False)
     medium = strip_medium_for(problem)
     f = yield_grid(problem, 41)
     if free_widths is None:
@@ -112,50 +113,7 @@ def centre_for_yield(
     if fab.grid is not None:
         p = snap(p, model, fab)
     moved = model.layout(p)
-    after = estimate_yield(problem, moved, check_samples, seed + 1, correlated)
+    after = estimate_yield(problem, moved, check_samples, seed + 1, correlated, False)
     if fab_violations(fab, moved) or after.yield_fraction <= before.yield_fraction:
         return CentringResult(layout, before, before, rec.evaluations)
     return CentringResult(moved, before, after, rec.evaluations)
-
-
-class StackedMask:
-    """A mask applied to several designs laid end to end on one axis of length ``copies × nf``:
-    constraints per copy, and one region per copy and mask region (so that aggregation is per
-    sample)."""
-
-    def __init__(self, mask: Mask, f: NDArray, copies: int):
-        self.mask, self.f, self.copies = mask, f, copies
-
-    def region_indices(self, f_all: NDArray) -> list[NDArray[np.intp]]:
-        n = self.f.size
-        out = []
-        for k in range(self.copies):
-            for idx in self.mask.region_indices(self.f):
-                out.append(idx + k * n)
-        return out
-
-    def constraints(
-        self,
-        f_all: NDArray,
-        s11: NDArray,
-        s21: NDArray,
-        ds11: NDArray | None = None,
-        ds21: NDArray | None = None,
-    ) -> tuple[NDArray, NDArray | None]:
-        n = self.f.size
-        gs: list[NDArray] = []
-        jacs: list[NDArray] = []
-        for k in range(self.copies):
-            sl = slice(k * n, (k + 1) * n)
-            g, jac = self.mask.constraints(
-                self.f,
-                s11[sl],
-                s21[sl],
-                None if ds11 is None else ds11[:, sl],
-                None if ds21 is None else ds21[:, sl],
-            )
-            gs.append(g)
-            if jac is not None:
-                jacs.append(jac)
-        g = np.concatenate(gs)
-        return g, (None if ds11 is None else np.concatenate(jacs, axis=0))

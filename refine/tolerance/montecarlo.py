@@ -4,7 +4,10 @@ Tolerance model
 ---------------
 * Independent etch error: every gap width ~ N(s, σ_gap) and every strip width (feed and
   resonators) ~ N(w, σ_width), from the problem's ``fab.gap_tolerance`` and
-  ``fab.width_tolerance`` (1-sigma).
+  ``fab.width_tolerance`` (1-sigma). A gap's error moves its two edges by half each, so the
+  resonators on either side lose that half in length (a gap etched wider leaves shorter
+  resonators); an open end that faces no gap (a tapped filter's outer ends) recedes by its own
+  edge error ~ N(0, σ_width/2), and a tap measured from it moves with it.
 * Correlated over-etch (optional): a shop's etch moves every copper edge of a board together.
   One edge shift δ ~ N(0, σ_width/2) per board widens every gap by 2δ and narrows every strip by
   2δ in width and in length (its open ends recede), on top of the independent errors.
@@ -14,6 +17,11 @@ Python loop per sample. The yield is the fraction of samples whose worst margin 
 grid is ≥ 0, with a Wilson 95 % confidence interval (Wilson, J. Am. Stat. Assoc. 22, 209–212,
 1927).
 
+* Model error: the circuit model's own uncertainty (the ± of
+  :func:`refine.circuit.response.model_uncertainty` on the gaps' series and shunt capacitance and
+  on radiation) is systematic, the same for every board of a design, so it is drawn once per
+  chunk of :data:`CHUNK` boards, uniformly within its ±: the yield then averages over what the
+  model does not know as well as over the etch (``model_error=False`` leaves it out).
 * Substrate: eps_r ~ N(eps_r, σ_εr) and height ~ N(h, σ_h) per board, from the problem's
   ``medium.eps_r_tolerance`` and ``medium.height_tolerance``. Each chunk of samples is evaluated
   with a batched substrate whose values are arrays, through the same line and gap formulas.
@@ -32,10 +40,10 @@ from numpy.typing import NDArray
 from refine import _validate as v
 from refine import validity
 from refine.circuit import cascade
-from refine.circuit.builder import Dim, build
+from refine.circuit.builder import Adjustments, Dim, build
 from refine.circuit.layout import Layout
 from refine.circuit.model import strip_model_for
-from refine.circuit.response import strip_medium_for
+from refine.circuit.response import ModelUncertainty, model_uncertainty, strip_medium_for
 from refine.physics.substrate import Substrate
 from refine.spec.problem import Problem
 from refine.validity import require_finite
@@ -93,6 +101,9 @@ class Samples:
     taps: NDArray | None
     eps_r: NDArray | None = None  # per-board substrate, or None for the nominal substrate
     height: NDArray | None = None
+    # (n, 3) factors on the gaps' series and shunt capacitance and on radiation, constant over
+    # each chunk of CHUNK samples; None for the nominal model
+    model: NDArray | None = None
 
 
 @dataclass(frozen=True)
@@ -109,9 +120,17 @@ class SubstrateBatch:
     roughness: float
 
 
-def sample(layout: Layout, tol: Tolerances, n: int, seed: int, substrate=None) -> Samples:
+def sample(
+    layout: Layout,
+    tol: Tolerances,
+    n: int,
+    seed: int,
+    substrate=None,
+    model: ModelUncertainty | None = None,
+) -> Samples:
     """``n`` perturbed copies of ``layout`` (reproducible for a given ``seed``); with substrate
-    tolerances, also ``n`` boards' eps_r and height around ``substrate``'s nominal values."""
+    tolerances, also ``n`` boards' eps_r and height around ``substrate``'s nominal values; with
+    ``model``, one model error per chunk of boards (see the module docstring)."""
     if (tol.eps_r_sigma or tol.height_sigma) and substrate is None:
         raise ValueError("sample: substrate tolerances need the nominal substrate")
     n = v.integer_in_range("samples", n, 1, MAX_SAMPLES)
@@ -119,9 +138,17 @@ def sample(layout: Layout, tol: Tolerances, n: int, seed: int, substrate=None) -
     nw, ng = layout.order, len(layout.gaps)
     feed = layout.feed_width + rng.normal(0.0, tol.width_sigma, n)
     widths = np.array(layout.widths) + rng.normal(0.0, tol.width_sigma, (n, nw))
-    gaps = np.array(layout.gaps) + rng.normal(0.0, tol.gap_sigma, (n, ng))
+    gap_error = rng.normal(0.0, tol.gap_sigma, (n, ng))
+    gaps = np.array(layout.gaps) + gap_error
     lengths = np.tile(np.array(layout.lengths), (n, 1))
     taps = None if layout.taps is None else np.tile(np.array(layout.taps), (n, 1))
+    # every gap's error is shared by its two edges: the strips either side recede by half
+    # (gap coupling: gap k lies between resonators k-1 and k; tapped: between k and k+1)
+    first = 1 if len(layout.gaps) == nw + 1 else 0
+    for k in range(ng):
+        for j in (k - first, k - first + 1):
+            if 0 <= j < nw:
+                lengths[:, j] -= 0.5 * gap_error[:, k]
     if tol.correlated:
         delta = rng.normal(0.0, tol.width_sigma / 2.0, n)[:, None]
         feed = feed - 2 * delta[:, 0]
@@ -136,6 +163,19 @@ def sample(layout: Layout, tol: Tolerances, n: int, seed: int, substrate=None) -
         height = np.maximum(
             substrate.height + rng.normal(0.0, tol.height_sigma, n), 0.5 * substrate.height
         )
+    if first == 0 and tol.width_sigma:  # open ends that face no gap: their own edge error
+        outer = rng.normal(0.0, tol.width_sigma / 2.0, (n, 2))
+        lengths[:, 0] -= outer[:, 0]
+        lengths[:, -1] -= outer[:, 1]
+        if taps is not None:  # each tap is measured from its resonator's outer open end
+            taps[:, 0] -= outer[:, 0]
+            taps[:, -1] -= outer[:, 1]
+    factors = None
+    if model is not None and (model.series or model.shunt or model.radiation):
+        chunks = -(-n // CHUNK)
+        spread = np.array([model.series, model.shunt, model.radiation])
+        draws = 1.0 + rng.uniform(-1.0, 1.0, (chunks, 3)) * spread
+        factors = np.repeat(draws, CHUNK, axis=0)[:n]
     floor = 1e-9  # an etch error cannot make a dimension vanish or go negative
     clip = lambda x: np.maximum(x, floor)  # noqa: E731
     return Samples(
@@ -146,6 +186,7 @@ def sample(layout: Layout, tol: Tolerances, n: int, seed: int, substrate=None) -
         None if taps is None else clip(taps),
         eps_r,
         height,
+        factors,
     )
 
 
@@ -169,6 +210,7 @@ def worst_margins(problem: Problem, samples: Samples, f: NDArray) -> NDArray:
     """Worst margin (dB) of every sample, evaluated in batched cascade calls of ``CHUNK``."""
     nominal = strip_medium_for(problem)
     n = samples.widths.shape[0]
+    ng = samples.gaps.shape[1]
     out = np.empty(n)
     sub = problem.strip_substrate
     with warnings.catch_warnings():
@@ -197,11 +239,20 @@ def worst_margins(problem: Problem, samples: Samples, f: NDArray) -> NDArray:
                 samples.lengths[sl],
                 None if samples.taps is None else samples.taps[sl],
                 f,
+                None if samples.model is None else _adjustments(samples.model[a], ng),
             ).elements
             t = cascade.s11_s21(els, f, problem.z_ref)
             margins = problem.mask.margins(f, t.s11, t.s21)
             out[sl] = np.min(np.concatenate(list(margins.values()), axis=-1), axis=-1)
     return out
+
+
+def _adjustments(factors: NDArray, n_gaps: int) -> Adjustments:
+    """One chunk's model error as the builder's adjustments."""
+    series, shunt, radiation = (float(x) for x in factors)
+    return Adjustments(
+        c_series_factors=(series,) * n_gaps, c_shunt_factor=shunt, radiation_factor=radiation
+    )
 
 
 def wilson_interval(k: int, n: int, z: float = 1.959964) -> tuple[float, float]:
@@ -232,6 +283,7 @@ class YieldResult:
     nominal_margin: float
     margins: NDArray
     sensitivities: tuple[Sensitivity, ...]
+    model: ModelUncertainty | None = None  # the model error sampled, None when left out
 
     def quantiles(self) -> dict[str, float]:
         q = np.quantile(self.margins, [0.05, 0.5, 0.95])
@@ -256,8 +308,15 @@ def sensitivities(
             sigma = tol.gap_sigma
         elif kind is Dim.WIDTH:
             sigma = tol.width_sigma
-        else:  # lengths and taps move only with the correlated etch
-            sigma = tol.width_sigma if tol.correlated else 0.0  # 2δ with σ_δ = σ_width/2
+        elif kind is Dim.LENGTH:  # half of each neighbouring gap's error (about σ_gap/√2 for
+            # two neighbours), and 2δ with σ_δ = σ_width/2 under the correlated etch
+            sigma = math.hypot(
+                tol.gap_sigma / math.sqrt(2.0), tol.width_sigma if tol.correlated else 0.0
+            )
+        else:  # a tap: its open end's own edge error, and δ under the correlated etch
+            sigma = math.hypot(
+                tol.width_sigma / 2.0, tol.width_sigma / 2.0 if tol.correlated else 0.0
+            )
         out.append(Sensitivity(name, float(d), float(abs(d) * sigma)))
     for name, sigma in (("eps_r", tol.eps_r_sigma), ("height", tol.height_sigma)):
         if sigma:  # not a layout dimension: a central difference of the nominal worst margin
@@ -281,15 +340,22 @@ def sensitivities(
 
 
 def estimate_yield(
-    problem: Problem, layout: Layout, samples: int = 2000, seed: int = 0, correlated: bool = False
+    problem: Problem,
+    layout: Layout,
+    samples: int = 2000,
+    seed: int = 0,
+    correlated: bool = False,
+    model_error: bool = True,
 ) -> YieldResult:
-    """Monte Carlo yield of ``layout`` against ``problem``'s mask under its fab tolerances."""
+    """Monte Carlo yield of ``layout`` against ``problem``'s mask under its fab tolerances and,
+    with ``model_error``, the circuit model's stated uncertainty."""
     if problem.medium == "ideal":
         raise ValueError(
             "yield needs a strip medium with [fab] tolerances; the ideal medium has none"
         )
     tol = Tolerances.from_problem(problem, correlated)
-    s = sample(layout, tol, samples, seed, problem.substrate)
+    unc = model_uncertainty(problem, layout) if model_error else None
+    s = sample(layout, tol, samples, seed, problem.substrate, unc)
     f = yield_grid(problem)
     m = worst_margins(problem, s, f)
     nominal = worst_margins(problem, nominal_samples(layout), f)[0]
@@ -304,6 +370,7 @@ def estimate_yield(
         float(nominal),
         m,
         sensitivities(problem, layout, tol, f),
+        unc if s.model is not None else None,
     )
 
 

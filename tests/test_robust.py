@@ -1,0 +1,83 @@
+"""The uncertainty-aware status and robust refinement (refine.optimise.robust).
+
+"Met" means met at every corner of the circuit model's stated uncertainty; a design met on the
+nominal model alone has its own status and exit code. The problems are bundled ones; the
+uncertainty they are judged at is refine's own (refine.circuit.response.model_uncertainty).
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import replace
+
+import numpy as np
+import pytest
+from conftest import problem_path, refined
+
+from refine.circuit.response import uncertainty_verdict
+from refine.cli import main
+from refine.optimise.refiner import Status, refine_problem
+from refine.optimise.robust import corner_models, robust_refine
+from refine.spec.problem import load_problem
+from refine.validity import ModelRangeWarning
+
+
+def _refine(problem, **kw):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        return refine_problem(problem, **kw)
+
+
+def test_met_means_met_at_every_corner_and_nominal_only_says_so():
+    r = refined(problem_path("microstrip-x-band-alumina-n3"))
+    assert r.status is Status.MET_NOMINAL_ONLY
+    assert r.worst_margin >= 0.0 > r.corner_margin  # both numbers are carried
+    again, _ = uncertainty_verdict(r.problem, r.layout)  # the carried corners are the layout's
+    assert again.worst_margin == pytest.approx(r.corner_margin, abs=1e-9)
+    tap = refined(problem_path("ms-alumina-tap-10g-n3-8pct"))
+    assert tap.status is Status.MET and tap.corner_margin >= 0.0
+
+
+def test_robust_refinement_raises_the_worst_corner_and_keeps_the_nominal_mask():
+    p = load_problem(problem_path("ms-alumina-tap-10g-n3-8pct"))
+    judged = _refine(replace(p, uncertainty="judge"))
+    assert judged.robust_evaluations == 0 and judged.status is Status.MET_NOMINAL_ONLY
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        rr = robust_refine(p, judged.layout)
+    assert rr.moved and rr.evaluations > 0
+    assert rr.start_corner_margin == pytest.approx(judged.corner_margin, abs=1e-9)
+    assert rr.corners.worst_margin > rr.start_corner_margin + 1.0
+    assert rr.nominal.passed  # robustness is never bought with the nominal mask
+
+
+def test_corner_models_are_the_stated_uncertainty():
+    r = refined(problem_path("microstrip-x-band-alumina-n3"))
+    f = np.linspace(9.5e9, 10.5e9, 11)
+    models, unc = corner_models(r.problem, r.layout, f, True)
+    assert len(models) == 1 + 8  # nominal, then every sign of series, shunt, radiation
+    assert models[0].adjust is None
+    factors = {(m.adjust.c_series_factors[0], m.adjust.c_shunt_factor) for m in models[1:]}
+    assert factors == {(1 + a * unc.series, 1 + b * unc.shunt) for a in (-1, 1) for b in (-1, 1)}
+
+
+def test_uncertainty_key_is_checked(tmp_path, capsys):
+    src = problem_path("microstrip-x-band-alumina-n3").read_text()
+    bad = tmp_path / "bad.toml"
+    bad.write_text(src + '\n[models]\nuncertainty = "hope"\n')
+    assert main(["design", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert "models.uncertainty" in err and "'robust', 'judge'" in err and "hope" in err
+    ideal = tmp_path / "ideal.toml"
+    ideal.write_text(
+        problem_path("ideal-s-band-n5").read_text() + '\n[models]\nuncertainty = "judge"\n'
+    )
+    assert main(["design", str(ideal)]) == 2
+    assert "does not apply to medium kind 'ideal'" in capsys.readouterr().err
+
+
+def test_design_exit_code_and_console_say_the_same_as_the_status(capsys):
+    assert main(["design", str(problem_path("ms-alumina-tap-10g-n3-8pct"))]) == 0
+    out = capsys.readouterr().out
+    assert "status: MET —" in out
+    assert "worst margin over the model-uncertainty corners +" in out
