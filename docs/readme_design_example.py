@@ -34,7 +34,7 @@ def example_output() -> str:
     with tempfile.TemporaryDirectory() as tmp, contextlib.redirect_stdout(buf):
         out = Path(tmp) / "out"
         code = main(["design", str(ROOT / PROBLEM), "--out", str(out)])
-        if code != 0:
+        if code not in (0, 5):  # met, or met on the nominal model only
             raise SystemExit(f"the example run exited {code}; the README block was not changed")
         for name, target in (
             ("response.png", "x-band-response.png"),

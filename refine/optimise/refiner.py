@@ -358,6 +358,13 @@ def refine_problem(
             )
             layout, res = rr.layout, rr.nominal
             z = space.to_free(space.clip(model.vector(layout)))
+            if fab.grid is not None:  # the snapping figures are the robust result's
+                unsnapped, snapped_margin = (
+                    rr.unsnapped_margin or res.worst_margin,
+                    res.worst_margin,
+                )
+            else:
+                unsnapped = res.worst_margin
             violations = fab_violations(fab, layout)
         corners, unc = rr.corners, rr.uncertainty
     else:

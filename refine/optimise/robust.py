@@ -46,7 +46,8 @@ from refine.spec.problem import Problem
 class RobustResult:
     """Outcome of :func:`robust_refine`: the layout (moved, or the start when nothing better
     was found), its nominal and worst-corner verdicts on the dense grid, the uncertainty judged,
-    the start's worst-corner margin, and the optimiser's evaluations."""
+    the start's worst-corner margin, the optimiser's evaluations, and (moved, on a shop grid)
+    the nominal margin before snapping."""
 
     layout: Layout
     nominal: MaskResult
@@ -54,6 +55,7 @@ class RobustResult:
     uncertainty: ModelUncertainty
     start_corner_margin: float
     evaluations: int
+    unsnapped_margin: float | None = None  # nominal margin before snapping to the shop's grid
 
     @property
     def moved(self) -> bool:
@@ -140,7 +142,9 @@ def robust_refine(
             aggregate=True,
         )
     p = space.to_physical(rec.z)
+    unsnapped = None
     if fab.grid is not None:
+        unsnapped = _nominal(problem, nominal_model.layout(p)).worst_margin
         p = snap(p, nominal_model, fab)
     moved = nominal_model.layout(p)
     nominal = _nominal(problem, moved)
@@ -156,7 +160,7 @@ def robust_refine(
             rec.evaluations,
         )
     return RobustResult(
-        moved, nominal, corners, unc_moved, start_corners.worst_margin, rec.evaluations
+        moved, nominal, corners, unc_moved, start_corners.worst_margin, rec.evaluations, unsnapped
     )
 
 
