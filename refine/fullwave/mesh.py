@@ -19,7 +19,7 @@ from refine import _validate as v
 from refine.physics.constants import C0
 
 
-def max_cell(f_max: float, eps_r: float, cells_per_wavelength: int = 20) -> float:
+def max_cell(f_max: float, eps_r: float, cells_per_wavelength: float = 20) -> float:
     """Largest cell: the shortest wavelength in the dielectric over ``cells_per_wavelength``."""
     v.positive("f_max", f_max)
     return C0 / (f_max * np.sqrt(eps_r)) / cells_per_wavelength

@@ -111,8 +111,8 @@ def resolutions(mesh: str, layout: Layout) -> list[geometry.Resolution]:
     v.one_of("mesh", mesh, MESH_CHOICES)
     if mesh in ("pair", "converged"):
         d = min(geometry.MESHES["coarse"].edge_cell, 0.5 * min(layout.gaps))
-        base = geometry.Resolution(mesh, d)
-        return [base.halved(k) for k in range(2 if mesh == "pair" else 3)]
+        base = geometry.Resolution(mesh, d, edge_rule="thirds")
+        return [base.refined(k) for k in range(2 if mesh == "pair" else 3)]
     return [geometry.MESHES[mesh]]
 
 
@@ -124,12 +124,14 @@ def check_layout(
     threads: int = 0,
     lossy: bool = True,
     progress: engine.Progress | None = None,
+    meshes: list[geometry.Resolution] | None = None,
 ) -> FieldCheck:
     """Field-solve a layout on its problem's substrate and compare with the circuit model;
     ``progress`` receives a line before each engine run and while it runs.
 
     lossy False: PEC strips on a lossless substrate in the field solver (a diagnostic: the
-    circuit model keeps its losses)."""
+    circuit model keeps its losses). ``meshes`` overrides the preset ``mesh`` names (a campaign
+    that runs one mesh at a time)."""
     if problem.medium != "microstrip":
         raise FieldCheckError(
             f"medium.kind = {problem.medium!r}: the field check handles microstrip only "
@@ -141,7 +143,7 @@ def check_layout(
     sub = problem.strip_substrate
     band = em_band(problem)
     solves = []
-    for k, res in enumerate(resolutions(mesh, layout)):
+    for k, res in enumerate(meshes if meshes is not None else resolutions(mesh, layout)):
         length = geometry.feed_length(sub, layout.feed_width, band[1], res)
         st = geometry.layout_structure(layout, sub, length)
         wd = Path(workdir) / f"mesh-{k}" if workdir is not None else None

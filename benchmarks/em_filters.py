@@ -1,0 +1,205 @@
+"""Filter-level validation: refined bundled filters on the field solver at converged meshes.
+
+    python benchmarks/em_filters.py [--threads N]   # run what is missing, then print the table
+    python benchmarks/em_filters.py --table         # the table from the data file only
+    python benchmarks/em_filters.py --readme        # the table as the README block em-filters
+
+Each filter of :data:`FILTERS` (bundled problems) is refined by refine's default (the calibrated
+circuit model with robust refinement) and its layout field-solved on three meshes, every cell
+refined by refine.fullwave.geometry.REFINE_RATIO from one to the next, with the thirds rule at
+metal edges (the field check's "converged" preset). Each finished (filter, mesh) solve is
+appended to ``tests/data/fullwave-filters.json`` at once with the layout, the figures of the
+field solver and of the circuit model, and provenance (engine, mesh, cells, seconds, date), so a
+killed campaign resumes where it stopped. The table gives, per filter, the field solver's centre
+shift from the circuit model (in % and in units of the fractional bandwidth), the 3 dB bandwidth
+ratio, the worst in-band return loss and the midband loss, each at the finest mesh with its mesh
+uncertainty (refine.fullwave.uncertainty.mesh_uncertainty over the three meshes).
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime
+import json
+import sys
+import time
+import warnings
+from pathlib import Path
+
+import numpy as np
+
+from refine.fullwave import geometry, verify
+from refine.fullwave.uncertainty import mesh_uncertainty
+from refine.optimise.refiner import refine_problem
+from refine.spec.problem import load_problem
+from refine.validity import ModelRangeWarning
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from readme_block import replace_block
+
+ROOT = Path(__file__).resolve().parent.parent
+DATA = ROOT / "tests" / "data" / "fullwave-filters.json"
+#: the bundled filters checked, cheapest first (the wide tapped ones solve in minutes)
+FILTERS = ("ms-alumina-tap-10g-n3-8pct", "ms-alumina-tap-10g-n3-10pct")
+MESHES = 3
+
+
+def _midband_loss(f: np.ndarray, s: np.ndarray, f0: float) -> float:
+    s21 = np.abs(s[:, 1, 0])
+    return float(-20 * np.log10(np.interp(f0, f, s21)))
+
+
+def run_one(name: str, k: int, threads: int) -> dict:
+    problem = load_problem(ROOT / "problems" / f"{name}.toml")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        r = refine_problem(problem)
+    lay = r.strip_layouts[0]
+    res = verify.resolutions("converged", lay)[k]
+    t0 = time.perf_counter()
+    c = verify.check_layout(
+        problem, lay, threads=threads, meshes=[res], progress=lambda s: print(f"  {s}", flush=True)
+    )
+    cmp_ = c.comparison
+    return {
+        "filter": name,
+        "mesh_index": k,
+        "edge_cell_m": res.edge_cell,
+        "cells_per_wavelength": res.cells_per_wavelength,
+        "edge_rule": res.edge_rule,
+        "status": r.status.value,
+        "layout": {
+            "gaps": list(lay.gaps),
+            "lengths": list(lay.lengths),
+            "widths": list(lay.widths),
+            "taps": None if lay.taps is None else list(lay.taps),
+        },
+        "fbw": problem.fbw,
+        "f0_hz": problem.f0,
+        "em": {
+            "centre_hz": cmp_.em.centre,
+            "bandwidth_hz": cmp_.em.bandwidth,
+            "worst_return_loss_db": cmp_.em.worst_return_loss,
+            "midband_loss_db": _midband_loss(c.f, c.s_em, problem.f0),
+            "worst_margin_db": cmp_.em_mask.worst_margin,
+        },
+        "model": {
+            "centre_hz": cmp_.model.centre,
+            "bandwidth_hz": cmp_.model.bandwidth,
+            "worst_return_loss_db": cmp_.model.worst_return_loss,
+            "midband_loss_db": _midband_loss(c.f, c.s_model, problem.f0),
+            "worst_margin_db": cmp_.model_mask.worst_margin,
+        },
+        "cells": c.solves[-1].mesh.cells,
+        "seconds": time.perf_counter() - t0,
+        "engine": c.solves[-1].engine,
+        "date": datetime.date.today().isoformat(),
+    }
+
+
+def load() -> list[dict]:
+    return json.loads(DATA.read_text())["runs"] if DATA.exists() else []
+
+
+def save(runs: list[dict]) -> None:
+    doc = {
+        "what": "refined bundled filters on the field solver, three meshes each (every cell "
+        "refined), thirds rule at metal edges, zero-thickness lossy sheets; written by "
+        "benchmarks/em_filters.py",
+        "runs": runs,
+    }
+    tmp = DATA.with_suffix(".tmp")
+    tmp.write_text(json.dumps(doc, indent=1) + "\n")
+    tmp.replace(DATA)
+
+
+def summary(runs: list[dict], name: str) -> dict | None:
+    """Finest-mesh figures of one filter with their mesh uncertainty (None until two meshes
+    ran: with two, the uncertainty is their difference; with three, from the observed order)."""
+    mine = sorted((r for r in runs if r["filter"] == name), key=lambda r: r["mesh_index"])
+    if len(mine) < 2:
+        return None
+    cells = [r["edge_cell_m"] for r in mine]
+    out: dict = {
+        "fbw": mine[0]["fbw"],
+        "model": mine[-1]["model"],
+        "status": mine[0]["status"],
+        "meshes": len(mine),
+    }
+    for key in ("centre_hz", "bandwidth_hz", "worst_return_loss_db", "midband_loss_db"):
+        values = [r["em"][key] for r in mine]
+        out[key] = (values[-1], mesh_uncertainty(cells, values))
+    out["seconds"] = sum(r["seconds"] for r in mine)
+    return out
+
+
+def _pm(x: float | None, scale: float, fmt: str) -> str:
+    return "" if x is None else f" ± {format(x * scale, fmt)}"
+
+
+def table(runs: list[dict]) -> str:
+    rows = [
+        "| filter (status on the circuit model) | centre shift | in units of the FBW | 3 dB "
+        "bandwidth ratio | worst in-band RL, field (circuit) | midband loss, field (circuit) | "
+        "meshes, engine time |",
+        "|---|---|---|---|---|---|---|",
+    ]
+    for name in FILTERS:
+        s = summary(runs, name)
+        if s is None:
+            continue
+        m = s["model"]
+        fc, dfc = s["centre_hz"]
+        shift = fc / m["centre_hz"] - 1
+        bw, dbw = s["bandwidth_hz"]
+        rl, drl = s["worst_return_loss_db"]
+        il, dil = s["midband_loss_db"]
+        rows.append(
+            f"| {name} ({s['status']}) | {100 * shift:+.2f}{_pm(dfc, 100 / m['centre_hz'], '.2f')} % "
+            f"| {shift / s['fbw']:+.2f}{_pm(dfc, 1 / (m['centre_hz'] * s['fbw']), '.2f')} | "
+            f"{bw / m['bandwidth_hz']:.3f}{_pm(dbw, 1 / m['bandwidth_hz'], '.3f')} | "
+            f"{rl:.1f}{_pm(drl, 1, '.1f')} dB ({m['worst_return_loss_db']:.1f}) | "
+            f"{il:.2f}{_pm(dil, 1, '.2f')} dB ({m['midband_loss_db']:.2f}) | "
+            f"{s['meshes']}, {s['seconds'] / 60:.0f} min |"
+        )
+    return "\n".join(rows)
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--table", action="store_true", help="print the table only, run nothing")
+    ap.add_argument("--readme", action="store_true", help="write the README block")
+    ap.add_argument("--threads", type=int, default=0, help="engine threads (0: all cores)")
+    args = ap.parse_args(argv)
+    runs = load()
+    if not (args.table or args.readme):
+        done = {(r["filter"], r["mesh_index"]) for r in runs}
+        for k in range(MESHES):  # every filter's coarser meshes first: a table sooner
+            for name in FILTERS:
+                if (name, k) in done:
+                    continue
+                print(f"{name}, mesh {k + 1} of {MESHES} ...", flush=True)
+                rec = run_one(name, k, args.threads)
+                runs.append(rec)
+                save(runs)
+                print(
+                    f"  centre {rec['em']['centre_hz'] / 1e9:.4f} GHz, RL "
+                    f"{rec['em']['worst_return_loss_db']:.2f} dB ({rec['cells']} cells, "
+                    f"{rec['seconds']:.0f} s)",
+                    flush=True,
+                )
+    text = table(runs)
+    if args.readme:
+        mesh = geometry.REFINE_RATIO
+        replace_block(
+            "em-filters",
+            f"`python benchmarks/em_filters.py --readme` wrote this table (meshes with every "
+            f"cell refined by {mesh:.3g} from one to the next, thirds rule at metal edges; the "
+            f"campaign runs three per filter and resumes where it stopped):\n\n" + text + "\n",
+        )
+    print(text)
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
