@@ -394,7 +394,13 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
     print(
         f"status: {r.status.value.upper()} — worst margin {r.worst_margin:+.2f} dB on the "
         f"verification grid (closed-form seed {r.seed_worst_margin:+.2f} dB); "
-        f"{r.evaluations} evaluations, {r.wall_time:.1f} s"
+        f"{r.evaluations} evaluations"
+        + (
+            f" (+{r.robust_evaluations} for the model's uncertainty)"
+            if r.robust_evaluations
+            else ""
+        )
+        + f", {r.wall_time:.1f} s"
     )
     rows = [
         [name, f"{m:+.2f}", f"{r.seed_worst[name]:+.2f}", f"{r.where[name] / 1e9:.4f}"]

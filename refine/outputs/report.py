@@ -492,7 +492,13 @@ def report_md(
         VERDICT_END,
         "",
         f"Worst margin {r.worst_margin:+.2f} dB on the verification grid (closed-form seed {r.seed_worst_margin:+.2f} dB); "
-        f"{r.evaluations} evaluations, {r.wall_time:.1f} s, strategy `{r.strategy}`.",
+        f"{r.evaluations} evaluations"
+        + (
+            f" (+{r.robust_evaluations} for the model's uncertainty)"
+            if r.robust_evaluations
+            else ""
+        )
+        + f", {r.wall_time:.1f} s, strategy `{r.strategy}`.",
         "",
     ]
     lines += [
