@@ -199,8 +199,9 @@ def build_parser() -> argparse.ArgumentParser:
         "--mesh",
         choices=["pair", "converged", "coarse", "fine"],
         default="pair",
-        help="pair: two meshes (edge cells 50 um, or half the smallest gap, and half that), "
-        "whose difference estimates the error; converged: three meshes, extrapolated; coarse "
+        help="pair: two meshes (edge cells 50 um, or half the smallest gap, then every cell "
+        "smaller by sqrt 2), whose difference estimates the error; converged: three such "
+        "meshes, extrapolated; coarse "
         "(50 um) or fine (25 um): one mesh, whose verdict is always undecided; default: "
         "%(default)s",
     )

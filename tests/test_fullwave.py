@@ -377,7 +377,9 @@ def test_space_mapping_meets_the_mask_on_a_stand_in_fine_model(monkeypatch, meth
     first = fake_check(p, r.layout)
     assert not first.comparison.em_mask.passed  # the stand-in fine model breaks the design
     sm = spacemap.correct(p, r.layout, max_runs=3, method=method)
-    assert sm.met and sm.runs <= 3
+    # the stand-in is one "mesh" without an error estimate: the mask met on it ends the rounds,
+    # but the corrected design is not called met beyond a mesh uncertainty it does not have
+    assert sm.checks[sm.best].comparison.em_mask.passed and sm.runs <= 3 and not sm.met
     if method == "implicit":  # the extracted correction is mostly a length change
         corr = sm.extracted[0]
         # the denser substrate makes every drawn line electrically longer
@@ -531,7 +533,8 @@ def test_fullwave_correct_meets_the_mask_on_the_stand_in(monkeypatch, tmp_path, 
     _stand_in(monkeypatch)
     code = main(["fullwave", str(out / "layout.json"), "--problem", str(TAP_PROBLEM), "--correct"])
     assert code == 0
-    assert "meets the mask after 2 field solves" in capsys.readouterr().out
+    out_text = capsys.readouterr().out
+    assert "2 field solves" in out_text and "best: field solve 2: met beyond the mesh uncertainty" in out_text
     corrected = export.read_layout(out / "fullwave-layout.json")
     rounds = json.loads((out / "fullwave-rounds.json").read_text())
     assert rounds["met"] and rounds["runs"] == 2 and rounds["best_round"] == 2
@@ -604,7 +607,7 @@ def test_mesh_uncertainty_and_the_three_way_verdict():
     assert u.verdict(fig(0.2, 0.3)) is u.MeshVerdict.UNDECIDED
     assert u.verdict(fig(-0.2, 0.3)) is u.MeshVerdict.UNDECIDED
     assert u.verdict(fig(5.0, None)) is u.MeshVerdict.UNDECIDED  # one mesh never decides
-    assert "12.5 um" in u.sentence(fig(0.2, 0.3), 25e-6)
+    assert "17.7 um" in u.sentence(fig(0.2, 0.3), 25e-6)
 
 
 def test_one_mesh_check_is_undecided_and_exits_4(monkeypatch, tmp_path, capsys):
@@ -627,6 +630,6 @@ def test_one_mesh_check_is_undecided_and_exits_4(monkeypatch, tmp_path, capsys):
     )
     assert code == 4
     text = capsys.readouterr().out
-    assert "undecided at this mesh" in text and "12.5 um" in text
+    assert "undecided at this mesh" in text and "17.7 um" in text
     data = json.loads((out / "summary.json").read_text())
     assert data["meets_mask_on_field_solver"] == "undecided"

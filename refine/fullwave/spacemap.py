@@ -49,6 +49,7 @@ from refine.circuit.layout import Layout
 from refine.circuit.model import StripFilterModel, strip_model_for
 from refine.circuit.response import evaluate_layout, strip_medium_for, verification_grid
 from refine.fullwave import verify
+from refine.fullwave.uncertainty import MeshVerdict
 from refine.optimise.minimax import Stopping, minimax
 from refine.optimise.space import DesignSpace, mirror_ties, snap_layout, step_space
 from refine.outputs import artwork, export
@@ -318,7 +319,8 @@ class Correction:
 
     @property
     def met(self) -> bool:
-        return self.checks[self.best].comparison.em_mask.passed
+        """The best round meets the mask beyond its mesh uncertainty."""
+        return self.checks[self.best].verdict is MeshVerdict.MET
 
     @property
     def runs(self) -> int:
@@ -334,11 +336,11 @@ class Correction:
             )
         for k, m in enumerate(self.misfits, start=1):
             lines.append(f"  correction from field solve {k}: RMS |S| misfit left {m:.3f}")
-        verdict = "meets" if self.met else "does NOT meet"
+        best = self.checks[self.best]
         lines.append(
-            f"EM-corrected refinement ({self.method} space mapping): the field-solver response "
-            f"{verdict} the mask after {self.runs} field solves, {self.seconds:.0f} s in all; "
-            f"best: field solve {self.best + 1}"
+            f"EM-corrected refinement ({self.method} space mapping), {self.runs} field solves, "
+            f"{self.seconds:.0f} s in all; best: field solve {self.best + 1}: "
+            f"{best.verdict_sentence()}"
         )
         return "\n".join(lines + [f"  note: {n}" for n in self.notes])
 
@@ -386,7 +388,10 @@ def correct(
             f"field solve {k + 1}: worst mask margin {c.comparison.em_mask.worst_margin:+.2f} dB, "
             f"{c.comparison.summary_line()}"
         )
-        if c.comparison.em_mask.passed or k == max_runs - 1:
+        # a round decides only beyond its mesh uncertainty; one mesh cannot bound its error,
+        # so there the mask met on that mesh ends the rounds (an explicitly undecided result)
+        done = c.verdict is MeshVerdict.MET or (len(c.solves) <= 1 and c.comparison.em_mask.passed)
+        if done or k == max_runs - 1:
             break
         if method == "implicit":
             corr, misfit = extract_correction(problem, checks, corr)

@@ -79,19 +79,21 @@ def verdict(margin: Figure) -> MeshVerdict:
     return MeshVerdict.UNDECIDED
 
 
-def sentence(margin: Figure, finest_cell: float) -> str:
-    """The verdict as the report says it, with both numbers and what would decide it."""
+def sentence(margin: Figure, finest_cell: float, ratio: float = 2**0.5) -> str:
+    """The verdict as the report says it, with both numbers and what would decide it (a mesh
+    with every cell ``ratio`` smaller, the field check's refinement ratio)."""
     v = verdict(margin)
+    finer = finest_cell / ratio * 1e6
     if margin.uncertainty is None:
         return (
             f"{v.value}: worst mask margin {margin.value:+.2f} dB on one mesh, whose error a "
-            "single mesh cannot estimate; a second mesh with half its edge cell "
-            f"({finest_cell / 2 * 1e6:.3g} um) would bound it"
+            f"single mesh cannot estimate; a second mesh with every cell {ratio:.3g} times "
+            f"smaller (edge cells {finer:.3g} um) would bound it"
         )
     text = f"{v.value}: worst mask margin {margin.value:+.2f} ± {margin.uncertainty:.2f} dB"
     if v is MeshVerdict.UNDECIDED:
         text += (
-            f"; a mesh with edge cells of {finest_cell / 2 * 1e6:.3g} um (half the finest) "
+            f"; a mesh with every cell {ratio:.3g} times smaller (edge cells {finer:.3g} um) "
             "would narrow the interval"
         )
     return text

@@ -1,9 +1,10 @@
 """Field-solver check of a layout against its problem: EM response, circuit-model response on
 the same frequencies, and the comparison figures.
 
-Mesh choices: "pair" (the default: the coarse mesh and one with half its edge cells, whose
-difference estimates the finer one's error), "converged" (three meshes halving from the coarse
-one, the comparison figures extrapolated to zero cell size by Richardson), or one mesh alone,
+Mesh choices: "pair" (the default: the coarse mesh and one with every cell smaller by
+:data:`~refine.fullwave.geometry.REFINE_RATIO`, whose difference estimates the finer one's
+error), "converged" (three such meshes, the comparison figures extrapolated to zero cell size
+by Richardson), or one mesh alone,
 "coarse" (50 µm edge cells, or half the smallest gap) or "fine" (25 µm), whose verdict is then
 always undecided (see :mod:`refine.fullwave.uncertainty`). The S-parameters are the finest
 mesh's.
