@@ -534,7 +534,10 @@ def test_fullwave_correct_meets_the_mask_on_the_stand_in(monkeypatch, tmp_path, 
     code = main(["fullwave", str(out / "layout.json"), "--problem", str(TAP_PROBLEM), "--correct"])
     assert code == 0
     out_text = capsys.readouterr().out
-    assert "2 field solves" in out_text and "best: field solve 2: met beyond the mesh uncertainty" in out_text
+    assert (
+        "2 field solves" in out_text
+        and "best: field solve 2: met beyond the mesh uncertainty" in out_text
+    )
     corrected = export.read_layout(out / "fullwave-layout.json")
     rounds = json.loads((out / "fullwave-rounds.json").read_text())
     assert rounds["met"] and rounds["runs"] == 2 and rounds["best_round"] == 2
