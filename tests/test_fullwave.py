@@ -104,6 +104,22 @@ def _tap_layout():
     )
 
 
+def test_the_field_model_builds_the_problems_enclosure():
+    """Open: absorbing side walls and top; shielded: metal ones (the feeds always end in
+    absorbing layers, the floor is the ground plane)."""
+    gap_st = geometry.gap_structure(0.6e-3, 0.1e-3, 3e-3)
+    pml = f"PML_{geometry.PML_CELLS}"
+    assert geometry.boundaries(gap_st) == [pml, pml, "MUR", "MUR", "PEC", "MUR"]
+    assert geometry.boundaries(gap_st, "shielded") == [pml, pml, "PEC", "PEC", "PEC", "PEC"]
+    with pytest.raises(ValueError, match="enclosure"):
+        geometry.boundaries(gap_st, "lidded")
+    m = geometry.build_mesh(gap_st, ALUMINA, 14e9, geometry.MESHES["coarse"])
+    j = geometry.job(
+        gap_st, m, ALUMINA, (4e9, 14e9), np.linspace(4e9, 14e9, 3), 1e-9, 1, enclosure="shielded"
+    )
+    assert j["boundaries"][2:] == ["PEC", "PEC", "PEC", "PEC"]
+
+
 def test_thirds_rule_puts_the_edge_between_two_lines():
     """Each metal edge: a line a third of the edge cell inside the metal, one two thirds outside,
     none on the edge (common practice, no source); a gap's cell is at most half the gap."""
@@ -516,6 +532,7 @@ def test_fullwave_command_writes_its_files_and_extends_the_report(monkeypatch, t
     report = (out / "report.md").read_text()
     assert report.count("## Field-solver check") == 1
     assert "| centre (3 dB) GHz |" in report
+    assert "Enclosure: open, as the problem states" in report
     data = json.loads((out / "summary.json").read_text())
     assert data["field_solver"]["mask"]["field_solver"]["passed"] is False
     assert data["field_solver"]["centre_shift_hz"] < 0  # higher eps_r: lower centre

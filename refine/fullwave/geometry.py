@@ -280,14 +280,21 @@ def edge_points(st: Structure, edge: float, rule: str) -> dict[str, list[tuple[f
     return pts
 
 
-def boundaries(st: Structure) -> list[str]:
-    """Absorbing layers where the feeds leave the box, first-order absorbing walls elsewhere,
-    PEC floor as the ground plane."""
+ENCLOSURES = ("open", "shielded")  # the problem's [medium] enclosure, as the field model builds it
+
+
+def boundaries(st: Structure, enclosure: str = "open") -> list[str]:
+    """Absorbing layers where the feeds leave the box, PEC floor as the ground plane, and on
+    the other sides: first-order absorbing walls for an "open" enclosure (radiation leaves), or
+    metal walls and lid for a "shielded" one (the housing the problem states; the box's side
+    margin and air height place them)."""
+    v.one_of("enclosure", enclosure, ENCLOSURES)
+    wall = "MUR" if enclosure == "open" else "PEC"
     pml = f"PML_{PML_CELLS}"
     axes = {f.axis for f in st.feeds}
-    bx = [pml, pml] if "x" in axes else ["MUR", "MUR"]
-    by = [pml, pml] if "y" in axes else ["MUR", "MUR"]
-    return [*bx, *by, "PEC", "MUR"]
+    bx = [pml, pml] if "x" in axes else [wall, wall]
+    by = [pml, pml] if "y" in axes else [wall, wall]
+    return [*bx, *by, "PEC", wall]
 
 
 def job(
@@ -300,6 +307,7 @@ def job(
     excite: int,
     threads: int = 0,
     lossy: bool = True,
+    enclosure: str = "open",
 ) -> dict:
     """The plain-data job the solver script runs (all lengths in metres)."""
     f_lo, f_hi = band
@@ -341,7 +349,7 @@ def job(
         "mesh": {"x": mesh.x.tolist(), "y": mesh.y.tolist(), "z": mesh.z.tolist()},
         "strips": [[s.x0, s.y0, s.x1, s.y1] for s in st.strips],
         "ports": ports,
-        "boundaries": boundaries(st),
+        "boundaries": boundaries(st, enclosure),
         "excitation": {"f0": f0, "fc": fc},
         "frequencies": np.asarray(f, float).tolist(),
         "max_time": float(max_time),

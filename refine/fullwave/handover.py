@@ -67,6 +67,14 @@ def check_dict(c: FieldCheck) -> dict:
     }
 
 
+ENCLOSURE_WORDS = {
+    "open": "Enclosure: open, as the problem states (absorbing walls 6 substrate heights beside "
+    "the copper and 8 above it: radiation leaves).",
+    "shielded": "Enclosure: shielded, as the problem states (metal side walls 6 substrate "
+    "heights beside the copper and a metal lid 8 above it).",
+}
+
+
 def section_md(c: FieldCheck) -> str:
     """The report section: what was solved, how long it took, and the comparison table."""
     comp = c.comparison
@@ -77,7 +85,8 @@ def section_md(c: FieldCheck) -> str:
         "",
         f"{sol.engine} (FDTD), mesh `{c.mesh}` (edge cells {cells} um, {sol.mesh.cells} cells on "
         f"the finest), {c.runs} engine runs in {c.seconds:.0f} s. Strips are zero-thickness "
-        "sheets; dielectric loss at the band centre; reference planes as in the circuit model.",
+        "sheets; dielectric loss at the band centre; reference planes as in the circuit model. "
+        + ENCLOSURE_WORDS[c.problem.enclosure],
         "",
         f"**Verdict: {c.verdict_sentence()}.**",
         "",

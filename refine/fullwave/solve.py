@@ -64,12 +64,15 @@ def solve(
     threads: int = 0,
     lossy: bool = True,
     progress: engine.Progress | None = None,
+    enclosure: str = "open",
 ) -> FieldSolve:
     """Field-solve a structure; see :mod:`refine.fullwave.geometry` for the model.
 
     ringing : how long (s) the structure rings after the pulse (for a filter, several of its
         largest group delays); the simulated time is the pulse, six box transits and this.
     band : the excitation band (Hz), the span of ``f`` by default.
+    enclosure : "open" (absorbing walls and top) or "shielded" (metal walls and lid), see
+        :func:`refine.fullwave.geometry.boundaries`.
     """
     f = v.frequencies("f", f)
     band = band if band is not None else (float(f.min()), float(f.max()))
@@ -81,7 +84,7 @@ def solve(
         return work / name if work is not None else None
 
     thru_st = st.thru(far_edge=float(mesh.y[-1]))
-    jt = geometry.job(thru_st, mesh, substrate, band, f, base, 1, threads, lossy)
+    jt = geometry.job(thru_st, mesh, substrate, band, f, base, 1, threads, lossy, enclosure)
     rt = engine.run(jt, sub("thru"), progress=progress, label="thru run")
     zc = {1: rt["zc1"], 2: rt["zc2"]}
     beta = {1: rt["beta1"], 2: rt["beta2"]}
@@ -90,7 +93,9 @@ def solve(
     runs, seconds, tail = 1, float(rt["seconds"]), 0.0
     states = []
     for k in (1,) if st.symmetric else (1, 2):
-        jd = geometry.job(st, mesh, substrate, band, f, base + ringing, k, threads, lossy)
+        jd = geometry.job(
+            st, mesh, substrate, band, f, base + ringing, k, threads, lossy, enclosure
+        )
         r = engine.run(jd, sub(f"excite-{k}"), progress=progress, label=f"excitation {k}")
         runs += 1
         seconds += float(r["seconds"])

@@ -149,7 +149,20 @@ def check_layout(
         st = geometry.layout_structure(layout, sub, length)
         wd = Path(workdir) / f"mesh-{k}" if workdir is not None else None
         solves.append(
-            solve.solve(st, sub, f, problem.z_ref, res, ring, band, wd, threads, lossy, progress)
+            solve.solve(
+                st,
+                sub,
+                f,
+                problem.z_ref,
+                res,
+                ring,
+                band,
+                wd,
+                threads,
+                lossy,
+                progress,
+                problem.enclosure,
+            )
         )
     s_em = solves[-1].s
     comp = compare.compare(f, s_em, s_model, problem.mask)
