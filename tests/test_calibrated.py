@@ -181,10 +181,10 @@ def test_the_problem_set_still_loads():
             load_problem(f)
 
 
-def test_bundled_calibration_covers_the_refiners_range():
-    names = calibrated.bundled_names()
-    assert "static-er9.8" in names
-    cal = calibrated.load("static-er9.8")
+@pytest.mark.parametrize("name", calibrated.bundled_names())
+def test_bundled_calibration_covers_the_refiners_range(name):
+    assert {"static-er9.8", "static-er3.55"} <= set(calibrated.bundled_names())
+    cal = calibrated.load(name)
     assert cal.w_h_range[0] <= 0.3 and cal.w_h_range[1] >= 3.0
     assert cal.s_h_range[0] <= 0.02  # the thin-film end gaps, s/h down to 0.02
     assert cal.provenance["refine_version"] and cal.provenance["created"]
