@@ -467,7 +467,12 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
         )
         print()
         print(f"wrote {len(written)} files to {args.out}: " + ", ".join(w.name for w in written))
-        if r.status is not Status.MET:
+        if r.status is Status.MET_NOMINAL_ONLY:
+            print(
+                "  (they describe a design that meets the mask on the nominal circuit model, "
+                "not at every corner of its uncertainty)"
+            )
+        elif r.status is not Status.MET:
             print("  (they describe the best design found, which does NOT meet the mask)")
         if args.fullwave is not None:
             print()

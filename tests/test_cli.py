@@ -131,7 +131,9 @@ def test_yield_seed_and_layout_values_are_checked(tmp_path, capsys):
     assert (
         main(["design", str(PROBLEM), "--out", str(tmp_path)]) == NOMINAL_ONLY
     )  # met, not at every model corner
-    capsys.readouterr()
+    out = capsys.readouterr().out
+    assert "meets the mask on the nominal circuit model, not at every corner" in out
+    assert "does NOT meet the mask" not in out
     assert main(["yield", str(lay), "--problem", str(PROBLEM), "--seed", "-1"]) == 2
     assert "--seed = -1 is outside the allowed range 0..2**63-1" in capsys.readouterr().err
     data = json.loads(lay.read_text())
