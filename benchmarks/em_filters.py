@@ -24,6 +24,7 @@ import json
 import sys
 import time
 import warnings
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -49,12 +50,26 @@ def _midband_loss(f: np.ndarray, s: np.ndarray, f0: float) -> float:
     return float(-20 * np.log10(np.interp(f0, f, s21)))
 
 
-def run_one(name: str, k: int, threads: int) -> dict:
+def run_one(name: str, k: int, threads: int, earlier: list[dict]) -> dict:
+    """One filter on mesh ``k``; the layout is the one the filter's earlier meshes solved (so
+    that a change of the refiner between sessions never mixes two layouts in one sequence)."""
     problem = load_problem(ROOT / "problems" / f"{name}.toml")
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ModelRangeWarning)
         r = refine_problem(problem)
     lay = r.strip_layouts[0]
+    status = r.status.value
+    mine = [e for e in earlier if e["filter"] == name]
+    if mine:
+        d = mine[0]["layout"]
+        lay = replace(
+            lay,
+            gaps=tuple(d["gaps"]),
+            lengths=tuple(d["lengths"]),
+            widths=tuple(d["widths"]),
+            taps=None if d["taps"] is None else tuple(d["taps"]),
+        )
+        status = mine[0]["status"]
     res = verify.resolutions("converged", lay)[k]
     t0 = time.perf_counter()
     c = verify.check_layout(
@@ -67,7 +82,7 @@ def run_one(name: str, k: int, threads: int) -> dict:
         "edge_cell_m": res.edge_cell,
         "cells_per_wavelength": res.cells_per_wavelength,
         "edge_rule": res.edge_rule,
-        "status": r.status.value,
+        "status": status,
         "layout": {
             "gaps": list(lay.gaps),
             "lengths": list(lay.lengths),
@@ -179,7 +194,7 @@ def main(argv: list[str] | None = None) -> int:
                 if (name, k) in done:
                     continue
                 print(f"{name}, mesh {k + 1} of {MESHES} ...", flush=True)
-                rec = run_one(name, k, args.threads)
+                rec = run_one(name, k, args.threads, runs)
                 runs.append(rec)
                 save(runs)
                 print(
