@@ -50,7 +50,10 @@ class Figure:
 def mesh_uncertainty(cells: Sequence[float], values: Sequence[float]) -> float | None:
     """Estimated error of the finest mesh's value (see the module docstring); None for one mesh.
 
-    ``cells`` are the edge cells, coarsest first; meshes after the first are assumed to halve."""
+    ``cells`` are the edge cells, coarsest first (the refinement ratio is read from them). With
+    three meshes the observed order is capped at :data:`MAX_ORDER`: a much higher observed
+    order (two nearly equal finer values) would give an estimate far below the last change,
+    which three meshes cannot support (the usual cap of grid-convergence practice, from memory)."""
     if len(values) != len(cells):
         raise ValueError(f"{len(values)} values for {len(cells)} meshes")
     if len(values) < 2:
@@ -64,8 +67,13 @@ def mesh_uncertainty(cells: Sequence[float], values: Sequence[float]) -> float |
     if d1 == 0.0 or d2 == 0.0 or d1 * d2 < 0 or abs(d2) >= abs(d1):
         return max(abs(d1), abs(d2))  # not converging monotonically: the largest change
     r = cells[-2] / cells[-1]
-    p = math.log(abs(d1 / d2)) / math.log(r)
+    p = min(math.log(abs(d1 / d2)) / math.log(r), MAX_ORDER)
     return abs(d2) / (r**p - 1.0)
+
+
+#: the highest observed order a three-mesh estimate trusts: twice the first order of FDTD with
+#: staircased metal edges
+MAX_ORDER = 2.0
 
 
 def verdict(margin: Figure) -> MeshVerdict:
