@@ -359,10 +359,8 @@ def refine_problem(
             layout, res = rr.layout, rr.nominal
             z = space.to_free(space.clip(model.vector(layout)))
             if fab.grid is not None:  # the snapping figures are the robust result's
-                unsnapped, snapped_margin = (
-                    rr.unsnapped_margin or res.worst_margin,
-                    res.worst_margin,
-                )
+                snapped_margin = res.worst_margin
+                unsnapped = res.worst_margin if rr.unsnapped_margin is None else rr.unsnapped_margin
             else:
                 unsnapped = res.worst_margin
             violations = fab_violations(fab, layout)

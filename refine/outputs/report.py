@@ -181,7 +181,10 @@ def figures(r: RefineResult, power_w: float, g: tuple[float, ...] = ()) -> Figur
         return Figures([], passband_figures(r))
     p = r.problem
     budget = loss_budget(p, r.layout, g[1:-1]) if g else None
-    corners, unc = uncertainty_verdict(p, r.layout)
+    if r.corners is not None and r.uncertainty is not None:  # judged by the refiner already
+        corners, unc = r.corners, r.uncertainty
+    else:
+        corners, unc = uncertainty_verdict(p, r.layout)
     return Figures(
         gap_voltages(r, power_w),
         passband_figures(r),
