@@ -16,6 +16,9 @@ runs; the best run is the least disturbed):
   not move can) and the one-shot ``layout_response`` that computes them every call;
 * the inner-loop figures again in a fresh process with glibc's default allocator settings
   (``REFINE_MALLOC=system``, see ``refine/allocator.py``), side by side;
+* one robust-refinement step on the README problem (the nominal design and its eight
+  model-uncertainty corners, with the gradient): the corners' models one by one against the
+  one batched call refine makes;
 * the commands as a user runs them (a fresh process each): ``refine --help``, ``refine design
   --out`` and ``refine design --centre-yield`` on the README's problem.
 
@@ -112,6 +115,27 @@ def inner() -> dict[str, float]:
     return t
 
 
+def corner_step() -> tuple[float, float, int]:
+    """One robust-refinement step on the README problem (the nominal design and every
+    model-uncertainty corner, with the gradient, on the optimiser's grid): each corner's model
+    called in turn vs the one batched call refine makes. Seconds per step, and the copies."""
+    from dataclasses import replace
+
+    from refine.optimise.robust import corner_models
+
+    warnings.simplefilter("ignore")
+    p = load_problem(README_PROBLEM)
+    lay = refine_problem(p).layout
+    f = optimiser_grid(p.mask, lay.order)
+    nominal, every, unc = corner_models(p, lay, f, p.free_widths)
+    x = nominal.vector(lay)
+    singles = [nominal] + [replace(nominal, adjust=a) for a in unc.corners(len(lay.gaps))]
+    batch = np.tile(x, (len(singles), 1))
+    one = best(lambda: [m.response(x, True) for m in singles], 5, 7)
+    batched = best(lambda: every.response(batch, True), 5, 7)
+    return one, batched, len(singles)
+
+
 def inner_without_tuning() -> dict[str, float]:
     """:func:`inner` in a fresh process with glibc's default allocator settings."""
     env = {**os.environ, "REFINE_MALLOC": "system"}
@@ -168,6 +192,14 @@ def rows() -> list[tuple[str, str, str]]:
                 "≥ 60× (N=5)" if n == 5 else "",
             )
         )
+    one, batched, k = corner_step()
+    out.append(
+        (
+            f"robust refinement step, README problem (nominal + {k - 1} corners, gradient)",
+            f"{batched * 1e3:.1f} ms batched vs {one * 1e3:.1f} ms one by one: {one / batched:.1f}×",
+            "",
+        )
+    )
     out.append(("`refine --help`", f"{command(['--help']):.2f} s", "≤ 0.4 s"))
     with tempfile.TemporaryDirectory() as tmp:
         t_out = command(["design", str(README_PROBLEM), "--out", tmp, "--force"])

@@ -155,3 +155,18 @@ def test_a_batch_of_designs_gives_each_designs_response_and_gradient(stem, free)
         np.testing.assert_allclose(rb.s21[b], r.s21, rtol=0, atol=1e-13)
         np.testing.assert_allclose(rb.ds11[b], r.ds11, rtol=0, atol=1e-12 * np.abs(r.ds11).max())
         np.testing.assert_allclose(rb.ds21[b], r.ds21, rtol=0, atol=1e-12 * np.abs(r.ds21).max())
+
+
+def test_per_design_adjustments_need_a_batch_and_alike_offsets():
+    from refine.circuit.builder import Adjustments, per_design
+
+    med = Microstrip(Substrate(9.8, 0.635e-3))
+    one = Adjustments(c_series_factors=(1.1, 1.1), c_shunt_factor=0.9)
+    adj = per_design([None, one])
+    assert adj.c_series_factors.shape == (2, 2) and list(adj.c_shunt_factor) == [1.0, 0.9]
+    with pytest.raises(ValueError, match="batch of designs"):
+        build("gap", med, "garg-bahl", 0.6e-3, [0.6e-3], [0.1e-3] * 2, [5e-3], None, [1e10], adj)
+    with pytest.raises(ValueError, match="loss_factor must be the same"):
+        per_design([Adjustments(loss_factor=2.0), None])
+    with pytest.raises(ValueError, match="different lengths"):
+        per_design([Adjustments(c_series_factors=(1.0,)), one])

@@ -54,11 +54,37 @@ def test_robust_refinement_raises_the_worst_corner_and_keeps_the_nominal_mask():
 def test_corner_models_are_the_stated_uncertainty():
     r = refined(problem_path("microstrip-x-band-alumina-n3"))
     f = np.linspace(9.5e9, 10.5e9, 11)
-    models, unc = corner_models(r.problem, r.layout, f, True)
-    assert len(models) == 1 + 8  # nominal, then every sign of series, shunt, radiation
-    assert models[0].adjust is None
-    factors = {(m.adjust.c_series_factors[0], m.adjust.c_shunt_factor) for m in models[1:]}
-    assert factors == {(1 + a * unc.series, 1 + b * unc.shunt) for a in (-1, 1) for b in (-1, 1)}
+    nominal, every, unc = corner_models(r.problem, r.layout, f, True)
+    assert nominal.adjust is None
+    adj = every.adjust
+    assert adj is not None and len(adj.c_shunt_factor) == 1 + 8  # nominal, every sign of three
+    columns = (adj.c_series_factors[:, 0], adj.c_shunt_factor, adj.radiation_factor)
+    factors = list(zip(*columns, strict=True))
+    assert factors[0] == (1.0, 1.0, 1.0)
+    assert set(factors[1:]) == {
+        (1 + a * unc.series, 1 + b * unc.shunt, 1 + c * unc.radiation)
+        for a in (-1, 1)
+        for b in (-1, 1)
+        for c in (-1, 1)
+    }
+
+
+def test_batched_corners_equal_the_corners_one_by_one():
+    """The per-design adjustments of one batch give each corner's S and exact gradient as the
+    corner's own model does (the batch only saves time)."""
+    r = refined(problem_path("ms-alumina-tap-10g-n3-10pct"))
+    f = np.linspace(8.5e9, 11.5e9, 31)
+    nominal, every, unc = corner_models(r.problem, r.layout, f, True)
+    p = nominal.vector(r.layout)
+    one_by_one = [None, *unc.corners(len(r.layout.gaps))]
+    batch = every.response(np.tile(p, (len(one_by_one), 1)), True)
+    for k, adj in enumerate(one_by_one):
+        alone = replace(nominal, adjust=adj).response(p, True)
+        np.testing.assert_allclose(batch.s21[k], alone.s21, rtol=0, atol=1e-12)
+        np.testing.assert_allclose(batch.s11[k], alone.s11, rtol=0, atol=1e-12)
+        scale = np.abs(alone.ds21).max()
+        np.testing.assert_allclose(batch.ds21[k], alone.ds21, rtol=0, atol=1e-10 * scale)
+    assert np.abs(batch.s21[0] - batch.s21[-1]).max() > 1e-3  # the corners do differ
 
 
 def test_uncertainty_key_is_checked(tmp_path, capsys):

@@ -79,15 +79,59 @@ class Adjustments:
     loss_factor : multiplies every line's attenuation constant.
     c_shunt_factor : multiplies every gap's shunt capacitances.
     radiation_factor : multiplies every radiation conductance (open microstrip).
+
+    For a batch of B designs the three factors of the model's uncertainty may differ per
+    design (:func:`per_design`): ``c_series_factors`` ``(B, n_gaps)``, ``c_shunt_factor`` and
+    ``radiation_factor`` ``(B,)``; the uncertainty corners of one design are then one batched
+    evaluation of B copies of it (:mod:`refine.optimise.robust`).
     """
 
-    c_series_factors: tuple[float, ...] | None = None
+    c_series_factors: tuple[float, ...] | NDArray | None = None
     gap_offsets: tuple[float, ...] | None = None
     length_offsets: tuple[float, ...] | None = None
     tap_offsets: tuple[float, float] | None = None
     loss_factor: float = 1.0
-    c_shunt_factor: float = 1.0
-    radiation_factor: float = 1.0
+    c_shunt_factor: float | NDArray = 1.0
+    radiation_factor: float | NDArray = 1.0
+
+
+def per_design(adjustments: Sequence[Adjustments | None]) -> Adjustments:
+    """One :class:`Adjustments` for a batch whose design ``b`` carries ``adjustments[b]``'s
+    series, shunt and radiation factors (None: the nominal model). The others (offsets, loss)
+    must be alike: they are the same for every design of a batch."""
+    adj = [a or Adjustments() for a in adjustments]
+    if not adj:
+        raise ValueError("per_design needs at least one design's adjustments")
+    shared = ("gap_offsets", "length_offsets", "tap_offsets", "loss_factor")
+    for name in shared:
+        if any(getattr(a, name) != getattr(adj[0], name) for a in adj[1:]):
+            raise ValueError(f"per_design: {name} must be the same for every design")
+    n_gaps = {len(a.c_series_factors) for a in adj if a.c_series_factors is not None}
+    if len(n_gaps) > 1:
+        raise ValueError(f"per_design: c_series_factors of different lengths {sorted(n_gaps)}")
+    series = None
+    if n_gaps:
+        g = n_gaps.pop()
+        series = np.array(
+            [np.ones(g) if a.c_series_factors is None else a.c_series_factors for a in adj], float
+        )
+    first = adj[0]
+    return Adjustments(
+        c_series_factors=series,
+        gap_offsets=first.gap_offsets,
+        length_offsets=first.length_offsets,
+        tap_offsets=first.tap_offsets,
+        loss_factor=first.loss_factor,
+        c_shunt_factor=np.array([float(a.c_shunt_factor) for a in adj]),
+        radiation_factor=np.array([float(a.radiation_factor) for a in adj]),
+    )
+
+
+def column(x: float | NDArray) -> Values:
+    """A per-design factor ``(B,)`` as a column ``(B, 1)`` against ``(B, nf)`` spectra; a
+    number stays a number."""
+    a = np.asarray(x, float)
+    return float(a) if a.ndim == 0 else a[:, None]
 
 
 @dataclass(frozen=True)
@@ -103,7 +147,7 @@ class GapSlot:
     resonators: tuple[int | None, int | None]
     s_model: Values
     ds_model: Values
-    c_series_factor: float
+    c_series_factor: Values  # a number, or ``(B,)`` for per-design factors
 
 
 @dataclass
@@ -197,6 +241,12 @@ def build(
         s_model = np.maximum(shrunk, floor)
         ds_model = np.where(shrunk > floor, 1.0, 0.1)
     kl = adj.loss_factor
+    if widths_a.ndim == 1 and (
+        np.ndim(adj.c_shunt_factor)
+        or np.ndim(adj.radiation_factor)
+        or (adj.c_series_factors is not None and np.ndim(adj.c_series_factors) > 1)
+    ):
+        raise ValueError("per-design adjustments need a batch of designs: widths (B, n)")
     # one design: scalars (the numbers of the optimiser's inner loop); a batch: (..., 1) columns
     batched = widths_a.ndim > 1
 
@@ -225,7 +275,7 @@ def build(
         if key not in rad_cache:
             g, zc = feed_props() if j is None else props[j]
             g_end, delta = radiation.from_line(g, zc, medium.substrate.height, f_arr)
-            k = adj.radiation_factor
+            k = column(adj.radiation_factor)
             rad_cache[key] = (k * g_end, k * delta)
         return rad_cache[key]
 
@@ -240,8 +290,9 @@ def build(
     c_series_all = np.asarray(caps.c_series)
     if adj.c_series_factors is not None:
         c_series_all = c_series_all * np.asarray(adj.c_series_factors, float)
-    c_in_all = np.asarray(caps.c_shunt_in) * adj.c_shunt_factor
-    c_out_all = np.asarray(caps.c_shunt_out) * adj.c_shunt_factor
+    shunt = column(adj.c_shunt_factor)
+    c_in_all = np.asarray(caps.c_shunt_in) * shunt
+    c_out_all = np.asarray(caps.c_shunt_out) * shunt
     els: list[cascade.Element] = []
     emap = ElementMap() if track else None
 
@@ -257,7 +308,9 @@ def build(
     ) -> None:
         s = pick(s_model, pos)
         ds = 1.0 if ds_model is None else pick(ds_model, pos)
-        factor = 1.0 if adj.c_series_factors is None else adj.c_series_factors[pos]
+        factor: Values = (
+            1.0 if adj.c_series_factors is None else np.asarray(adj.c_series_factors)[..., pos]
+        )
         c_series: Values = pick(c_series_all, pos)
         if radiates:
             c_series = c_series - 1j * np.sqrt(rad(sides[0])[0] * rad(sides[1])[0]) / omega

@@ -36,6 +36,7 @@ from refine.circuit.builder import (
     Dim,
     ElementMap,
     build,
+    column,
     ideal_elements,
     line_properties,
 )
@@ -302,10 +303,10 @@ class StripFilterModel:
         elements = [sl.element for sl in slots]
         dims = [pos[(Dim.GAP, sl.position)] for sl in slots]
         ds = np.array([sl.ds_model for sl in slots])
-        factor = np.array([sl.c_series_factor for sl in slots])
-        if ds.ndim > 1:
+        factor = np.array([sl.c_series_factor for sl in slots])  # (g,), or (g, B) per design
+        if ds.ndim > 1 and factor.ndim == 1:
             factor = factor[:, None]
-        shunt = 1.0 if self.adjust is None else self.adjust.c_shunt_factor
+        shunt = 1.0 if self.adjust is None else self.adjust.c_shunt_factor  # a number or (B,)
         for q, name in enumerate(_PI_NAMES):
             d = np.imag(caps[q][:g]) / h * ds
             acc.add_many(dims, elements, name, d * factor if q == 0 else d * shunt)
@@ -317,7 +318,7 @@ class StripFilterModel:
         elements = [m[0].element for m in moves]
         dims = [pos[(Dim.WIDTH, int(j))] for j in owners]
         factor = np.array([m[0].c_series_factor for m in moves])
-        if hw.ndim > 1:
+        if hw.ndim > 1 and factor.ndim == 1:
             factor = factor[:, None]
         for q, name in enumerate(_PI_NAMES):
             d = (np.real(caps[q][g : g + k]) - np.real(caps[q][g + k :])) / (2 * hw)
@@ -374,7 +375,7 @@ class StripFilterModel:
             self.f,
         )
         dlog_g = ((g3[m : 2 * m] - g3[2 * m :]) / (2 * hh * g3[:m]))[back]  # (n, [B,] nf)
-        k_rad = 1.0 if self.adjust is None else self.adjust.radiation_factor
+        k_rad = 1.0 if self.adjust is None else column(self.adjust.radiation_factor)
         d_delta = (k_rad * (d3[m : 2 * m] - d3[2 * m :]) / (2 * hh))[back]
         omega = 2 * np.pi * self.f
         dims, elements, spectra = [], [], []

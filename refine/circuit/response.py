@@ -17,7 +17,7 @@ from numpy.typing import ArrayLike, NDArray
 from refine import _validate as v
 from refine import validity
 from refine.circuit import cascade
-from refine.circuit.builder import Adjustments, Built, build, ideal_elements
+from refine.circuit.builder import Adjustments, Built, build, ideal_elements, per_design
 from refine.circuit.layout import Layout
 from refine.physics import calibrated, radiation
 from refine.physics.gap_fixture import comparison, load_fixture
@@ -284,14 +284,44 @@ FIXTURE_AGREEMENT = 0.05  # the calibrations' largest series difference from the
 
 
 def uncertainty_verdict(problem: Problem, layout: Layout) -> tuple[MaskResult, ModelUncertainty]:
-    """The layout's worst mask margin per region over the model-uncertainty corners."""
+    """The layout's worst mask margin per region over the model-uncertainty corners (every
+    corner in one batched evaluation on the verification grid)."""
     unc = model_uncertainty(problem, layout)
-    medium = strip_medium_for(problem)
+    corners = unc.corners(len(layout.gaps))
+    f = verification_grid(problem)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        t = cascade.s11_s21(corner_batch(problem, layout, corners, f).elements, f, problem.z_ref)
     worst: dict[str, float] = {}
     where: dict[str, float] = {}
-    for adj in unc.corners(len(layout.gaps)):
-        res = layout_verdict(problem, layout, medium, problem.gap_model, adj)
-        for k, m in res.worst.items():
-            if k not in worst or m < worst[k]:
-                worst[k], where[k] = m, res.where[k]
+    for k in range(len(corners)):
+        res = problem.mask.evaluate(f, t.s11[k], t.s21[k])
+        for name, m in res.worst.items():
+            if name not in worst or m < worst[name]:
+                worst[name], where[name] = m, res.where[name]
     return MaskResult(worst, where), unc
+
+
+def corner_batch(
+    problem: Problem, layout: Layout, corners: Sequence[Adjustments | None], f: NDArray
+) -> Built:
+    """The elements of ``layout`` once per entry of ``corners``, as one batch of designs each
+    with its own model adjustments (:func:`refine.circuit.builder.per_design`)."""
+    k = len(corners)
+
+    def tile(x: Sequence[float]) -> NDArray:
+        return np.tile(np.asarray(x, float), (k, 1))
+
+    return build(
+        layout.external,
+        strip_medium_for(problem),
+        problem.gap_model,
+        np.full(k, layout.feed_width),
+        tile(layout.widths),
+        tile(layout.gaps),
+        tile(layout.lengths),
+        None if layout.taps is None else tile(layout.taps),
+        f,
+        per_design(corners),
+        validate=False,
+    )

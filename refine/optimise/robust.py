@@ -2,15 +2,16 @@
 
 The corners are those of :func:`refine.circuit.response.model_uncertainty`: the gaps' series and
 shunt capacitance at ± their stated uncertainty and radiation at ± its spread, every
-combination (eight corners on open microstrip, four shielded). Each corner is a circuit model
-of its own (the builder's :class:`~refine.circuit.builder.Adjustments`, exact gradients); the
-nominal model and every corner are evaluated at each optimiser step and laid end to end on one
-frequency axis, each mask region of each model entering as one smooth-maximum constraint: the
+combination (eight corners on open microstrip, four shielded). Each corner is the circuit
+model with the builder's :class:`~refine.circuit.builder.Adjustments` (exact gradients); at each
+optimiser step every corner is evaluated in one batched call (B copies of the design, copy k at
+corner k: :func:`~refine.circuit.builder.per_design`) and the results are laid end to end on one
+frequency axis, each mask region of each corner entering as one smooth-maximum constraint: the
 same minimax entry, stacked mask and settings as yield centring
-(:mod:`refine.tolerance.centring`). Because the nominal model is one of the stacked copies, the
-worst margin over all of them is what is maximised; the result is kept only when, verified on
-the dense grid, it still meets the mask on the nominal model and its worst corner margin is
-higher than the start's.
+(:mod:`refine.tolerance.centring`). The nominal model's mask enters as hard constraints, so the
+worst corner margin is maximised without giving up the nominal mask; the result is kept only
+when, verified on the dense grid, it still meets the mask on the nominal model and its worst
+corner margin is higher than the start's.
 
 Robust design of this kind (maximising the worst case over a box of model parameters) is the
 usual worst-case design centring (Bandler, "Optimization of design tolerances using nonlinear
@@ -26,8 +27,9 @@ import numpy as np
 from numpy.typing import NDArray
 
 from refine import validity
+from refine.circuit.builder import Adjustments, per_design
 from refine.circuit.layout import Layout
-from refine.circuit.model import StripFilterModel, strip_model_for
+from refine.circuit.model import Response, StripFilterModel, strip_model_for
 from refine.circuit.response import (
     ModelUncertainty,
     layout_verdict,
@@ -64,17 +66,19 @@ class RobustResult:
 
 def corner_models(
     problem: Problem, layout: Layout, f: NDArray, free_widths: bool
-) -> tuple[list[StripFilterModel], ModelUncertainty]:
-    """The nominal circuit model followed by one per uncertainty corner, shaped like
-    ``layout``, on frequencies ``f``."""
+) -> tuple[StripFilterModel, StripFilterModel, ModelUncertainty]:
+    """The nominal circuit model, and one model of the nominal and every uncertainty corner at
+    once, shaped like ``layout``, on frequencies ``f``: the second evaluates a batch of
+    ``1 + len(corners)`` copies of a design, copy 0 nominal and copy ``k`` at corner ``k - 1``
+    (:func:`refine.circuit.builder.per_design`)."""
     medium = strip_medium_for(problem)
     unc = model_uncertainty(problem, layout)
-    adjust = [None, *unc.corners(len(layout.gaps))]
-    models = [
-        strip_model_for(medium, problem.gap_model, problem.z_ref, layout, f, free_widths, a)
-        for a in adjust
-    ]
-    return models, unc
+    every = per_design([None, *unc.corners(len(layout.gaps))])
+
+    def model(a: Adjustments | None) -> StripFilterModel:
+        return strip_model_for(medium, problem.gap_model, problem.z_ref, layout, f, free_widths, a)
+
+    return model(None), model(every), unc
 
 
 def robust_refine(
@@ -89,7 +93,7 @@ def robust_refine(
     if free_widths is None:
         free_widths = problem.free_widths
     f = optimiser_grid(problem.mask, layout.order)
-    models, unc = corner_models(problem, layout, f, free_widths)
+    nominal_model, every, unc = corner_models(problem, layout, f, free_widths)
     start_nominal = _nominal(problem, layout)
     start_corners, _ = uncertainty_verdict(problem, layout)
     if not (unc.series or unc.shunt or unc.radiation) or start_corners.passed:
@@ -98,42 +102,49 @@ def robust_refine(
             layout, start_nominal, start_corners, unc, start_corners.worst_margin, 0
         )
     space = layout_space(
-        fab, problem.strip_substrate.height, models[0], layout, width_range=problem.width_range
+        fab, problem.strip_substrate.height, nominal_model, layout, width_range=problem.width_range
     )
-    at_corners = models[1:]
-    nominal_model = models[0]
+    copies = 1 + len(unc.corners(len(layout.gaps)))  # the nominal design and each corner
+    last: dict[tuple[bytes, bool], Response] = {}
+
+    def at(p: NDArray, grad: bool) -> Response:
+        """The nominal design and every corner in one batched evaluation (the optimiser asks
+        for the corners' margins and the nominal constraints at the same point: one call)."""
+        for key in ((p.tobytes(), grad), (p.tobytes(), True)):
+            if key in last:
+                return last[key]
+        r = every.response(np.tile(p, (copies, 1)), grad)
+        last.clear()
+        last[(p.tobytes(), grad)] = r
+        return r
 
     def fn(p: NDArray, grad: bool):
-        rs = [m.response(p, grad) for m in at_corners]
-        s11 = np.concatenate([r.s11 for r in rs])
-        s21 = np.concatenate([r.s21 for r in rs])
-        if not grad:
+        # the corners laid end to end on the frequency axis
+        r = at(p, grad)
+        s11, s21 = r.s11[1:].reshape(-1), r.s21[1:].reshape(-1)
+        if not grad or r.ds11 is None or r.ds21 is None:
             return s11, s21, None, None
-        ds11 = np.concatenate([r.ds11 for r in rs], axis=1)
-        ds21 = np.concatenate([r.ds21 for r in rs], axis=1)
+        n_p = len(p)  # (corners, n_p, nf) -> (n_p, corners·nf)
+        ds11 = np.moveaxis(r.ds11[1:], 1, 0).reshape(n_p, -1)
+        ds21 = np.moveaxis(r.ds21[1:], 1, 0).reshape(n_p, -1)
         return s11, s21, ds11, ds21
-
-    cache: dict[bytes, tuple[NDArray, NDArray]] = {}
 
     def nominal_met(z: NDArray) -> tuple[NDArray, NDArray]:
         """The nominal model's mask as hard constraints (g <= 0), with their Jacobian in z."""
-        key = z.tobytes()
-        if key not in cache:
-            p = space.to_physical(z)
-            r = nominal_model.response(p, True)
-            g, jac = problem.mask.constraints(f, r.s11, r.s21, r.ds11, r.ds21)
-            assert jac is not None
-            cache.clear()
-            cache[key] = (g, space.chain(p, jac.T).T)
-        return cache[key]
+        p = space.to_physical(z)
+        r = at(p, True)
+        assert r.ds11 is not None and r.ds21 is not None
+        g, jac = problem.mask.constraints(f, r.s11[0], r.s21[0], r.ds11[0], r.ds21[0])
+        assert jac is not None
+        return g, space.chain(p, jac.T).T
 
     z0 = space.to_free(space.clip(nominal_model.vector(layout)))
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", validity.ModelRangeWarning)
         rec = minimax(
             space,
-            StackedMask(problem.mask, f, len(at_corners)),
-            np.tile(f, len(at_corners)),
+            StackedMask(problem.mask, f, copies - 1),
+            np.tile(f, copies - 1),
             fn,
             z0,
             Stopping(max_evaluations, None, 100.0, 1e-7),

@@ -8,7 +8,8 @@ rounds of the speed work, which move optimiser paths by round-off; then the radi
 open microstrip, after which inf-alumina-20g-n4-3pct-gap is infeasible again and the quartz case
 states a shielded housing; then the uncertainty-aware status with robust refinement, after which
 a strip design met on the nominal model but not at every model corner is "met on the nominal
-model only", and robust refinement moves the designs it can improve).
+model only", and robust refinement moves the designs it can improve; then the batched
+uncertainty corners, whose round-off moved two robust paths).
 """
 
 from __future__ import annotations
