@@ -274,6 +274,97 @@ class ShuntOpenStub:
         return out if wrt is None else {k: x for k, x in out.items() if k in wrt}
 
 
+@dataclass(frozen=True, eq=False)
+class CoupledSection:
+    """A pair of coupled lines of ``length`` (m) used as a two-port: in at one end of the first
+    line, out at the far end of the second, the other two ends open (the section of a
+    parallel-coupled filter). Each mode has its own propagation constant and impedance
+    (``gamma_even``, ``gamma_odd``, ``z_even``, ``z_odd``; per frequency), so the medium may be
+    inhomogeneous (unequal even/odd phase velocities, as on microstrip).
+
+    From the mode lines' impedance matrices (self Z coth γl, transfer Z/sinh γl) the two-port's
+    are Z11 = Z22 = (Z_e coth x_e + Z_o coth x_o)/2 and Z21 = (Z_e/sinh x_e − Z_o/sinh x_o)/2,
+    x = γl (Pozar, *Microwave Engineering*, 4th ed., §7.6, for the homogeneous case, where it
+    is Z11 = −j(Z_e + Z_o) cot θ/2, Z21 = −j(Z_e − Z_o) csc θ/2). Written without dividing by a
+    sinh (finite at every length), with Δ = Z_e sinh x_o − Z_o sinh x_e:
+
+        A = D = (Z_e cosh x_e sinh x_o + Z_o cosh x_o sinh x_e) / Δ
+        B = [(Z_e² + Z_o²) sinh x_e sinh x_o + 2 Z_e Z_o (1 + cosh x_e cosh x_o)] / (2Δ)
+        C = 2 sinh x_e sinh x_o / Δ
+
+    (derived here; AD − BC = 1). Checked against a four-port built from the two mode lines with
+    two ports left open in scikit-rf (``tests/test_coupled.py``). Derivatives for ``length``,
+    ``gamma_even``, ``gamma_odd``, ``z_even`` and ``z_odd``.
+    """
+
+    gamma_even: Values
+    gamma_odd: Values
+    z_even: Values
+    z_odd: Values
+    length: Values
+    kind: Kind = Kind.GENERAL
+
+    @cached_property
+    def _parts(self) -> tuple:
+        ln = np.asarray(self.length)
+        ce, se = _cosh_sinh(np.asarray(self.gamma_even) * ln)
+        co, so = _cosh_sinh(np.asarray(self.gamma_odd) * ln)
+        ze, zo = np.asarray(self.z_even), np.asarray(self.z_odd)
+        delta = ze * so - zo * se
+        na = ze * ce * so + zo * co * se
+        nb = 0.5 * ((ze * ze + zo * zo) * se * so + 2.0 * ze * zo * (1.0 + ce * co))
+        nc = 2.0 * se * so
+        return ce, se, co, so, ze, zo, delta, na, nb, nc
+
+    def value(self, omega: NDArray[np.float64]) -> Abcd:
+        *_, delta, na, nb, nc = self._parts
+        a = na / delta
+        return Abcd(a, nb / delta, nc / delta, a)
+
+    def derivatives(
+        self, omega: NDArray[np.float64], wrt: Collection[str] | None = None
+    ) -> dict[str, Abcd]:
+        ce, se, co, so, ze, zo, delta, na, nb, nc = self._parts
+        a, b, c = na / delta, nb / delta, nc / delta
+        z2 = ze * ze + zo * zo
+        # d(delta, na, nb, nc) with respect to x_e = γ_e l, x_o = γ_o l, z_e and z_o
+        partial = {
+            "x_even": (
+                -zo * ce,
+                ze * se * so + zo * co * ce,
+                0.5 * z2 * ce * so + ze * zo * se * co,
+                2.0 * ce * so,
+            ),
+            "x_odd": (
+                ze * co,
+                ze * ce * co + zo * so * se,
+                0.5 * z2 * se * co + ze * zo * ce * so,
+                2.0 * se * co,
+            ),
+            "z_even": (so, ce * so, ze * se * so + zo * (1.0 + ce * co), 0.0),
+            "z_odd": (-se, co * se, zo * se * so + ze * (1.0 + ce * co), 0.0),
+        }
+
+        def abcd(d: tuple) -> Abcd:
+            dd, dna, dnb, dnc = d
+            da = (dna - a * dd) / delta
+            return Abcd(da, (dnb - b * dd) / delta, (dnc - c * dd) / delta, da)
+
+        def combine(*terms: tuple[Values, tuple]) -> tuple:
+            return tuple(sum(k * t[i] for k, t in terms) for i in range(4))
+
+        ln = np.asarray(self.length)
+        ge, go = np.asarray(self.gamma_even), np.asarray(self.gamma_odd)
+        want = {
+            "length": lambda: combine((ge, partial["x_even"]), (go, partial["x_odd"])),
+            "gamma_even": lambda: combine((ln, partial["x_even"])),
+            "gamma_odd": lambda: combine((ln, partial["x_odd"])),
+            "z_even": lambda: partial["z_even"],
+            "z_odd": lambda: partial["z_odd"],
+        }
+        return {k: abcd(fn()) for k, fn in want.items() if wrt is None or k in wrt}
+
+
 # --------------------------------------------------------------------------------------------
 # Products
 # --------------------------------------------------------------------------------------------
@@ -578,6 +669,12 @@ def _values(elements: Sequence[Element], omega: NDArray[np.float64]) -> _Values:
     pis = [i for i, e in enumerate(elements) if type(e) is PiNetwork]
     vals: list[Any] = [None] * len(elements)
     shapes = [omega.shape]
+    grouped = set(lines) | set(pis)
+    for i, e in enumerate(elements):  # every other element on its own, its shape counted
+        if i not in grouped:
+            vals[i] = e.value(omega)
+            parts = vals[i] if isinstance(vals[i], Abcd) else (vals[i],)
+            shapes += [np.shape(x) for x in parts]
     for i in lines:
         e = elements[i]
         assert isinstance(e, Line)
@@ -629,9 +726,6 @@ def _values(elements: Sequence[Element], omega: NDArray[np.float64]) -> _Values:
         for j, i in enumerate(pis):
             vals[i] = Abcd(abcd[0, j], abcd[1, j], abcd[2, j], abcd[3, j])
         out.pi_parts = (cs, zs, b1, b2)
-    for i, e in enumerate(elements):
-        if vals[i] is None:
-            vals[i] = e.value(omega)
     return out
 
 

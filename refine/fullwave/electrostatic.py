@@ -242,14 +242,22 @@ def line_charge(half_edges: NDArray, eps_r: float, height: float) -> NDArray:
     infinite uniform strip (the two-dimensional problem: the x-integral of the Green's function,
     2/(2π ε0 (1+ε_r)) · [−ln ρ + (1+K) Σ (−K)^(n−1) ln sqrt(ρ² + (2nh)²)], the logarithms'
     weights summing to zero), the strip's centreline symmetry used. Lengths in units of h."""
+    return mirrored_line_charge(half_edges, eps_r, height, 1.0)
+
+
+def mirrored_line_charge(edges: NDArray, eps_r: float, height: float, mirror: float) -> NDArray:
+    """Like :func:`line_charge` for the panels ``edges`` (metres, y ≥ 0) of one strip and their
+    mirror image in y = 0 charged ``mirror`` times as much: +1 a plane of even symmetry (one
+    strip's centreline, or both strips of a coupled pair at the same voltage), −1 one of odd
+    symmetry (a coupled pair at opposite voltages, the plane an electric wall)."""
     k = (eps_r - 1.0) / (eps_r + 1.0)
-    ey = half_edges / height
+    ey = edges / height
     yf = 0.5 * (ey[1:] + ey[:-1])
     total = np.zeros((yf.size, yf.size))
-    for sy in (1.0, -1.0):
+    for sy, weight in ((1.0, 1.0), (-1.0, mirror)):
         a, b = np.minimum(sy * ey[:-1], sy * ey[1:]), np.maximum(sy * ey[:-1], sy * ey[1:])
         d1, d2 = a[None, :] - yf[:, None], b[None, :] - yf[:, None]
-        total -= log_integral(d1, d2, 0.0)
+        part = -log_integral(d1, d2, 0.0)
         coef, n = 1.0, 1
         centre, width = 0.5 * (d1 + d2), d2 - d1
         while abs(coef) > SERIES_TOL:
@@ -257,9 +265,10 @@ def line_charge(half_edges: NDArray, eps_r: float, height: float) -> NDArray:
                 term = log_integral(d1, d2, 2.0 * n)
             else:  # at the panel centre across y, as the three-dimensional solve takes it
                 term = width * 0.5 * np.log(centre * centre + (2.0 * n) ** 2)
-            total += (1.0 + k) * coef * term
+            part += (1.0 + k) * coef * term
             coef *= -k
             n += 1
+        total += weight * part
     p = total * height / (math.pi * EPS0 * (1.0 + eps_r))
     return np.linalg.solve(p, np.ones(yf.size))
 
