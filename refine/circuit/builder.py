@@ -383,6 +383,47 @@ def build(
     return Built(els, emap)
 
 
+def parallel_build(
+    medium: StripMedium,
+    gap_model: str,
+    widths: ArrayLike,
+    spacings: ArrayLike,
+    lengths: ArrayLike,
+    f: ArrayLike,
+) -> Built:
+    """The cascade elements of a parallel-coupled filter: one
+    :class:`~refine.circuit.cascade.CoupledSection` per section, input to output, with the
+    port reference planes at the outer ends of the first and last sections. ``widths``,
+    ``spacings`` and ``lengths`` are ``(..., n + 1)``; each section's even- and odd-mode
+    properties come from the medium's coupled-line model (:mod:`refine.physics.coupled`, one
+    call for every section), and its length is extended by the single strip's open-end Δl
+    (Kirschning-Jansen-Koster on microstrip, or the calibration ``gap_model`` names): each of
+    its two strips has one open end, so over the filter every resonator gets its two ends'
+    extensions. The feeds' width steps onto the first and last sections are not modelled (the
+    report says so)."""
+    from refine.synthesis.parallel import coupled_medium
+
+    f_a = v.frequencies("f", f)
+    w = v.positive_array("widths", widths)
+    s = v.positive_array("spacings", spacings)
+    ln = v.positive_array("lengths", lengths)
+    if not (w.shape[-1] == s.shape[-1] == ln.shape[-1]) or w.shape[-1] < 2:
+        raise ValueError(
+            "a parallel-coupled filter needs one width, spacing and length per section and at "
+            f"least two sections, got {w.shape[-1]}, {s.shape[-1]} and {ln.shape[-1]}"
+        )
+    cm = coupled_medium(medium)
+    cols = np.moveaxis(np.stack(np.broadcast_arrays(w, s, ln)), -1, 1)  # (3, sections, ...)
+    ge, go, ze, zo = cm.mode_properties(cols[0][..., None], cols[1][..., None], f_a)
+    dl = open_end_extensions(medium, cols[0], gap_model)
+    total = cols[2] + dl
+    els: list[cascade.Element] = [
+        cascade.CoupledSection(ge[k], go[k], ze[k], zo[k], total[k][..., None])
+        for k in range(w.shape[-1])
+    ]
+    return Built(els)
+
+
 def gap_elements(
     medium: StripMedium,
     gap_model: str,

@@ -1,4 +1,5 @@
-"""The physical layout of an end-coupled filter (all lengths in metres)."""
+"""The physical layout of a half-wave filter (all lengths in metres): end-coupled
+(:class:`Layout`) or parallel-coupled (:class:`ParallelLayout`)."""
 
 from __future__ import annotations
 
@@ -94,3 +95,48 @@ class Layout:
     def total_length(self) -> float:
         """End-to-end length of the resonators and gaps (feeds excluded)."""
         return sum(self.lengths) + sum(self.gaps)
+
+
+@dataclass(frozen=True)
+class ParallelLayout:
+    """Copper of a parallel-coupled (edge-coupled) half-wave filter, input to output: n + 1
+    coupled sections, each two equal strips side by side.
+
+    feed_width : width of the input and output feed lines.
+    widths : strip width of each section.
+    spacings : edge-to-edge spacing of the two strips of each section.
+    lengths : physical length of each section (its strips' overlap).
+
+    Resonator k (1..n) is the second strip of section k joined to the first strip of section
+    k + 1, half a wavelength end to end.
+    """
+
+    feed_width: float
+    widths: tuple[float, ...]
+    spacings: tuple[float, ...]
+    lengths: tuple[float, ...]
+
+    def __post_init__(self) -> None:
+        v.positive("layout.feed_width", self.feed_width)
+        for name in ("widths", "spacings", "lengths"):
+            vals = tuple(float(x) for x in getattr(self, name))
+            object.__setattr__(self, name, vals)
+            for i, x in enumerate(vals):
+                v.positive(f"layout.{name}[{i}]", x)
+        n = len(self.widths)
+        if n < 2 or len(self.spacings) != n or len(self.lengths) != n:
+            raise ValueError(
+                "a parallel-coupled layout needs at least two sections and one width, spacing "
+                f"and length per section: got {n} widths, {len(self.spacings)} spacings and "
+                f"{len(self.lengths)} lengths"
+            )
+
+    @property
+    def order(self) -> int:
+        """Number of resonators (one fewer than the sections)."""
+        return len(self.widths) - 1
+
+    @property
+    def total_length(self) -> float:
+        """End-to-end length along the filter's axis (sections laid end to end, feeds excluded)."""
+        return sum(self.lengths)

@@ -1,0 +1,112 @@
+"""The parallel-coupled half-wave filter's closed-form design, realisation and circuit."""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pytest
+
+from refine.circuit import cascade
+from refine.circuit.builder import parallel_build
+from refine.circuit.layout import ParallelLayout
+from refine.physics.microstrip import Microstrip
+from refine.physics.stripline import Stripline
+from refine.physics.substrate import Substrate
+from refine.synthesis.parallel import (
+    coupled_medium,
+    even_odd_impedances,
+    max_fbw,
+    realise_sections,
+    section_inverters,
+)
+from refine.synthesis.prototype import chebyshev_g
+from refine.validity import ModelRangeWarning
+
+LAMINATE = Microstrip(Substrate(3.55, 0.508e-3, 17.5e-6, 0.002, 5.8e7, 0.4e-6))
+
+
+def test_pozar_coupled_line_bandpass_example():
+    """Pozar, *Microwave Engineering*, 4th ed. (2012), §8.8, the worked coupled-line bandpass
+    filter: N = 3, 0.5 dB equal ripple, 10 % bandwidth, Z0 = 50 ohm; its table of Z0·J and of
+    the even- and odd-mode impedances (from memory): 0.3137 / 70.61 / 39.24 for the end
+    sections, 0.1187 / 56.64 / 44.77 for the inner ones."""
+    g = chebyshev_g(3, 0.5)
+    jz0 = section_inverters(g, 0.10)
+    ze, zo = even_odd_impedances(jz0, 50.0)
+    np.testing.assert_allclose(jz0, [0.3137, 0.1187, 0.1187, 0.3137], atol=6e-5)
+    np.testing.assert_allclose(ze, [70.61, 56.64, 56.64, 70.61], atol=0.006)
+    np.testing.assert_allclose(zo, [39.24, 44.77, 44.77, 39.24], atol=0.006)
+
+
+@pytest.mark.parametrize("medium", [LAMINATE, Stripline(Substrate(2.2, 1.6e-3, 0.0, 0.001))])
+def test_realised_sections_give_the_wanted_impedances(medium):
+    g = chebyshev_g(5, 0.1)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        secs = realise_sections(g, 0.1, 5.8e9, 50.0, medium)
+        cm = coupled_medium(medium)
+        for s in secs:
+            m = cm.modes(s.width, s.spacing, np.array([5.8e9]))
+            assert float(np.ravel(m.z_even)[0]) == pytest.approx(s.z_even, rel=1e-9)
+            assert float(np.ravel(m.z_odd)[0]) == pytest.approx(s.z_odd, rel=1e-9)
+            assert not s.short and s.jz0_reached == pytest.approx(s.jz0, rel=1e-8)
+    assert [s.index for s in secs] == [1, 2, 3, 4, 5, 6]
+    assert secs[0].spacing < secs[1].spacing < secs[2].spacing  # end sections couple tightest
+
+
+def test_a_spacing_below_the_shop_minimum_is_a_recorded_shortfall():
+    g = chebyshev_g(3, 0.1)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        secs = realise_sections(g, 0.2, 5.8e9, 50.0, LAMINATE, min_spacing=100e-6)
+        largest = max_fbw(g, 5.8e9, 50.0, LAMINATE, 100e-6)
+        wider = max_fbw(g, 5.8e9, 50.0, LAMINATE, 50e-6)
+    ends, inner = (secs[0], secs[-1]), secs[1:-1]
+    for s in ends:
+        assert s.short and s.spacing == 100e-6 and s.needed_spacing < 100e-6
+        assert s.jz0_reached < s.jz0  # the minimum spacing couples less than needed
+    assert not any(s.short for s in inner)
+    # the largest bandwidth the shop allows: its end sections sit at the minimum spacing
+    assert 0.03 < largest < 0.2 and wider > largest
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        at = realise_sections(g, largest, 5.8e9, 50.0, LAMINATE)
+    assert min(s.needed_spacing for s in at) == pytest.approx(100e-6, rel=1e-3)
+
+
+@pytest.mark.parametrize("fbw", [0.03, 0.1, 0.2])
+def test_closed_form_filter_passes_near_its_centre(fbw):
+    """The realised closed-form design on the laminate: its 3 dB passband centred within 2 % of
+    f0 and 1.2-1.5 times the ripple bandwidth (a 0.1 dB, N = 3 Chebyshev's 3 dB bandwidth is
+    1.39 times its ripple bandwidth: common practice, no source) before any refinement."""
+    f0 = 5.8e9
+    g = chebyshev_g(3, 0.1)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        secs = realise_sections(g, fbw, f0, 50.0, LAMINATE)
+        lay = ParallelLayout(
+            1.1e-3,
+            tuple(s.width for s in secs),
+            tuple(s.spacing for s in secs),
+            tuple(s.length for s in secs),
+        )
+        f = np.linspace(f0 * (1 - 2 * fbw), f0 * (1 + 2 * fbw), 2001)
+        t = cascade.s11_s21(
+            parallel_build(LAMINATE, "", lay.widths, lay.spacings, lay.lengths, f).elements,
+            f,
+            50.0,
+        )
+    s21 = 20 * np.log10(np.abs(t.s21))
+    band = f[s21 > s21.max() - 3.0]
+    centre = np.sqrt(band[0] * band[-1])
+    assert abs(centre / f0 - 1) < 0.02
+    assert 1.2 < (band[-1] - band[0]) / (f0 * fbw) < 1.5
+    assert lay.order == 3 and lay.total_length == pytest.approx(sum(s.length for s in secs))
+
+
+def test_parallel_layout_is_checked():
+    with pytest.raises(ValueError, match="at least two sections"):
+        ParallelLayout(1e-3, (1e-3,), (1e-4,), (5e-3,))
+    with pytest.raises(ValueError, match=r"layout\.spacings\[1\]"):
+        ParallelLayout(1e-3, (1e-3, 1e-3), (1e-4, -1e-4), (5e-3, 5e-3))
