@@ -110,3 +110,39 @@ def test_parallel_layout_is_checked():
         ParallelLayout(1e-3, (1e-3,), (1e-4,), (5e-3,))
     with pytest.raises(ValueError, match=r"layout\.spacings\[1\]"):
         ParallelLayout(1e-3, (1e-3, 1e-3), (1e-4, -1e-4), (5e-3, 5e-3))
+
+
+def test_diagnosis_compares_the_topologies_with_numbers(tmp_path):
+    """A laminate spec no end-coupled design reaches (3.55 / 0.508 mm, 100 um minimum gap, N = 3
+    at 6 %: our own scenario): the diagnosis gives every topology's largest bandwidth and
+    recommends the parallel-coupled one, in the console, the report and summary.json."""
+    import json
+
+    from conftest import problem_path
+
+    from refine.cli import main
+
+    src = problem_path("inf-pcb-gap-5g8-n3-3pct").read_text()
+    spec = src.replace("fractional_bandwidth = 0.03", "fractional_bandwidth = 0.06")
+    assert spec != src
+    path = tmp_path / "six.toml"
+    path.write_text(spec)
+    out = tmp_path / "out"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        code = main(["design", str(path), "--out", str(out)])
+    assert code != 0
+    topo = json.loads((out / "summary.json").read_text())["diagnosis"]["topologies"]
+    assert topo["recommended"] == "parallel-coupled" and topo["recommended_reaches"]
+    each = {t["topology"]: t for t in topo["each"]}
+    assert each["end-coupled, gap-fed"]["max_fractional_bandwidth"] < 0.01
+    assert 0.03 < each["end-coupled, tapped"]["max_fractional_bandwidth"] < 0.06
+    assert each["parallel-coupled"]["max_fractional_bandwidth"] >= 0.06
+    assert each["parallel-coupled"]["length_m"] < each["end-coupled, tapped"]["length_m"]
+    g = chebyshev_g(3, 0.1)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        direct = max_fbw(g, 5.8e9, 50.0, LAMINATE, 100e-6)
+    assert each["parallel-coupled"]["max_fractional_bandwidth"] == pytest.approx(direct, rel=1e-6)
+    report = (out / "report.md").read_text()
+    assert "recommended: parallel-coupled" in report

@@ -337,6 +337,24 @@ def summary(
                 for c in r.diagnosis.couplings
             ],
             "remedies": list(r.diagnosis.remedies),
+            "topologies": None
+            if r.diagnosis.topologies is None
+            else {
+                "fractional_bandwidth": r.diagnosis.topologies.fbw,
+                "recommended": r.diagnosis.topologies.recommended.name,
+                "recommended_reaches": r.diagnosis.topologies.recommended.reaches(
+                    r.diagnosis.topologies.fbw
+                ),
+                "each": [
+                    {
+                        "topology": t.name,
+                        "max_fractional_bandwidth": t.max_fbw,
+                        "length_m": t.length,
+                        "midband_loss_db": t.midband_loss_db,
+                    }
+                    for t in r.diagnosis.topologies.figures
+                ],
+            },
         },
         "warnings": warnings_,
         "notes": list(r.notes),

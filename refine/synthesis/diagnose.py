@@ -24,8 +24,10 @@ from refine import validity
 from refine.physics.strip import StripMedium
 from refine.spec.coupling import Coupling
 from refine.spec.fab import FabRules
+from refine.synthesis import topology
 from refine.synthesis.inverters import ElectricalDesign, inverter_j
 from refine.synthesis.realise import gap_inverter, tap_angle
+from refine.synthesis.topology import TopologyComparison
 
 WIDTH_FACTORS = (1.0, 1.5, 2.0, 3.0)  # resonator widths tried, as multiples of the feed width
 
@@ -57,6 +59,7 @@ class Diagnosis:
 
     couplings: tuple[CouplingCheck, ...]
     remedies: tuple[str, ...]
+    topologies: TopologyComparison | None = None  # when a coupling is out of reach
 
     @property
     def couplings_reachable(self) -> bool:
@@ -104,14 +107,15 @@ def _j_max(
     return best_j, best_w
 
 
-def max_fbw(design: ElectricalDesign, j_limits: list[float]) -> float:
-    """Largest fractional bandwidth whose J/Y0 all stay within ``j_limits`` (bisection)."""
+def max_fbw(design: ElectricalDesign, j_limits: list[float], hi: float | None = None) -> float:
+    """Largest fractional bandwidth whose J/Y0 all stay within ``j_limits`` (bisection), up to
+    ``hi`` (default: the design's own bandwidth)."""
     g = np.array(design.g)
 
     def ok(fbw: float) -> bool:
         return bool(np.all(inverter_j(g, fbw) <= np.array(j_limits)))
 
-    lo, hi = 0.0, min(design.fbw, 0.99)
+    lo, hi = 0.0, min(design.fbw if hi is None else hi, 0.99)
     if ok(hi):
         return hi
     for _ in range(60):
@@ -196,4 +200,43 @@ def diagnose(
             )
         if ends_fail and not inner_fail and external is Coupling.TAP:
             remedies.append("the tapped feed removes the end gaps; the inner ones are reachable")
+        topologies = _compare_topologies(
+            design, medium, fab, gap_model, feed_width, external, widths, limits
+        )
+        if topologies is not None:
+            remedies.append(topologies.sentence())
+        return Diagnosis(tuple(checks), tuple(remedies), topologies)
     return Diagnosis(tuple(checks), tuple(remedies))
+
+
+def _compare_topologies(
+    design: ElectricalDesign,
+    medium: StripMedium,
+    fab: FabRules,
+    gap_model: str,
+    feed_width: float,
+    external: Coupling,
+    widths: tuple[float, float] | None,
+    limits: list[float],
+) -> TopologyComparison | None:
+    """The topology comparison for a spec some coupling of which is out of reach (None when the
+    medium has no coupled-line model)."""
+    n = design.order
+    inner = [1.0, *limits[1:n], 1.0]
+    ends = list(limits)
+    if external is Coupling.TAP:  # the end gaps were not checked: their limits for the gap-fed
+        for k in (0, n):
+            ends[k] = _j_max(
+                medium, gap_model, feed_width, fab.min_gap, design.f0, True, fab, widths
+            )[0]
+    try:
+        return topology.compare(
+            design,
+            medium,
+            fab.min_gap,
+            feed_width,
+            max_fbw(design, ends, hi=topology.SEARCH_LIMIT),
+            max_fbw(design, inner, hi=topology.SEARCH_LIMIT),
+        )
+    except TypeError:  # a medium without a coupled-line model
+        return None

@@ -199,7 +199,7 @@ def max_fbw(
     lo, top = 0.0, hi
     if ok(top):
         return top
-    for _ in range(40):
+    for _ in range(30):
         mid = 0.5 * (lo + top)
         lo, top = (mid, top) if ok(mid) else (lo, mid)
     return lo
