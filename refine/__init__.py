@@ -1,5 +1,5 @@
-"""refine — design end-coupled (series-gap) half-wave line bandpass filters that meet a
-ripple/rejection mask under a fabrication shop's rules.
+"""refine — design half-wave line bandpass filters (end-coupled through series gaps, or
+parallel-coupled) that meet a ripple/rejection mask under a fabrication shop's rules.
 
 The flow is one direction: problem -> prototype -> synthesis -> realise -> cascade -> mask ->
 refiner -> outputs. See README.md for the job and DEVELOPERS.md for the layout.
@@ -11,6 +11,9 @@ Python API (what the ``refine`` command does, as plain calls)::
     seed = refine.seed(problem)              # closed-form design, realised and checked
     result = refine.design(problem, seed=seed)   # refine under the fab rules, verify
     refine.write_outputs(result, seed, "out")    # Touchstone, DXF, SVG, plots, report
+
+    # a problem with [coupling] topology = "parallel-coupled"
+    result = refine.design_parallel(problem)   # refine.optimise.parallel.ParallelResult
 
 The public names are loaded on first use (PEP 562), so that ``import refine.cli`` and
 ``refine --help`` do not pay for the numerical stack.
@@ -24,6 +27,7 @@ from typing import TYPE_CHECKING, Any
 from refine.version import VERSION as __version__
 
 if TYPE_CHECKING:
+    from refine.optimise.parallel import refine_parallel as design_parallel
     from refine.optimise.refiner import RefineResult, Status
     from refine.optimise.refiner import refine_problem as design
     from refine.optimise.seed import seed
@@ -36,6 +40,7 @@ _WHERE = {
     "RefineResult": ("refine.optimise.refiner", "RefineResult"),
     "Status": ("refine.optimise.refiner", "Status"),
     "design": ("refine.optimise.refiner", "refine_problem"),
+    "design_parallel": ("refine.optimise.parallel", "refine_parallel"),
     "load_problem": ("refine.spec.problem", "load_problem"),
     "seed": ("refine.optimise.seed", "seed"),
     "write_outputs": ("refine.outputs.files", "write_outputs"),
@@ -62,6 +67,7 @@ __all__ = [
     "Status",
     "__version__",
     "design",
+    "design_parallel",
     "load_problem",
     "seed",
     "write_outputs",

@@ -25,9 +25,10 @@ from refine.fullwave import engine, handover, spacemap, verify
 from refine.fullwave.uncertainty import MeshVerdict
 from refine.optimise import seed as job
 from refine.optimise.minimax import Stopping, Strategy
+from refine.optimise.parallel import UNCERTAINTY_SOURCE, refine_parallel
 from refine.optimise.refiner import RefineResult, Status, length_rule_unmeetable, refine_problem
 from refine.optimise.space import fab_violations
-from refine.outputs import export, plot, report
+from refine.outputs import export, parallel_files, plot, report
 from refine.outputs import files as outputs
 from refine.outputs.painters import Painters
 from refine.spec.coupling import Coupling
@@ -364,6 +365,8 @@ def _cmd_design(args: argparse.Namespace) -> int:
         raise UsageError(
             f"--max-evaluations = {args.max_evaluations} is outside the allowed range 1..10000000"
         )
+    if problem.topology == "parallel-coupled":
+        return _design_parallel(problem, args)
     if args.out is not None:
         outputs.prepare_folder(args.out, args.force)  # refuse before any work or any write
     if args.fullwave is not None:
@@ -489,6 +492,83 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
             )
             if r.status in NOMINALLY_MET:  # the field solver's verdict decides a met design
                 return FIELD_EXIT[check.verdict]
+    return STATUS_EXIT[r.status]
+
+
+def _design_parallel(problem, args: argparse.Namespace) -> int:
+    """``design`` of a parallel-coupled problem (:mod:`refine.optimise.parallel`)."""
+    unsupported = [
+        name
+        for name, on in (
+            ("--fullwave", args.fullwave is not None),
+            ("--centre-yield", args.centre_yield),
+            ("--touchstone-2", args.touchstone_2),
+            ("--dxf-r12", args.dxf_r12),
+            ("--strategy", args.strategy != Strategy.GRADIENT.value),
+        )
+        if on
+    ]
+    if unsupported:
+        raise UsageError(
+            f"{', '.join(unsupported)}: not available for a parallel-coupled problem yet "
+            "(coupling.topology = 'parallel-coupled'); allowed there: --out, --force, "
+            "--max-evaluations, --margin"
+        )
+    if args.out is not None:
+        outputs.prepare_folder(args.out, args.force, parallel_files.FILES)
+    print(f"{problem.name}: parallel-coupled half-wave filter, refining ...", flush=True)
+    r = refine_parallel(
+        problem, Stopping(max_evaluations=args.max_evaluations, target_margin_db=args.margin)
+    )
+    print()
+    print(
+        f"status: {r.status.value.upper()} — worst margin {r.verdict.worst_margin:+.2f} dB on "
+        f"the verification grid (closed-form seed {r.seed_verdict.worst_margin:+.2f} dB); "
+        f"{r.evaluations} evaluations"
+        + (
+            f" (+{r.robust_evaluations} for the model's uncertainty)"
+            if r.robust_evaluations
+            else ""
+        )
+        + f", {r.seconds:.1f} s"
+    )
+    print(
+        f"worst margin over the model-uncertainty corners {r.corners.worst_margin:+.2f} dB "
+        f"({UNCERTAINTY_SOURCE})"
+    )
+    rows = [
+        [name, f"{m:+.2f}", f"{r.corners.worst[name]:+.2f}", f"{r.verdict.where[name] / 1e9:.4f}"]
+        for name, m in r.verdict.worst.items()
+    ]
+    print(_table(["mask region", "refined (dB)", "worst corner (dB)", "worst at (GHz)"], rows))
+    lay = r.layout
+    print()
+    print(
+        _table(
+            ["section", "width (um)", "spacing (um)", "length (mm)"],
+            [
+                [str(k + 1), f"{w * 1e6:.1f}", f"{sp * 1e6:.1f}", f"{ln * 1e3:.4f}"]
+                for k, (w, sp, ln) in enumerate(
+                    zip(lay.widths, lay.spacings, lay.lengths, strict=True)
+                )
+            ],
+        )
+    )
+    for note in r.notes:
+        print(f"  note: {note}")
+    if r.violations:
+        print("FAB RULE VIOLATIONS: " + "; ".join(r.violations))
+    if args.out is not None:
+        written = parallel_files.write_parallel_outputs(r, args.out, args.force)
+        print()
+        print(f"wrote {len(written)} files to {args.out}: " + ", ".join(w.name for w in written))
+        if r.status is Status.MET_NOMINAL_ONLY:
+            print(
+                "  (they describe a design that meets the mask on the nominal circuit model, "
+                "not at every corner of its uncertainty)"
+            )
+        elif r.status is not Status.MET:
+            print("  (they describe the best design found, which does NOT meet the mask)")
     return STATUS_EXIT[r.status]
 
 

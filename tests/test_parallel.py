@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import re
 import warnings
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -10,11 +12,11 @@ import pytest
 from refine.circuit import cascade
 from refine.circuit.builder import parallel_build
 from refine.circuit.layout import ParallelLayout
+from refine.physics.coupled import coupled_medium
 from refine.physics.microstrip import Microstrip
 from refine.physics.stripline import Stripline
 from refine.physics.substrate import Substrate
 from refine.synthesis.parallel import (
-    coupled_medium,
     even_odd_impedances,
     max_fbw,
     realise_sections,
@@ -146,3 +148,123 @@ def test_diagnosis_compares_the_topologies_with_numbers(tmp_path):
     assert each["parallel-coupled"]["max_fractional_bandwidth"] == pytest.approx(direct, rel=1e-6)
     report = (out / "report.md").read_text()
     assert "recommended: parallel-coupled" in report
+
+
+PARALLEL_PROBLEMS = sorted((Path(__file__).parent.parent / "problems" / "parallel").glob("*.toml"))
+
+
+def _expected(path: Path) -> str:
+    m = re.search(r"Expected status: ([a-z ]+)", path.read_text())
+    assert m is not None, f"{path.name} states no expected status"
+    return m.group(1).strip()
+
+
+def test_parallel_problem_set():
+    """At least eight bundled parallel-coupled problems, laminate, alumina and stripline, 3-30 %,
+    orders 3-7, one deliberately infeasible, each with provenance and an expected status."""
+    from refine import load_problem
+
+    assert len(PARALLEL_PROBLEMS) >= 8
+    probs = [load_problem(p) for p in PARALLEL_PROBLEMS]
+    assert all(p.topology == "parallel-coupled" for p in probs)
+    assert {p.medium for p in probs} == {"microstrip", "stripline"}
+    assert {p.substrate.eps_r for p in probs} >= {3.55, 4.4, 9.8}
+    assert min(p.fbw for p in probs) <= 0.06 and max(p.fbw for p in probs) >= 0.3
+    assert min(p.order for p in probs) == 3 and max(p.order for p in probs) >= 7
+    assert "infeasible" in {_expected(p) for p in PARALLEL_PROBLEMS}
+    for p in PARALLEL_PROBLEMS:
+        assert "Provenance:" in p.read_text()
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("path", PARALLEL_PROBLEMS, ids=lambda p: p.stem)
+def test_parallel_problem_outcome(path):
+    from refine import design_parallel, load_problem
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        r = design_parallel(load_problem(path))
+    assert r.status.value == _expected(path)
+    if r.met:
+        assert not r.violations and r.verdict.passed
+
+
+def test_laminate_spec_infeasible_end_coupled_is_handed_over_parallel_coupled(tmp_path):
+    """The issue's case: a 6 % laminate spec no end-coupled design reaches (the diagnosis says
+    so and recommends parallel-coupled) refines as a parallel-coupled filter that meets its
+    mask at every corner of the coupled-line model's uncertainty, under the fab rules, and is
+    handed over: layout, Touchstone, artwork (five copper pieces: feed and first strip,
+    three resonators, last strip and feed), picture, report."""
+    import json
+
+    from refine.cli import main
+    from refine.outputs import artwork
+
+    path = Path(__file__).parent.parent / "problems" / "parallel" / "pcb-5g8-n3-6pct.toml"
+    out = tmp_path / "out"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        code = main(["design", str(path), "--out", str(out)])
+    assert code == 0
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["status"] == "met" and summary["meets_mask"]
+    assert summary["model_uncertainty"]["worst_corner_margin_db"] > 0
+    assert summary["fab_violations"] == []
+    lay = summary["layout"]
+    assert lay["topology"] == "parallel-coupled" and len(lay["widths"]) == 4
+    assert min(lay["spacings"]) >= 100e-6 - 1e-12
+    for name in ("layout.json", "response.s2p", "layout.dxf", "layout.gds", "response.png"):
+        assert (out / name).stat().st_size > 0
+    assert "meets the mask at every corner" in (out / "report.md").read_text()
+    layout = ParallelLayout(
+        lay["feed_width"], lay["widths"], lay["spacings"], lay["lengths"], lay["feed_stub"]
+    )
+    assert len(artwork.artwork(layout).copper) == 5
+    s2p = (out / "response.s2p").read_text()
+    assert "parallel-coupled" in s2p
+
+
+def test_parallel_problem_options_are_checked(tmp_path, capsys):
+    from refine.cli import main
+
+    src = Path(__file__).parent.parent / "problems" / "parallel" / "pcb-5g8-n3-6pct.toml"
+    text = src.read_text()
+    bad = tmp_path / "tap.toml"
+    bad.write_text(
+        text.replace(
+            'topology = "parallel-coupled"', 'topology = "parallel-coupled"\nexternal = "tap"'
+        )
+    )
+    assert main(["design", str(bad)]) == 2
+    assert "coupling.external" in capsys.readouterr().err
+    odd = tmp_path / "odd.toml"
+    odd.write_text(text.replace('"parallel-coupled"', '"side-by-side"'))
+    assert main(["design", str(odd)]) == 2
+    err = capsys.readouterr().err
+    assert "coupling.topology" in err and "side-by-side" in err and "parallel-coupled" in err
+    assert main(["design", str(src), "--centre-yield"]) == 2
+    assert "--centre-yield: not available for a parallel-coupled problem" in capsys.readouterr().err
+    from refine import design, load_problem
+
+    with pytest.raises(ValueError, match="design_parallel"):
+        design(load_problem(src))
+
+
+def test_corner_clearances_follow_the_drawn_copper():
+    """The clearance figures are the distances in the drawn copper: a resonator whose second
+    half is wider than its first by twice the spacing touches the row above."""
+    from refine.optimise.parallel import clearances
+    from refine.outputs.export import parallel_copper
+
+    lay = ParallelLayout(1.1e-3, (0.5e-3, 0.9e-3, 0.5e-3), (0.2e-3, 0.2e-3, 0.2e-3), (7e-3,) * 3)
+    c = clearances(lay.feed_width, np.array(lay.widths), np.array(lay.spacings))
+    strips = parallel_copper(lay)
+    first = next(s for s in strips if s.name == "section 1 first strip")
+    res1 = [s for s in strips if s.name == "resonator 1"]
+    wider = max(res1, key=lambda s: s.y1 - s.y0)
+    assert c[0] == pytest.approx(first.y0 - wider.y1, abs=1e-12)  # 0.25 + 0.2 - 0.45 mm
+    assert c[0] == pytest.approx(0.0, abs=1e-12)
+    with pytest.raises(Exception, match="touch or overlap"):
+        from refine.outputs import artwork
+
+        artwork.artwork(lay)

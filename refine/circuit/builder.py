@@ -35,6 +35,7 @@ which dimension moves which element, for the exact gradient of :mod:`refine.circ
 from __future__ import annotations
 
 import enum
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 
@@ -45,6 +46,7 @@ from refine import _validate as v
 from refine._typing import Values
 from refine.circuit import cascade
 from refine.physics import radiation
+from refine.physics.coupled import coupled_medium
 from refine.physics.ideal import IdealTEM
 from refine.physics.microstrip import Microstrip
 from refine.physics.strip import (
@@ -383,6 +385,24 @@ def build(
     return Built(els, emap)
 
 
+def scale_modes(
+    props: tuple[NDArray, NDArray, NDArray, NDArray],
+    factors: tuple[float, float, float, float] | None,
+) -> tuple[NDArray, NDArray, NDArray, NDArray]:
+    """(γ_even, γ_odd, z_even, z_odd) with the impedances times ``factors[0:2]`` and the
+    effective permittivities times ``factors[2:4]`` (β ∝ sqrt ε_eff; the attenuation kept)."""
+    if factors is None:
+        return props
+    ge, go, ze, zo = props
+    fze, fzo, fee, feo = factors
+    return (
+        ge.real + 1j * ge.imag * math.sqrt(fee),
+        go.real + 1j * go.imag * math.sqrt(feo),
+        ze * fze,
+        zo * fzo,
+    )
+
+
 def parallel_build(
     medium: StripMedium,
     gap_model: str,
@@ -390,6 +410,8 @@ def parallel_build(
     spacings: ArrayLike,
     lengths: ArrayLike,
     f: ArrayLike,
+    factors: tuple[float, float, float, float] | None = None,
+    feed_stub: float = 0.0,
 ) -> Built:
     """The cascade elements of a parallel-coupled filter: one
     :class:`~refine.circuit.cascade.CoupledSection` per section, input to output, with the
@@ -400,9 +422,10 @@ def parallel_build(
     (Kirschning-Jansen-Koster on microstrip, or the calibration ``gap_model`` names): each of
     its two strips has one open end, so over the filter every resonator gets its two ends'
     extensions. The feeds' width steps onto the first and last sections are not modelled (the
-    report says so)."""
-    from refine.synthesis.parallel import coupled_medium
-
+    report says so). ``factors`` scale every section's (Z_even, Z_odd, ε_eff even, ε_eff odd)
+    (:func:`scale_modes`): a corner of the coupled-line model's uncertainty. A ``feed_stub``
+    adds that length of single strip at the end section's width before the first section and
+    after the last (the port reference planes then sit at the feeds' width steps)."""
     f_a = v.frequencies("f", f)
     w = v.positive_array("widths", widths)
     s = v.positive_array("spacings", spacings)
@@ -414,13 +437,19 @@ def parallel_build(
         )
     cm = coupled_medium(medium)
     cols = np.moveaxis(np.stack(np.broadcast_arrays(w, s, ln)), -1, 1)  # (3, sections, ...)
-    ge, go, ze, zo = cm.mode_properties(cols[0][..., None], cols[1][..., None], f_a)
+    ge, go, ze, zo = scale_modes(
+        cm.mode_properties(cols[0][..., None], cols[1][..., None], f_a), factors
+    )
     dl = open_end_extensions(medium, cols[0], gap_model)
     total = cols[2] + dl
     els: list[cascade.Element] = [
         cascade.CoupledSection(ge[k], go[k], ze[k], zo[k], total[k][..., None])
         for k in range(w.shape[-1])
     ]
+    if feed_stub > 0.0:
+        for at, wk in ((0, cols[0][0]), (len(els) + 1, cols[0][-1])):
+            g1, z1 = line_properties(medium, wk[..., None], f_a)
+            els.insert(at, cascade.Line(g1, z1, feed_stub))
     return Built(els)
 
 

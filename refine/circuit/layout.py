@@ -106,6 +106,9 @@ class ParallelLayout:
     widths : strip width of each section.
     spacings : edge-to-edge spacing of the two strips of each section.
     lengths : physical length of each section (its strips' overlap).
+    feed_stub : length of strip at the end section's width between each feed and its section
+        (the feed's width step sits that far out, so that a feed wider than the section's
+        strip keeps its distance from the next row of copper); 0 for none.
 
     Resonator k (1..n) is the second strip of section k joined to the first strip of section
     k + 1, half a wavelength end to end.
@@ -115,6 +118,7 @@ class ParallelLayout:
     widths: tuple[float, ...]
     spacings: tuple[float, ...]
     lengths: tuple[float, ...]
+    feed_stub: float = 0.0
 
     def __post_init__(self) -> None:
         v.positive("layout.feed_width", self.feed_width)
@@ -123,6 +127,7 @@ class ParallelLayout:
             object.__setattr__(self, name, vals)
             for i, x in enumerate(vals):
                 v.positive(f"layout.{name}[{i}]", x)
+        v.real_in_range("layout.feed_stub", self.feed_stub, 0.0, math.inf)
         n = len(self.widths)
         if n < 2 or len(self.spacings) != n or len(self.lengths) != n:
             raise ValueError(
@@ -138,5 +143,5 @@ class ParallelLayout:
 
     @property
     def total_length(self) -> float:
-        """End-to-end length along the filter's axis (sections laid end to end, feeds excluded)."""
-        return sum(self.lengths)
+        """End-to-end length along the filter's axis (sections and feed stubs, feeds excluded)."""
+        return sum(self.lengths) + 2.0 * self.feed_stub

@@ -39,10 +39,13 @@ from refine.circuit.builder import (
     column,
     ideal_elements,
     line_properties,
+    parallel_build,
+    scale_modes,
 )
-from refine.circuit.layout import Layout
+from refine.circuit.layout import Layout, ParallelLayout
 from refine.physics import radiation
 from refine.physics.constants import C0
+from refine.physics.coupled import coupled_medium
 from refine.physics.microstrip import Microstrip
 from refine.physics.strip import (
     StripMedium,
@@ -491,6 +494,141 @@ class _Chain:
         return out[0], out[1]
 
 
+_SECTION_NAMES = ("gamma_even", "gamma_odd", "z_even", "z_odd")
+
+
+@dataclass
+class ParallelFilterModel:
+    """Parallel-coupled filter on a strip medium (:func:`refine.circuit.builder.parallel_build`):
+    parameters ``p`` = spacings s_1..s_n+1, lengths l_1..l_n+1, widths w_1..w_n+1 (SI).
+
+    Gradient: lengths exactly through the cascade; widths and spacings through each section's
+    even/odd γ and impedance (central differences, relative step 1e-6, all sections and steps in
+    one call of the coupled-line model) and, for widths, the open-end extension, chained
+    through the cascade's analytic derivatives. One design at a time (a batch is evaluated
+    design by design)."""
+
+    medium: StripMedium
+    gap_model: str
+    z_ref: float
+    order: int
+    feed_width: float
+    f: NDArray[np.float64]
+    #: factors on (Z_even, Z_odd, ε_eff even, ε_eff odd) of every section: a corner of the
+    #: coupled-line model's uncertainty (None: the nominal model)
+    factors: tuple[float, float, float, float] | None = None
+    feed_stub: float = 0.0  # single strip at the end sections' widths beyond them (fixed)
+    dims: list[tuple[Dim, int]] = field(init=False)
+    names: list[str] = field(init=False)
+
+    def __post_init__(self) -> None:
+        m = self.order + 1
+        self.dims = (
+            [(Dim.GAP, k) for k in range(m)]
+            + [(Dim.LENGTH, k) for k in range(m)]
+            + [(Dim.WIDTH, k) for k in range(m)]
+        )
+        self.names = [
+            {Dim.GAP: "spacing", Dim.LENGTH: "length", Dim.WIDTH: "width"}[kind] + f" {k + 1}"
+            for kind, k in self.dims
+        ]
+
+    @property
+    def sections(self) -> int:
+        return self.order + 1
+
+    def split(self, p: NDArray) -> tuple[NDArray, NDArray, NDArray]:
+        """Spacings, lengths and widths of ``p``."""
+        m = self.sections
+        return p[..., :m], p[..., m : 2 * m], p[..., 2 * m :]
+
+    def vector(self, layout: ParallelLayout) -> NDArray:
+        return np.concatenate(
+            [np.asarray(x, float) for x in (layout.spacings, layout.lengths, layout.widths)]
+        )
+
+    def layout(self, p: NDArray) -> ParallelLayout:
+        s, ln, w = self.split(np.asarray(p, float))
+        return ParallelLayout(self.feed_width, tuple(w), tuple(s), tuple(ln), self.feed_stub)
+
+    def response(self, p: NDArray, gradient: bool = False) -> Response:
+        """S11, S21 ``(nf,)`` and, with ``gradient``, their derivatives ``(n_params, nf)``;
+        a batch ``(B, n_params)`` gives ``(B, nf)`` and ``(B, n_params, nf)``."""
+        p = np.asarray(p, float)
+        if p.ndim == 2:
+            rs = [self.response(q, gradient) for q in p]
+            if not gradient:
+                return Response(np.stack([r.s11 for r in rs]), np.stack([r.s21 for r in rs]))
+            return Response(
+                np.stack([r.s11 for r in rs]),
+                np.stack([r.s21 for r in rs]),
+                np.stack([r.ds11 for r in rs]),  # type: ignore[misc]
+                np.stack([r.ds21 for r in rs]),  # type: ignore[misc]
+            )
+        s, ln, w = self.split(p)
+        m = self.sections
+        with validity.unchecked():
+            if not gradient:
+                chain = parallel_build(
+                    self.medium, self.gap_model, w, s, ln, self.f, self.factors, self.feed_stub
+                ).elements
+                t = cascade.s11_s21(chain, self.f, self.z_ref)
+                return Response(t.s11, t.s21)
+            hw, hs = _FD * w, _FD * s
+            # nominal, width up/down, spacing up/down: 5 m sections in one model call
+            ws = np.concatenate([w, w + hw, w - hw, w, w])
+            ss = np.concatenate([s, s, s, s + hs, s - hs])
+            props = scale_modes(
+                coupled_medium(self.medium).mode_properties(ws[:, None], ss[:, None], self.f),
+                self.factors,
+            )
+            dl3 = open_end_extensions(
+                self.medium, np.concatenate([w, w + hw, w - hw]), self.gap_model
+            )
+            dl, ddl = dl3[:m], (dl3[m : 2 * m] - dl3[2 * m :]) / (2 * hw)
+            nominal = [x[:m] for x in props]
+            ge, go, ze, zo = nominal
+            els: list[cascade.Element] = [
+                cascade.CoupledSection(ge[k], go[k], ze[k], zo[k], ln[k] + dl[k]) for k in range(m)
+            ]
+            wrt = {"length", *_SECTION_NAMES}
+            first = 0
+            if self.feed_stub > 0.0:  # the stubs follow the end sections' widths
+                ends = np.array([w[0], w[0] + hw[0], w[0] - hw[0], w[-1], w[-1] + hw[-1]])
+                ends = np.append(ends, w[-1] - hw[-1])
+                g1, z1 = line_properties(self.medium, ends[:, None], self.f)
+                els.insert(0, cascade.Line(g1[0], z1[0], self.feed_stub))
+                els.append(cascade.Line(g1[3], z1[3], self.feed_stub))
+                wrt |= {"gamma", "z_c"}
+                first = 1
+            g = cascade.s11_s21_gradient(els, self.f, self.z_ref, wrt)
+        ds11 = np.zeros((3 * m, self.f.size), complex)
+        ds21 = np.zeros((3 * m, self.f.size), complex)
+        for k in range(m):
+            d11, d21 = g.ds11[k + first], g.ds21[k + first]
+            # lengths
+            ds11[m + k], ds21[m + k] = d11["length"], d21["length"]
+            # widths: the mode properties and the open-end extension
+            ds11[2 * m + k] = d11["length"] * ddl[k]
+            ds21[2 * m + k] = d21["length"] * ddl[k]
+            for q, name in enumerate(_SECTION_NAMES):
+                x = props[q]
+                dw = (x[m + k] - x[2 * m + k]) / (2 * hw[k])
+                dsp = (x[3 * m + k] - x[4 * m + k]) / (2 * hs[k])
+                ds11[2 * m + k] += d11[name] * dw
+                ds21[2 * m + k] += d21[name] * dw
+                ds11[k] += d11[name] * dsp
+                ds21[k] += d21[name] * dsp
+        if first:
+            for e, (row, base) in ((0, (2 * m, 0)), (len(els) - 1, (3 * m - 1, 3))):
+                k = 0 if e == 0 else m - 1
+                for name, x in (("gamma", g1), ("z_c", z1)):
+                    d = (x[base + 1] - x[base + 2]) / (2 * hw[k])
+                    ds11[row] += g.ds11[e][name] * d
+                    ds21[row] += g.ds21[e][name] * d
+        return Response(g.s11, g.s21, ds11, ds21)
+
+
 @dataclass
 class IdealFilterModel:
     """End-coupled filter on ideal elements: series capacitances and electrical lengths at f0."""
@@ -555,6 +693,7 @@ def strip_model_for(
 
 __all__ = [
     "IdealFilterModel",
+    "ParallelFilterModel",
     "Response",
     "StripFilterModel",
     "strip_model_for",

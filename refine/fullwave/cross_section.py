@@ -27,7 +27,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from refine import _validate as v
-from refine.fullwave.electrostatic import GRADING, _graded_sizes, mirrored_line_charge
+from refine.fullwave.electrostatic import GRADING, graded_sizes, mirrored_line_charge
 from refine.fullwave.waves import richardson
 from refine.physics.constants import C0
 
@@ -56,7 +56,7 @@ def strip_edges(x0: float, width: float, first: float, largest: float) -> NDArra
     :data:`~refine.fullwave.electrostatic.GRADING`) from ``first`` at both edges up to
     ``largest``, uniform in the middle."""
     half = 0.5 * width
-    sizes = _graded_sizes(half, first, largest, GRADING)
+    sizes = graded_sizes(half, first, largest, GRADING)
     rest = half - sum(sizes)
     n_rest = max(1, math.ceil(rest / largest - 1e-9))
     one_side = sizes + [rest / n_rest] * n_rest  # from an edge to the middle

@@ -93,7 +93,7 @@ class Panels:
         return np.stack([x1.ravel(), x2.ravel(), y1.ravel(), y2.ravel()], -1)
 
 
-def _graded_sizes(span: float, first: float, largest: float, ratio: float) -> list[float]:
+def graded_sizes(span: float, first: float, largest: float, ratio: float) -> list[float]:
     sizes: list[float] = []
     d = first
     while d < largest and sum(sizes) + d < span:
@@ -107,7 +107,7 @@ def half_width_edges(
 ) -> NDArray:
     """Edges on [0, W/2] (0 = centreline): sizes grow geometrically from ``first`` at the strip
     edge W/2 inwards, up to ``largest``, uniform towards the centreline."""
-    sizes = _graded_sizes(half_width, first, largest, ratio)
+    sizes = graded_sizes(half_width, first, largest, ratio)
     rest = half_width - sum(sizes)
     n_rest = max(1, math.ceil(rest / largest - 1e-9))
     steps = [rest / n_rest] * n_rest + sizes[::-1]
@@ -289,7 +289,7 @@ class Mesh:
     def along(self, length: float) -> NDArray:
         """Edges on [0, length]: fine at 0 (the discontinuity), growing to the largest size,
         then uniform."""
-        sizes = _graded_sizes(length, self.fine, self.largest, GRADING)
+        sizes = graded_sizes(length, self.fine, self.largest, GRADING)
         rest = length - sum(sizes)
         n_rest = max(1, math.ceil(rest / self.largest - 1e-9))
         return np.concatenate([[0.0], np.cumsum(sizes + [rest / n_rest] * n_rest)])

@@ -176,6 +176,12 @@ def refine_problem(
     ``progress(evaluations, best_worst_margin_db)`` is called after every model evaluation.
     With ``free_widths`` False the resonators keep the seed's width (the z_ref line width);
     None follows the problem's ``[resonators] width``."""
+    if problem.topology != "end-coupled":
+        raise ValueError(
+            f"{problem.name}: coupling.topology = {problem.topology!r}: refine_problem designs "
+            "end-coupled filters; use refine.design_parallel (refine.optimise.parallel) for a "
+            "parallel-coupled one"
+        )
     if free_widths is None:
         free_widths = problem.free_widths
     stopping = stopping or Stopping()

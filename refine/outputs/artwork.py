@@ -1,7 +1,8 @@
 """Fab artwork: the layout's copper as one clean set of polygons, etch-compensated, with a
 board outline and the ports' reference planes, for the formats shops take.
 
-* **Copper**: the named rectangles of :func:`refine.outputs.export.copper`, grown by the shop's
+* **Copper**: the named rectangles of :func:`refine.outputs.export.copper` (a parallel-coupled
+  layout: :func:`refine.outputs.export.parallel_copper`), grown by the shop's
   etch bias on every edge (mitred corners: a rectangle stays a rectangle) and merged where they
   touch or overlap (shapely's union), so a tapped feed and its resonator are one polygon and no
   two output shapes touch. A gap narrower than twice the bias would close: refused.
@@ -11,7 +12,8 @@ board outline and the ports' reference planes, for the formats shops take.
 * **Board outline**: the copper's bounding box grown by ``margin`` (default five feed widths) on
   every side, for the shop to cut to.
 * **Ports**: a marker line across each feed at its reference plane (the outer edge of an end
-  gap, or the tap's junction with its resonator), on a layer of its own.
+  gap, the tap's junction with its resonator, or a parallel-coupled filter's outer section
+  ends), on a layer of its own.
 
 Formats: Gerber X2 (one file per layer, with file attributes; gerber-writer), GDSII (layers 1
 copper, 2 outline, 3 ports; gdstk), a KiCad footprint with the copper as custom pads (kiutils),
@@ -26,12 +28,13 @@ from dataclasses import dataclass
 from pathlib import Path
 from xml.sax.saxutils import escape as xml_escape
 
-from refine.circuit.layout import Layout
+from refine.circuit.layout import Layout, ParallelLayout
 from refine.outputs.export import (
     GENERATOR,
     Strip,
     copper,
     one_line,
+    parallel_copper,
     write_atomic,
     write_text_atomic,
 )
@@ -82,31 +85,38 @@ def _rounded(x: float) -> float:
     return round(x / RESOLUTION) * RESOLUTION
 
 
-def artwork(layout: Layout, etch_bias: float = 0.0, margin: float | None = None) -> Artwork:
-    """The layout's artwork (see the module docstring); ``etch_bias`` in metres per edge."""
+def artwork(
+    layout: Layout | ParallelLayout, etch_bias: float = 0.0, margin: float | None = None
+) -> Artwork:
+    """The layout's artwork (see the module docstring); ``etch_bias`` in metres per edge. A
+    parallel-coupled layout's copper is :func:`~refine.outputs.export.parallel_copper`."""
     from shapely import Polygon, box
     from shapely.geometry.polygon import orient
     from shapely.ops import unary_union
 
     if not etch_bias >= 0.0:
         raise ArtworkError(f"etch_bias = {etch_bias!r} m must be >= 0")
-    smallest = min(layout.gaps) if layout.gaps else float("inf")
+    gaps = layout.spacings if isinstance(layout, ParallelLayout) else layout.gaps
+    smallest = min(gaps) if gaps else float("inf")
     if 2.0 * etch_bias >= smallest:
         raise ArtworkError(
             f"etch_bias = {etch_bias * 1e6:.3g} um per edge closes the {smallest * 1e6:.3g} um gap "
             f"(the drawn gap would be {(smallest - 2 * etch_bias) * 1e6:.3g} um); allowed: below "
             f"half the smallest gap, {smallest * 0.5e6:.3g} um"
         )
-    strips = copper(layout)
+    strips = parallel_copper(layout) if isinstance(layout, ParallelLayout) else copper(layout)
     b = etch_bias
     shapes = [box(s.x0 - b, s.y0 - b, s.x1 + b, s.y1 + b) for s in strips]
     merged = unary_union(shapes)
     polys: list[Polygon] = list(getattr(merged, "geoms", [merged]))
-    expected = len(strips) if layout.external is Coupling.GAP else layout.order
+    if isinstance(layout, ParallelLayout):  # feed + first strip, n resonators, last + feed
+        expected = layout.order + 2
+    else:
+        expected = len(strips) if layout.external is Coupling.GAP else layout.order
     if len(polys) != expected:
         raise ArtworkError(
-            f"the copper merged into {len(polys)} pieces, expected {expected}: "
-            f"etch_bias = {b * 1e6:.3g} um closes a gap"
+            f"the copper merged into {len(polys)} pieces, expected {expected}: two strips "
+            f"touch or overlap (etch_bias = {b * 1e6:.3g} um per edge)"
         )
     out = []
     for poly in sorted(polys, key=lambda p: (p.bounds[0], p.bounds[1])):
@@ -119,14 +129,14 @@ def artwork(layout: Layout, etch_bias: float = 0.0, margin: float | None = None)
     return Artwork(tuple(out), outline, _ports(layout, strips), b)
 
 
-def _ports(layout: Layout, strips: list[Strip]) -> tuple[Port, ...]:
-    wf = layout.feed_width
+def _ports(layout: Layout | ParallelLayout, strips: list[Strip]) -> tuple[Port, ...]:
     feeds = {s.name: s for s in strips if s.name.startswith("feed")}
-    if layout.external is Coupling.GAP:  # the reference planes: the feeds' inner ends
+    if isinstance(layout, ParallelLayout) or layout.external is Coupling.GAP:
+        # the reference planes: the feeds' inner ends
         fi, fo = feeds["feed in"], feeds["feed out"]
         return (
-            Port("port 1", (fi.x1, -wf / 2), (fi.x1, wf / 2)),
-            Port("port 2", (fo.x0, -wf / 2), (fo.x0, wf / 2)),
+            Port("port 1", (fi.x1, fi.y0), (fi.x1, fi.y1)),
+            Port("port 2", (fo.x0, fo.y0), (fo.x0, fo.y1)),
         )
     out = []
     for k, name in enumerate(("feed in", "feed out")):  # at the tap: the feeds' upper ends
@@ -382,7 +392,7 @@ FILES = (
 
 def write_artwork(
     folder: str | Path,
-    layout: Layout,
+    layout: Layout | ParallelLayout,
     etch_bias: float = 0.0,
     title: str = "",
     dxf_version: str = "R2010",

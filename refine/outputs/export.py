@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from refine.circuit.layout import Layout
+from refine.circuit.layout import Layout, ParallelLayout
 from refine.spec.coupling import Coupling
 from refine.version import VERSION
 
@@ -106,6 +106,20 @@ def write_touchstone(
 # --------------------------------------------------------------------------------------------
 # Layout JSON
 # --------------------------------------------------------------------------------------------
+
+
+def parallel_layout_dict(layout: ParallelLayout) -> dict:
+    """A parallel-coupled layout in SI metres: ``topology``, the feed width and, per coupled
+    section, its strip width, edge-to-edge spacing and length."""
+    return {
+        "units": "m",
+        "topology": "parallel-coupled",
+        "feed_width": layout.feed_width,
+        "widths": list(layout.widths),
+        "spacings": list(layout.spacings),
+        "lengths": list(layout.lengths),
+        "feed_stub": layout.feed_stub,
+    }
 
 
 def layout_dict(layout: Layout) -> dict:
@@ -236,6 +250,44 @@ def copper(layout: Layout, feed_length: float | None = None) -> list[Strip]:
     w0, wn = layout.widths[0], layout.widths[-1]
     out.append(Strip(x_in - wf / 2, -w0 / 2 - fl, x_in + wf / 2, -w0 / 2, "feed in"))
     out.append(Strip(x_out - wf / 2, -wn / 2 - fl, x_out + wf / 2, -wn / 2, "feed out"))
+    return out
+
+
+def parallel_copper(layout: ParallelLayout, feed_length: float | None = None) -> list[Strip]:
+    """Copper rectangles of a parallel-coupled layout, input at the left on y = 0.
+
+    Section k's two strips overlap over its length, the second one (s_k + W_k) centre to centre
+    below the first; resonator k is section k's second strip and section k + 1's first strip
+    end to end on one centre line (a width step where the sections' widths differ). The feeds
+    continue the first section's first strip to the left and the last section's second strip
+    to the right, each through its stub of the end section's width (``feed_stub`` long).
+    """
+    fl = feed_length if feed_length is not None else 4.0 * layout.feed_width
+    wf = layout.feed_width
+    m = len(layout.widths)
+    y = [0.0]  # centre lines: the input row, then one per resonator, then the output row
+    for w, s in zip(layout.widths, layout.spacings, strict=True):
+        y.append(y[-1] - (w + s))
+    x = [0.0]
+    for ln in layout.lengths:
+        x.append(x[-1] + ln)
+    st = layout.feed_stub
+    out = [Strip(-fl - st, -wf / 2, -st, wf / 2, "feed in")]
+    w0 = layout.widths[0]
+    if st > 0.0:
+        out.append(Strip(-st, -w0 / 2, 0.0, w0 / 2, "feed in stub"))
+    out.append(Strip(0.0, -w0 / 2, x[1], w0 / 2, "section 1 first strip"))
+    for k in range(1, m):  # resonator k: section k's second strip, section k+1's first strip
+        wa, wb = layout.widths[k - 1], layout.widths[k]
+        yc = y[k]
+        out.append(Strip(x[k - 1], yc - wa / 2, x[k], yc + wa / 2, f"resonator {k}"))
+        out.append(Strip(x[k], yc - wb / 2, x[k + 1], yc + wb / 2, f"resonator {k}"))
+    wl = layout.widths[-1]
+    yl = y[m]
+    out.append(Strip(x[m - 1], yl - wl / 2, x[m], yl + wl / 2, f"section {m} second strip"))
+    if st > 0.0:
+        out.append(Strip(x[m], yl - wl / 2, x[m] + st, yl + wl / 2, "feed out stub"))
+    out.append(Strip(x[m] + st, yl - wf / 2, x[m] + st + fl, yl + wf / 2, "feed out"))
     return out
 
 

@@ -58,6 +58,7 @@ from refine import _validate as v
 from refine import validity
 from refine.physics.constants import C0, ETA0
 from refine.physics.microstrip import (
+    Microstrip,
     hammerstad_jensen_eps_eff,
     hammerstad_jensen_z01,
     hammerstad_roughness_factor,
@@ -65,6 +66,7 @@ from refine.physics.microstrip import (
     kirschning_jansen_eps_eff,
     surface_resistance,
 )
+from refine.physics.stripline import Stripline
 from refine.physics.substrate import Substrate
 
 #: Kirschning & Jansen's stated range for coupled microstrip
@@ -290,8 +292,6 @@ class CoupledStripline:
         strip's (:class:`~refine.physics.stripline.Stripline`, Pozar's form) times Z_strip/Z_mode,
         the scaling of the microstrip approximation (see the module); dielectric loss is the
         TEM line's k tan δ / 2 for both modes."""
-        from refine.physics.stripline import Stripline
-
         f = v.frequencies("f", f)
         m = self.modes(width, spacing)
         beta = 2.0 * np.pi * f * math.sqrt(self.substrate.eps_r) / C0
@@ -315,6 +315,15 @@ class CoupledStripline:
         )
 
 
+def coupled_medium(medium: object) -> CoupledMicrostrip | CoupledStripline:
+    """The coupled-line model of a strip medium (the same substrate and loss switch)."""
+    if isinstance(medium, Microstrip):
+        return CoupledMicrostrip(medium.substrate, medium.loss)
+    if isinstance(medium, Stripline):
+        return CoupledStripline(medium.substrate, medium.loss)
+    raise TypeError(f"no coupled-line model for {type(medium).__name__}")
+
+
 __all__ = [
     "KJ_COUPLED_FN_MAX",
     "KJ_COUPLED_RANGE",
@@ -322,6 +331,7 @@ __all__ = [
     "CoupledStripline",
     "Modes",
     "cohn_coupled_stripline",
+    "coupled_medium",
     "kirschning_jansen_dispersion",
     "kirschning_jansen_static",
 ]

@@ -26,6 +26,9 @@ Schema (keys marked * are required)::
     min_gap *, min_width, grid, gap_tolerance, width_tolerance, max_total_length,
     etch_bias (per copper edge: the artwork is drawn that much larger; default 0)
     [coupling]  external = "gap" | "tap"     (default "gap")
+                topology = "end-coupled" (default: resonators in a row, coupled through end
+                      gaps) | "parallel-coupled" (quarter-wave coupled sections; strip media,
+                      external "gap" only: the first and last sections couple the ports)
     [resonators] width = "free" | "feed" | "free-beyond-models"
                                              (default "free": the refiner may change them within
                                               the gap model's stated W/h range; "feed": every
@@ -96,6 +99,7 @@ class Problem:
     # ("free-beyond-models": refinable outside the gap model's range too)
     enclosure: str = "open"  # microstrip: "open" (radiates) or "shielded"
     uncertainty: str = "robust"  # "robust": refine for the worst model corner; "judge": only judge
+    topology: str = "end-coupled"  # or "parallel-coupled"
 
     @property
     def strip_substrate(self) -> Substrate:
@@ -322,6 +326,7 @@ class _Reader:
 CALIBRATED = "calibrated"  # [models] gap: the circuit reads a calibration data file
 ENCLOSURES = ("open", "shielded")
 UNCERTAINTY_USES = ("robust", "judge")  # [models] uncertainty
+TOPOLOGY_KINDS = ("end-coupled", "parallel-coupled")  # [coupling] topology
 
 
 def _calibration_model(r: _Reader, models: dict, eps_r: float, source: str) -> str:
@@ -519,8 +524,22 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         bias = r.quantity(fab_t, "fab", "etch_bias", "length", 0.0, min_gap / 2, hi_open=True)
         fab = FabRules(min_gap, **lengths, etch_bias=bias or 0.0)
 
-    coup = r.table(data, "coupling", {"external"}, required=False)
+    coup = r.table(data, "coupling", {"external", "topology"}, required=False)
     external = r.choice(coup, "coupling", "external", EXTERNAL_KINDS, default="gap")
+    topology = r.choice(coup, "coupling", "topology", TOPOLOGY_KINDS, default="end-coupled")
+    if topology == "parallel-coupled" and kind == "ideal":
+        raise r.fail(
+            "coupling.topology",
+            topology,
+            "a parallel-coupled filter needs a strip medium, not 'ideal'",
+        )
+    if topology == "parallel-coupled" and external == "tap":
+        raise r.fail(
+            "coupling.external",
+            "tap",
+            'a parallel-coupled filter\'s end sections couple its ports; use external = "gap" '
+            "or leave it out",
+        )
     if kind == "ideal" and external == "tap":
         raise r.fail(
             "coupling.external", "tap", "tapped coupling needs a strip medium, not 'ideal'"
@@ -620,6 +639,7 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         resonator_width,
         enclosure,
         uncertainty,
+        topology,
     )
 
 

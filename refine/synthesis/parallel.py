@@ -39,22 +39,11 @@ from numpy.typing import ArrayLike, NDArray
 
 from refine import _validate as v
 from refine import validity
-from refine.physics.coupled import CoupledMicrostrip, CoupledStripline
-from refine.physics.microstrip import Microstrip
+from refine.physics.coupled import CoupledMicrostrip, CoupledStripline, coupled_medium
 from refine.physics.strip import StripMedium, open_end_extensions
-from refine.physics.stripline import Stripline
 from refine.synthesis.inverters import inverter_j
 
 CoupledMedium = CoupledMicrostrip | CoupledStripline
-
-
-def coupled_medium(medium: StripMedium) -> CoupledMedium:
-    """The coupled-line model of a strip medium (same substrate and loss switch)."""
-    if isinstance(medium, Microstrip):
-        return CoupledMicrostrip(medium.substrate, medium.loss)
-    if isinstance(medium, Stripline):
-        return CoupledStripline(medium.substrate, medium.loss)
-    raise TypeError(f"no coupled-line model for {type(medium).__name__}")
 
 
 def even_odd_impedances(jz0: ArrayLike, z0: float) -> tuple[NDArray, NDArray]:
