@@ -29,7 +29,7 @@ LAMINATE = Microstrip(Substrate(3.55, 0.508e-3, 17.5e-6, 0.002, 5.8e7, 0.4e-6))
 
 
 def test_pozar_coupled_line_bandpass_example():
-    """Pozar, *Microwave Engineering*, 4th ed. (2012), §8.8, the worked coupled-line bandpass
+    """Pozar, *Microwave Engineering*, 4th ed. (2012), chapter 8 (section number from memory), the worked coupled-line bandpass
     filter: N = 3, 0.5 dB equal ripple, 10 % bandwidth, Z0 = 50 ohm; its table of Z0·J and of
     the even- and odd-mode impedances (from memory): 0.3137 / 70.61 / 39.24 for the end
     sections, 0.1187 / 56.64 / 44.77 for the inner ones."""

@@ -284,9 +284,10 @@ class CoupledSection:
 
     From the mode lines' impedance matrices (self Z coth γl, transfer Z/sinh γl) the two-port's
     are Z11 = Z22 = (Z_e coth x_e + Z_o coth x_o)/2 and Z21 = (Z_e/sinh x_e − Z_o/sinh x_o)/2,
-    x = γl (Pozar, *Microwave Engineering*, 4th ed., §7.6, for the homogeneous case, where it
-    is Z11 = −j(Z_e + Z_o) cot θ/2, Z21 = −j(Z_e − Z_o) csc θ/2). Written without dividing by a
-    sinh (finite at every length), with Δ = Z_e sinh x_o − Z_o sinh x_e:
+    x = γl (Pozar, *Microwave Engineering*, 4th ed., coupled-line chapter, section number from
+    memory, for the homogeneous case, where it is Z11 = −j(Z_e + Z_o) cot θ/2,
+    Z21 = −j(Z_e − Z_o) csc θ/2). Written without dividing by a sinh (finite at every length),
+    with Δ = Z_e sinh x_o − Z_o sinh x_e:
 
         A = D = (Z_e cosh x_e sinh x_o + Z_o cosh x_o sinh x_e) / Δ
         B = [(Z_e² + Z_o²) sinh x_e sinh x_o + 2 Z_e Z_o (1 + cosh x_e cosh x_o)] / (2Δ)

@@ -11,8 +11,8 @@ gradient of :class:`~refine.circuit.model.ParallelFilterModel`. The result is sn
 shop's grid and judged on the dense verification grid.
 
 Model uncertainty: every section's even- and odd-mode impedance ±1 % and effective permittivity
-±0.5 % (:data:`UNCERTAINTY`: the largest differences of the closed forms' static part from
-refine's 2-D field solve of the cross-section, 0.75 % and 0.34 %, rounded up; the dispersion part
+±0.5 % (:data:`UNCERTAINTY`: the bounds within which the closed forms' static part agrees
+with refine's 2-D field solve of the cross-section, ``tests/test_coupled.py``; the dispersion part
 is not validated), all sixteen sign combinations. As for the end-coupled filter, "met" needs the
 mask at every corner; a met nominal design is first refined for its worst corner (the corners
 stacked in one minimax, the nominal mask held as hard constraints, the result kept only if the
@@ -54,7 +54,7 @@ NOT_YET = (
 UNCERTAINTY = (0.01, 0.01, 0.005, 0.005)
 UNCERTAINTY_SOURCE = (
     "coupled-line model: impedances ±1 %, effective permittivities ±0.5 % (its static part "
-    "against refine's 2-D field solve)"
+    "against refine's 2-D field solve; dispersion not validated)"
 )
 
 

@@ -36,8 +36,8 @@ Models
 * **Stripline**: Cohn, "Shielded coupled-strip transmission line", IRE Trans. MTT-3(5), 29-38,
   1955, exact for zero-thickness strips centred between the ground planes (spacing b):
   k_e = tanh(πW/2b)·tanh(π(W+s)/2b), k_o = tanh(πW/2b)·coth(π(W+s)/2b),
-  Z_e,o = (η0/4 sqrt(ε_r))·K(k')/K(k) (Pozar 4th ed. eqs. 7.32-7.34 give the same, from
-  memory). Both modes travel at c/sqrt(ε_r). The problem's metal thickness is not applied to
+  Z_e,o = (η0/4 sqrt(ε_r))·K(k')/K(k) (Pozar, 4th ed., gives the same in its coupled-line
+  chapter; equation numbers not at hand). Both modes travel at c/sqrt(ε_r). The problem's metal thickness is not applied to
   coupled strips (neither medium): a stated limitation.
 
 Ranges (warned, :mod:`refine.validity`): microstrip 0.1 ≤ u ≤ 10, 0.1 ≤ g ≤ 10, 1 ≤ ε_r ≤ 18,

@@ -1,7 +1,9 @@
 """Which half-wave topology can build a spec on this substrate for this shop: a comparison.
 
 For the same prototype (family, order, ripple) and centre frequency, each topology's largest
-fractional bandwidth the shop's minimum gap allows, its footprint and its predicted midband loss:
+fractional bandwidth whose closed-form couplings the shop's minimum gap reaches (a floor: the
+refiner can reach further by changing strip widths), its footprint and its predicted midband
+loss:
 
 * **end-coupled, gap-fed**: every inverter a series gap (the largest bandwidth from the
   end-coupled diagnosis, :func:`refine.synthesis.diagnose.max_fbw`); n half-wave resonators in
@@ -86,7 +88,8 @@ class TopologyComparison:
             else f"none reaches {100 * self.fbw:.3g} %; {best.name} comes closest"
         )
         return (
-            f"topologies for {100 * self.fbw:.3g} % with this substrate and minimum gap: "
+            f"topologies for {100 * self.fbw:.3g} % with this substrate and minimum gap "
+            "(closed-form reach): "
             + "; ".join(parts)
             + f"; {verdict} (midband loss about {self.figures[0].midband_loss_db:.2f} dB in "
             "each at this bandwidth, Cohn's estimate without radiation)"
