@@ -111,6 +111,13 @@ def build_parser() -> argparse.ArgumentParser:
         help="with --centre-yield: include a correlated over-etch in the tolerances",
     )
     p.add_argument(
+        "--try-recommended",
+        action="store_true",
+        help="when the end-coupled design is not met and the diagnosis recommends the "
+        "parallel-coupled topology, design that too (its files replace the end-coupled ones "
+        "in --out; the exit code is its status)",
+    )
+    p.add_argument(
         "--power",
         type=float,
         default=1.0,

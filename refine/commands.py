@@ -11,6 +11,7 @@ import os
 import re
 import sys
 from collections.abc import Sequence
+from dataclasses import replace
 from pathlib import Path
 
 from refine import study
@@ -35,6 +36,7 @@ from refine.spec.coupling import Coupling
 from refine.spec.mask import MaskResult
 from refine.spec.problem import load_problem
 from refine.synthesis import inverters as synthesis
+from refine.synthesis import topology
 from refine.synthesis.realise import range_report
 from refine.tolerance import centring
 from refine.tolerance import montecarlo as tolerance
@@ -369,6 +371,11 @@ def _cmd_design(args: argparse.Namespace) -> int:
         return _design_parallel(problem, args)
     if args.out is not None:
         outputs.prepare_folder(args.out, args.force)  # refuse before any work or any write
+    if args.try_recommended and (args.fullwave is not None or args.centre_yield):
+        raise UsageError(
+            "--try-recommended: not with --fullwave or --centre-yield (the recommended "
+            "parallel-coupled design has neither yet)"
+        )
     if args.fullwave is not None:
         _fullwave_ready(problem, args)
     # the drawing processes (started by the command line, or now): their imports overlap
@@ -452,6 +459,17 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
         print(f"  note: {note}")
     if r.fab_violations:
         print("FAB RULE VIOLATIONS: " + "; ".join(r.fab_violations))
+    topo = r.diagnosis.topologies if r.diagnosis is not None else None
+    if (
+        args.try_recommended
+        and r.status not in NOMINALLY_MET
+        and topo is not None
+        and topo.recommended.name == topology.PARALLEL
+        and topo.recommended.reaches(topo.fbw)
+    ):
+        print()
+        print("trying the recommended topology (--try-recommended): parallel-coupled")
+        return _design_parallel(replace(problem, topology="parallel-coupled"), args, force=True)
     if args.centre_yield:
         r = _centre(problem, r, args)
         computed = None  # a new layout
@@ -495,8 +513,9 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
     return STATUS_EXIT[r.status]
 
 
-def _design_parallel(problem, args: argparse.Namespace) -> int:
-    """``design`` of a parallel-coupled problem (:mod:`refine.optimise.parallel`)."""
+def _design_parallel(problem, args: argparse.Namespace, force: bool = False) -> int:
+    """``design`` of a parallel-coupled problem (:mod:`refine.optimise.parallel`); ``force``:
+    the folder was checked for the end-coupled files already (--try-recommended)."""
     unsupported = [
         name
         for name, on in (
@@ -506,7 +525,7 @@ def _design_parallel(problem, args: argparse.Namespace) -> int:
             ("--dxf-r12", args.dxf_r12),
             ("--strategy", args.strategy != Strategy.GRADIENT.value),
         )
-        if on
+        if on and not force
     ]
     if unsupported:
         raise UsageError(
@@ -514,7 +533,7 @@ def _design_parallel(problem, args: argparse.Namespace) -> int:
             "(coupling.topology = 'parallel-coupled'); allowed there: --out, --force, "
             "--max-evaluations, --margin"
         )
-    if args.out is not None:
+    if args.out is not None and not force:
         outputs.prepare_folder(args.out, args.force, parallel_files.FILES)
     print(f"{problem.name}: parallel-coupled half-wave filter, refining ...", flush=True)
     r = refine_parallel(
@@ -559,7 +578,7 @@ def _design_parallel(problem, args: argparse.Namespace) -> int:
     if r.violations:
         print("FAB RULE VIOLATIONS: " + "; ".join(r.violations))
     if args.out is not None:
-        written = parallel_files.write_parallel_outputs(r, args.out, args.force)
+        written = parallel_files.write_parallel_outputs(r, args.out, args.force or force)
         print()
         print(f"wrote {len(written)} files to {args.out}: " + ", ".join(w.name for w in written))
         if r.status is Status.MET_NOMINAL_ONLY:

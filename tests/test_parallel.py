@@ -268,3 +268,36 @@ def test_corner_clearances_follow_the_drawn_copper():
         from refine.outputs import artwork
 
         artwork.artwork(lay)
+
+
+def test_try_recommended_designs_the_parallel_coupled_filter(tmp_path, capsys):
+    """``design --try-recommended`` on an end-coupled spec out of reach: the diagnosis recommends
+    parallel-coupled, refine designs it, hands it over and exits with its status."""
+    import json
+
+    from conftest import problem_path
+
+    from refine.cli import main
+
+    text = problem_path("inf-pcb-gap-5g8-n3-3pct").read_text()
+    for a, b in (
+        ("fractional_bandwidth = 0.03", "fractional_bandwidth = 0.06"),
+        ('stop = "5.51473 GHz"', 'stop = "5.1 GHz"'),
+        ('start = "6.1195 GHz"', 'start = "6.5 GHz"'),
+        ('stop = "6.6558 GHz"', 'stop = "7.5 GHz"'),
+        ("passband_return_loss_db = 15.4", "passband_return_loss_db = 14"),
+    ):
+        assert a in text
+        text = text.replace(a, b)
+    spec = tmp_path / "six.toml"
+    spec.write_text(text)
+    out = tmp_path / "out"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        code = main(["design", str(spec), "--out", str(out), "--try-recommended"])
+    said = capsys.readouterr().out
+    assert "status: INFEASIBLE" in said and "trying the recommended topology" in said
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["topology"] == "parallel-coupled"
+    assert code == {"met": 0, "met on the nominal model only": 5}[summary["status"]]
+    assert main(["design", str(spec), "--try-recommended", "--centre-yield"]) == 2
