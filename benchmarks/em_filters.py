@@ -41,7 +41,11 @@ from readme_block import replace_block
 ROOT = Path(__file__).resolve().parent.parent
 DATA = ROOT / "tests" / "data" / "fullwave-filters.json"
 #: the bundled filters checked, cheapest first (the wide tapped ones solve in minutes)
-FILTERS = ("ms-alumina-tap-10g-n3-8pct", "ms-alumina-tap-10g-n3-10pct")
+FILTERS = (
+    "ms-alumina-tap-10g-n3-8pct",
+    "ms-alumina-tap-10g-n3-10pct",
+    "ms-pcb-tap-5g8-n3-3pct",
+)
 MESHES = 3
 
 
