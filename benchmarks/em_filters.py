@@ -2,6 +2,7 @@
 
     python benchmarks/em_filters.py [--threads N]   # run what is missing, then print the table
     python benchmarks/em_filters.py --table         # the table from the data file only
+    python benchmarks/em_filters.py --only NAME     # run one filter's missing meshes
     python benchmarks/em_filters.py --readme        # the table as the README block em-filters
 
 Each filter of :data:`FILTERS` (bundled problems) is refined by refine's default (the calibrated
@@ -29,9 +30,12 @@ from pathlib import Path
 
 import numpy as np
 
+from refine.circuit.layout import ParallelLayout
 from refine.fullwave import geometry, verify
 from refine.fullwave.uncertainty import mesh_uncertainty
+from refine.optimise.parallel import refine_parallel
 from refine.optimise.refiner import refine_problem
+from refine.outputs.export import parallel_layout_dict
 from refine.spec.problem import load_problem
 from refine.validity import ModelRangeWarning
 
@@ -45,6 +49,7 @@ FILTERS = (
     "ms-alumina-tap-10g-n3-8pct",
     "ms-alumina-tap-10g-n3-10pct",
     "ms-pcb-tap-5g8-n3-3pct",
+    "parallel/pcb-5g8-n3-6pct",
 )
 MESHES = 3
 
@@ -58,6 +63,8 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict]) -> dict:
     """One filter on mesh ``k``; the layout is the one the filter's earlier meshes solved (so
     that a change of the refiner between sessions never mixes two layouts in one sequence)."""
     problem = load_problem(ROOT / "problems" / f"{name}.toml")
+    if problem.topology == "parallel-coupled":
+        return _run_parallel(name, problem, k, threads, earlier)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ModelRangeWarning)
         r = refine_problem(problem)
@@ -79,6 +86,17 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict]) -> dict:
     c = verify.check_layout(
         problem, lay, threads=threads, meshes=[res], progress=lambda s: print(f"  {s}", flush=True)
     )
+    layout = {
+        "gaps": list(lay.gaps),
+        "lengths": list(lay.lengths),
+        "widths": list(lay.widths),
+        "taps": None if lay.taps is None else list(lay.taps),
+    }
+    return _record(name, k, res, status, layout, problem, c, t0)
+
+
+def _record(name, k, res, status, layout: dict, problem, c, t0: float) -> dict:
+    """One finished (filter, mesh) solve as the data file stores it."""
     cmp_ = c.comparison
     return {
         "filter": name,
@@ -87,12 +105,7 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict]) -> dict:
         "cells_per_wavelength": res.cells_per_wavelength,
         "edge_rule": res.edge_rule,
         "status": status,
-        "layout": {
-            "gaps": list(lay.gaps),
-            "lengths": list(lay.lengths),
-            "widths": list(lay.widths),
-            "taps": None if lay.taps is None else list(lay.taps),
-        },
+        "layout": layout,
         "fbw": problem.fbw,
         "f0_hz": problem.f0,
         "em": {
@@ -114,6 +127,27 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict]) -> dict:
         "engine": c.solves[-1].engine,
         "date": datetime.date.today().isoformat(),
     }
+
+
+def _run_parallel(name: str, problem, k: int, threads: int, earlier: list[dict]) -> dict:
+    """:func:`run_one` for a parallel-coupled problem (refine.optimise.parallel)."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        r = refine_parallel(problem)
+    lay, status = r.layout, r.status.value
+    mine = [e for e in earlier if e["filter"] == name]
+    if mine:
+        d = mine[0]["layout"]
+        lay = ParallelLayout(
+            d["feed_width"], d["widths"], d["spacings"], d["lengths"], d["feed_stub"]
+        )
+        status = mine[0]["status"]
+    res = verify.resolutions("converged", lay)[k]
+    t0 = time.perf_counter()
+    c = verify.check_layout(
+        problem, lay, threads=threads, meshes=[res], progress=lambda s: print(f"  {s}", flush=True)
+    )
+    return _record(name, k, res, status, parallel_layout_dict(lay), problem, c, t0)
 
 
 def load() -> list[dict]:
@@ -189,13 +223,16 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--table", action="store_true", help="print the table only, run nothing")
     ap.add_argument("--readme", action="store_true", help="write the README block")
     ap.add_argument("--threads", type=int, default=0, help="engine threads (0: all cores)")
+    ap.add_argument("--only", help="run this filter only (a name of FILTERS)")
     args = ap.parse_args(argv)
+    if args.only is not None and args.only not in FILTERS:
+        ap.error(f"--only {args.only!r}: not one of {', '.join(FILTERS)}")
     runs = load()
     if not (args.table or args.readme):
         done = {(r["filter"], r["mesh_index"]) for r in runs}
         for k in range(MESHES):  # every filter's coarser meshes first: a table sooner
             for name in FILTERS:
-                if (name, k) in done:
+                if (name, k) in done or (args.only is not None and name != args.only):
                     continue
                 print(f"{name}, mesh {k + 1} of {MESHES} ...", flush=True)
                 rec = run_one(name, k, args.threads, runs)

@@ -301,3 +301,34 @@ def test_try_recommended_designs_the_parallel_coupled_filter(tmp_path, capsys):
     assert summary["topology"] == "parallel-coupled"
     assert code == {"met": 0, "met on the nominal model only": 5}[summary["status"]]
     assert main(["design", str(spec), "--try-recommended", "--centre-yield"]) == 2
+
+
+def test_field_model_of_a_parallel_coupled_layout():
+    """The field check's copper for a staggered layout: both feeds along x on their own centre
+    lines (the reference planes at the feeds' width steps, where the circuit model's ports
+    are), every coupled section's spacing an opening across, and a mesh symmetric about the
+    filter's middle when its sections read the same both ways (half-turn symmetry)."""
+    from refine.fullwave import geometry
+
+    sub = Substrate(3.55, 0.508e-3)
+    lay = ParallelLayout(
+        1.1e-3,
+        (0.5e-3, 0.8e-3, 0.8e-3, 0.5e-3),
+        (0.3e-3, 0.6e-3, 0.6e-3, 0.3e-3),
+        (7.8e-3,) * 4,
+        1e-4,
+    )
+    st = geometry.layout_structure(lay, sub, 5e-3)
+    f_in, f_out = st.feeds
+    assert f_in.ref == pytest.approx(-1e-4) and f_in.centre == 0.0
+    assert f_out.ref == pytest.approx(sum(lay.lengths) + 1e-4)
+    assert f_out.centre == pytest.approx(
+        -sum(w + s for w, s in zip(lay.widths, lay.spacings, strict=True))
+    )
+    spacings = sorted(round((b - a) * 1e6, 6) for _, a, b in st.openings)
+    assert spacings == sorted(round(s * 1e6, 6) for s in lay.spacings)
+    assert st.symmetric and st.y_centre == pytest.approx(0.5 * f_out.centre)
+    mesh = geometry.build_mesh(st, sub, 8e9, geometry.MESHES["coarse"])
+    np.testing.assert_allclose(mesh.y - st.y_centre, -(mesh.y - st.y_centre)[::-1], atol=1e-12)
+    lopsided = ParallelLayout(1.1e-3, (0.5e-3, 0.8e-3), (0.3e-3, 0.6e-3), (7.8e-3,) * 2, 1e-4)
+    assert geometry.layout_structure(lopsided, sub, 5e-3).y_centre is None

@@ -17,8 +17,15 @@ from numpy.typing import ArrayLike, NDArray
 from refine import _validate as v
 from refine import validity
 from refine.circuit import cascade
-from refine.circuit.builder import Adjustments, Built, build, ideal_elements, per_design
-from refine.circuit.layout import Layout
+from refine.circuit.builder import (
+    Adjustments,
+    Built,
+    build,
+    ideal_elements,
+    parallel_build,
+    per_design,
+)
+from refine.circuit.layout import Layout, ParallelLayout
 from refine.physics import calibrated, radiation
 from refine.physics.gap_fixture import comparison, load_fixture
 from refine.physics.microstrip import Microstrip
@@ -114,6 +121,24 @@ def evaluate_layout(
         return layout_response(
             layout, strip_medium_for(problem), problem.gap_model, f, problem.z_ref, adjust
         )
+
+
+def evaluate_parallel(problem: Problem, layout: ParallelLayout, f: ArrayLike) -> NDArray:
+    """S-matrix ``(nf, 2, 2)`` of a parallel-coupled layout on the problem's coupled-line model
+    with loss (range warnings go to the report)."""
+    f = v.frequencies("f", f)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        els = parallel_build(
+            strip_medium_for(problem),
+            problem.gap_model,
+            layout.widths,
+            layout.spacings,
+            layout.lengths,
+            f,
+            feed_stub=layout.feed_stub,
+        ).elements
+        return cascade.s_parameters(els, f, problem.z_ref)
 
 
 def evaluate_electrical(

@@ -26,9 +26,9 @@ import numpy as np
 from numpy.typing import NDArray
 
 from refine import _validate as v
-from refine.circuit.layout import Layout
+from refine.circuit.layout import Layout, ParallelLayout
 from refine.fullwave import mesh as meshing
-from refine.outputs.export import Strip, copper
+from refine.outputs.export import Strip, copper, parallel_copper
 from refine.physics.substrate import Substrate
 from refine.spec.coupling import Coupling
 
@@ -120,14 +120,18 @@ class Structure:
     """Copper of a two-port on a substrate, with its two feeds and the gaps to mesh finely.
 
     openings : (axis, lo, hi) of every gap between strips, along the coupling axis.
-    symmetric : True when the copper is its own mirror image across the middle between the two
-        reference planes (then one excitation gives the whole S-matrix).
+    symmetric : True when the copper maps onto itself with the ports exchanged (a mirror image
+        across the middle between the two reference planes, or a half turn about the middle of
+        a staggered parallel-coupled filter): then one excitation gives the whole S-matrix.
+    y_centre : the line across the filter the copper is symmetric about, or None (a staggered
+        parallel-coupled filter that is not): the mesh across is made symmetric about it.
     """
 
     strips: tuple[Strip, ...]
     feeds: tuple[Feed, Feed]
     openings: tuple[tuple[str, float, float], ...]
     symmetric: bool
+    y_centre: float | None = 0.0
 
     def thru(self, far_edge: float | None = None) -> Structure:
         """A straight line of the first feed's width along its axis from box edge to box edge,
@@ -141,7 +145,9 @@ class Structure:
         else:  # tapped feeds: the first feed's line carried straight across the box
             top = far_edge if far_edge is not None else max(s.y1 for s in self.strips)
             st = Strip(f1.centre - half, f1.edge, f1.centre + half, top, "thru")
-        return Structure((st,), self.feeds, (), self.symmetric)
+        return Structure(
+            (st,), self.feeds, (), self.symmetric, f1.centre if f1.axis == "x" else 0.0
+        )
 
 
 def feed_length(substrate: Substrate, feed_width: float, f_max: float, res: Resolution) -> float:
@@ -157,9 +163,13 @@ def reference_distance(substrate: Substrate, feed_width: float) -> float:
     return max(4.0 * substrate.height, 3.0 * feed_width)
 
 
-def layout_structure(layout: Layout, substrate: Substrate, length: float) -> Structure:
+def layout_structure(
+    layout: Layout | ParallelLayout, substrate: Substrate, length: float
+) -> Structure:
     """The field model's copper for a layout, feeds ``length`` long (see :func:`feed_length`)."""
     v.positive("feed length", length)
+    if isinstance(layout, ParallelLayout):
+        return _parallel_structure(layout, length)
     strips = copper(layout, feed_length=length)
     wf = layout.feed_width
     if layout.external is Coupling.GAP:
@@ -185,6 +195,37 @@ def layout_structure(layout: Layout, substrate: Substrate, length: float) -> Str
     res = [s for s in out if s.name.startswith("resonator")]
     openings = tuple(("x", a.x1, b.x0) for a, b in itertools.pairwise(res))
     return Structure(tuple(out), (tap_feeds[0], tap_feeds[1]), openings, layout.is_mirror)
+
+
+def _parallel_structure(layout: ParallelLayout, length: float) -> Structure:
+    """A parallel-coupled layout's copper (:func:`refine.outputs.export.parallel_copper`): the
+    feeds along x on their own centre lines, the coupled sections' spacings as openings across
+    (y), half-turn symmetric when its sections read the same both ways."""
+    strips = parallel_copper(layout, feed_length=length)
+    wf = layout.feed_width
+    fin = next(s for s in strips if s.name == "feed in")
+    fout = next(s for s in strips if s.name == "feed out")
+    c_in, c_out = 0.5 * (fin.y0 + fin.y1), 0.5 * (fout.y0 + fout.y1)
+    feeds = (
+        Feed("x", -1, fin.x1, fin.x0, c_in, wf),
+        Feed("x", +1, fout.x0, fout.x1, c_out, wf),
+    )
+    rows = [s for s in strips if not s.name.startswith("feed")]
+    openings = []
+    for a, b in itertools.combinations(rows, 2):  # strips side by side: the spacing between
+        overlap = min(a.x1, b.x1) - max(a.x0, b.x0)
+        if overlap > 1e-12:
+            lo, hi = (a, b) if a.y1 <= b.y0 else (b, a)
+            if hi.y0 > lo.y1:
+                openings.append(("y", lo.y1, hi.y0))
+    same = all(
+        math.isclose(x, y, rel_tol=1e-12, abs_tol=1e-15)
+        for seq in (layout.widths, layout.spacings, layout.lengths)
+        for x, y in zip(seq, seq[::-1], strict=True)
+    )
+    return Structure(
+        tuple(strips), feeds, tuple(openings), same, 0.5 * (c_in + c_out) if same else None
+    )
 
 
 def gap_structure(width: float, gap: float, length: float) -> Structure:
@@ -249,8 +290,8 @@ def build_mesh(st: Structure, substrate: Substrate, f_max: float, res: Resolutio
             lines["x"] = meshing.symmetric(lines["x"], 0.5 * (f1.ref + f2.ref))
         elif f1.axis == f2.axis == "y":
             lines["x"] = meshing.symmetric(lines["x"], 0.5 * (f1.centre + f2.centre))
-    if "y" not in feed_axes:
-        lines["y"] = meshing.symmetric(lines["y"], 0.0)
+    if "y" not in feed_axes and st.y_centre is not None:
+        lines["y"] = meshing.symmetric(lines["y"], st.y_centre)
     z_pts = [(0.0, min(h / 4.0, d_max)), (h, edge)]
     lines["z"] = meshing.graded_lines(z_pts, 0.0, h + res.air_above * h, d_max, res.ratio)
     # guarantee a line exactly at the substrate top

@@ -233,10 +233,13 @@ def extract_correction(
     solves at once), and the RMS misfit left. With one solve only the gap factors are fitted;
     from two solves with different gaps, the gap offsets as well."""
     lay = checks[-1].layout
-    distinct = len({c.layout.gaps for c in checks}) >= 2
+    if not isinstance(lay, Layout):
+        raise TypeError("space mapping corrects end-coupled layouts only")
+    distinct = len({c.layout.gaps for c in checks if isinstance(c.layout, Layout)}) >= 2
     groups = _q_groups(lay, distinct)
-    data = []
+    data: list[tuple[Layout, NDArray, NDArray]] = []
     for c in checks:
+        assert isinstance(c.layout, Layout)
         sel = _fit_band(problem, c.f)
         target = np.concatenate([np.abs(c.s_em[sel, 0, 0]), np.abs(c.s_em[sel, 1, 0])])
         data.append((c.layout, c.f[sel], target))

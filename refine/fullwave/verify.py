@@ -19,7 +19,8 @@ import numpy as np
 from numpy.typing import NDArray
 
 from refine import _validate as v
-from refine.circuit.layout import Layout
+from refine.circuit.layout import Layout, ParallelLayout
+from refine.circuit.response import evaluate_parallel
 from refine.fullwave import compare, engine, geometry, solve, uncertainty, waves
 from refine.outputs.files import evaluate_layout
 from refine.spec.problem import Problem
@@ -64,7 +65,7 @@ class FieldCheck:
     extrapolated: the mesh-extrapolated figures for "converged" (name -> value), else None."""
 
     problem: Problem
-    layout: Layout
+    layout: Layout | ParallelLayout
     mesh: str
     f: NDArray[np.float64]
     s_em: NDArray[np.complex128]
@@ -108,10 +109,11 @@ class FieldCheck:
         return sum(s.runs for s in self.solves)
 
 
-def resolutions(mesh: str, layout: Layout) -> list[geometry.Resolution]:
+def resolutions(mesh: str, layout: Layout | ParallelLayout) -> list[geometry.Resolution]:
     v.one_of("mesh", mesh, MESH_CHOICES)
     if mesh in ("pair", "converged"):
-        d = min(geometry.MESHES["coarse"].edge_cell, 0.5 * min(layout.gaps))
+        gaps = layout.spacings if isinstance(layout, ParallelLayout) else layout.gaps
+        d = min(geometry.MESHES["coarse"].edge_cell, 0.5 * min(gaps))
         base = geometry.Resolution(mesh, d, edge_rule="thirds")
         return [base.refined(k) for k in range(2 if mesh == "pair" else 3)]
     return [geometry.MESHES[mesh]]
@@ -119,7 +121,7 @@ def resolutions(mesh: str, layout: Layout) -> list[geometry.Resolution]:
 
 def check_layout(
     problem: Problem,
-    layout: Layout,
+    layout: Layout | ParallelLayout,
     mesh: str = "coarse",
     workdir: str | Path | None = None,
     threads: int = 0,
@@ -139,7 +141,11 @@ def check_layout(
             "(its ports assume a strip over one ground plane)"
         )
     f = em_frequencies(problem)
-    s_model = evaluate_layout(problem, layout, f)
+    s_model = (
+        evaluate_parallel(problem, layout, f)
+        if isinstance(layout, ParallelLayout)
+        else evaluate_layout(problem, layout, f)
+    )
     ring = ringing_time(s_model[:, 1, 0], f)
     sub = problem.strip_substrate
     band = em_band(problem)

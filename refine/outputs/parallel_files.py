@@ -19,10 +19,8 @@ from pathlib import Path
 
 import numpy as np
 
-from refine.circuit import cascade
-from refine.circuit.builder import parallel_build
 from refine.circuit.layout import ParallelLayout
-from refine.circuit.response import strip_medium_for
+from refine.circuit.response import evaluate_parallel
 from refine.optimise.parallel import UNCERTAINTY_SOURCE, ParallelResult
 from refine.optimise.refiner import Status
 from refine.outputs import artwork, export, plot
@@ -48,17 +46,7 @@ STATUS_WORDS = {
 
 def s_matrix(r: ParallelResult, layout: ParallelLayout, f: np.ndarray) -> np.ndarray:
     """S-matrix ``(nf, 2, 2)`` of ``layout`` on the problem's coupled-line model with loss."""
-    p = r.problem
-    els = parallel_build(
-        strip_medium_for(p),
-        p.gap_model,
-        layout.widths,
-        layout.spacings,
-        layout.lengths,
-        f,
-        feed_stub=layout.feed_stub,
-    ).elements
-    return cascade.s_parameters(els, f, p.z_ref)
+    return evaluate_parallel(r.problem, layout, f)
 
 
 def summary(r: ParallelResult) -> dict:
