@@ -753,9 +753,7 @@ def _cmd_study(args: argparse.Namespace) -> int:
         if client is not None:
             client.close()
     counts = frame["status"].value_counts().to_dict()
-    print(
-        f"met {counts.get('met', 0)}, not met {counts.get('not met', 0)}, infeasible {counts.get('infeasible', 0)}"
-    )
+    print(study.status_counts(counts))
     written = plot.study_pngs(args.out, frame, st.name)
     print(
         f"wrote {Path(args.out) / 'results.parquet'}, results.csv, results.jsonl, "

@@ -10,6 +10,7 @@ Study file (TOML)::
     "response.order" = [3, 5]
     "fab.min_gap" = ["10 um", "25 um"]
     "coupling.external" = ["gap", "tap"]
+    "coupling.topology" = ["end-coupled", "parallel-coupled"]   # with external "gap"
     medium = [{kind = "microstrip", eps_r = 9.8, height = "0.635 mm"}, ...]   # a whole table
     [options]
     yield_samples = 0                                   # > 0 adds a Monte Carlo yield per design
@@ -44,6 +45,7 @@ from pathlib import Path
 from typing import Any
 
 from refine.optimise.minimax import Stopping
+from refine.optimise.parallel import refine_parallel
 from refine.optimise.refiner import refine_problem
 from refine.outputs.export import write_atomic, write_json, write_text_atomic
 from refine.outputs.files import OutputError, locked_folder
@@ -185,6 +187,8 @@ def run_design(
     stopping = None if max_evaluations is None else Stopping(max_evaluations=max_evaluations)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ModelRangeWarning)
+        if problem.topology == "parallel-coupled":
+            return _parallel_row(index, problem, stopping, t0)
         r = refine_problem(problem, stopping=stopping)
         row = {
             "index": index,
@@ -198,6 +202,7 @@ def run_design(
             "fbw": problem.fbw,
             "min_gap_m": problem.strip_fab.min_gap if problem.fab else None,
             "external": problem.external,
+            "topology": problem.topology,
         }
         if r.layout is not None:
             row |= {
@@ -220,6 +225,33 @@ def run_design(
                 row["yield"] = None
     row["wall_time_s"] = time.perf_counter() - t0
     return row
+
+
+def _parallel_row(index: int, problem, stopping: Stopping | None, t0: float) -> dict:
+    """:func:`run_design`'s row for a parallel-coupled design (no yield yet)."""
+    r = refine_parallel(problem, stopping)
+    lay = r.layout
+    return {
+        "index": index,
+        "status": r.status.value,
+        "seed_margin_db": r.seed_verdict.worst_margin,
+        "refined_margin_db": r.verdict.worst_margin,
+        "seed_return_loss_margin_db": r.seed_verdict.worst.get(
+            "passband return loss", float("nan")
+        ),
+        "refined_return_loss_margin_db": r.verdict.worst.get("passband return loss", float("nan")),
+        "evaluations": r.evaluations,
+        "order": lay.order,
+        "fbw": problem.fbw,
+        "min_gap_m": problem.strip_fab.min_gap,
+        "external": problem.external,
+        "topology": problem.topology,
+        "corner_margin_db": r.corners.worst_margin,
+        "smallest_gap_m": min(lay.spacings),
+        "total_length_m": lay.total_length,
+        "end_resonator_width_m": lay.widths[0],
+        "wall_time_s": time.perf_counter() - t0,
+    }
 
 
 PARENT_POLL_S = 1.0  # how often a pool worker checks that the study that started it is alive
@@ -430,14 +462,20 @@ def _plain(v: Any) -> Any:
     return json.dumps(v, sort_keys=True) if isinstance(v, (dict, list)) else v
 
 
+STATUS_ORDER = ("met", "met on the nominal model only", "not met", "infeasible")
+
+
+def status_counts(counts: dict) -> str:
+    """"4 met, 1 met on the nominal model only, 0 not met, 2 infeasible" (every status named,
+    so that the counts add up to the designs done)."""
+    return ", ".join(f"{counts.get(s, 0)} {s}" for s in STATUS_ORDER)
+
+
 def progress_printer():
     tty = sys.stderr.isatty()
 
     def show(n: int, total: int, counts: dict) -> None:
-        text = (
-            f"designs {n}/{total}: {counts.get('met', 0)} met, {counts.get('not met', 0)} not met, "
-            f"{counts.get('infeasible', 0)} infeasible"
-        )
+        text = f"designs {n}/{total}: " + status_counts(counts)
         if tty:
             width = 30
             bar = "#" * int(width * n / total) + "-" * (width - int(width * n / total))
