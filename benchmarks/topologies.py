@@ -1,8 +1,9 @@
 """Largest bandwidth each half-wave topology reaches against the shop's minimum gap, two substrates.
 
     python benchmarks/topologies.py            # print the table
-    python benchmarks/topologies.py --readme   # and write docs/topologies.png and the README
-                                               # block ``topologies``
+    python benchmarks/topologies.py --readme   # and write docs/topologies.png,
+                                               # docs/parallel-example.png and the README block
+                                               # ``topologies``
 
 For a three-pole 0.1 dB Chebyshev filter on the PCB laminate of the bundled 5.8 GHz problems
 (ε_r 3.55, 0.508 mm) and on the thin-film alumina of the README problem (ε_r 9.8, 0.635 mm, at
@@ -111,6 +112,50 @@ def plot(all_curves: dict[str, dict[str, list[float]]], path: Path) -> None:
     plt.close(fig)
 
 
+EXAMPLE = ROOT / "problems" / "parallel" / "pcb-5g8-n3-6pct.toml"
+
+
+def example(picture: Path | None) -> str:
+    """The bundled 6 % laminate problem designed parallel-coupled: its verdict and sections as
+    Markdown, and (given ``picture``) its response against the mask."""
+    from refine.circuit.response import evaluate_parallel
+    from refine.optimise.parallel import refine_parallel
+    from refine.outputs import plot
+    from refine.outputs.files import sweep
+    from refine.outputs.parallel_files import STATUS_WORDS
+
+    p = load_problem(EXAMPLE)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        r = refine_parallel(p)
+        if picture is not None:
+            f = sweep(p)
+            plot.response_png(
+                picture,
+                f,
+                evaluate_parallel(p, r.layout, f),
+                evaluate_parallel(p, r.seed_layout, f),
+                p.mask,
+                p.name,
+                STATUS_WORDS[r.status],
+            )
+    lay = r.layout
+    rows = [
+        f"`refine design problems/parallel/{EXAMPLE.name}`: {r.status.value}, worst margin "
+        f"{r.verdict.worst_margin:+.2f} dB on the nominal model, {r.corners.worst_margin:+.2f} dB "
+        f"at the worst model-uncertainty corner (closed-form seed {r.seed_verdict.worst_margin:+.2f}"
+        " dB).",
+        "",
+        "| section | strip width (um) | spacing (um) | length (mm) |",
+        "|---|---|---|---|",
+    ]
+    rows += [
+        f"| {k + 1} | {w * 1e6:.0f} | {s * 1e6:.0f} | {ln * 1e3:.3f} |"
+        for k, (w, s, ln) in enumerate(zip(lay.widths, lay.spacings, lay.lengths, strict=True))
+    ]
+    return "\n".join(rows)
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--readme", action="store_true", help="write the picture and README block")
@@ -118,13 +163,17 @@ def main(argv: list[str] | None = None) -> int:
     all_curves = {name: curves(stem) for name, stem in SUBSTRATES}
     text = table(all_curves)
     print(text)
+    shown = example(ROOT / "docs" / "parallel-example.png" if args.readme else None)
+    print(shown)
     if args.readme:
         plot(all_curves, ROOT / "docs" / "topologies.png")
         replace_block(
             "topologies",
             "`python benchmarks/topologies.py --readme` wrote this table and "
             "`docs/topologies.png`:\n\n" + text + "\n\n![largest bandwidth per topology against "
-            "the minimum gap](docs/topologies.png)\n",
+            "the minimum gap](docs/topologies.png)\n\nThe parallel-coupled example:\n\n"
+            + shown
+            + "\n\n![the parallel-coupled example against its mask](docs/parallel-example.png)\n",
         )
     return 0
 

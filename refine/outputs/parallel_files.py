@@ -25,7 +25,6 @@ from refine.optimise.parallel import UNCERTAINTY_SOURCE, ParallelResult
 from refine.optimise.refiner import Status
 from refine.outputs import artwork, export, plot
 from refine.outputs.files import CLI_NAMES, locked_folder, sweep
-from refine.outputs.report import CAUTIONS
 
 FILES = (
     "summary.json",
@@ -119,6 +118,19 @@ def report_md(r: ParallelResult) -> str:
         CAUTIONS,
     ]
     return "\n".join(lines)
+
+
+CAUTIONS = """## Cautions
+
+- The coupled-line model is approximate (its stated uncertainty above covers the static
+  impedances and permittivities, not dispersion, the feeds' width steps or the open ends'
+  radiation). Before fabrication, verify this layout with an electromagnetic simulation and a
+  measured prototype.
+- Narrow spacings at high RF power can arc; this report does not compute the coupled sections'
+  voltages yet: check the spacings against your power, environment and margin.
+- Transmitters must meet local radio regulations and RF-exposure limits. Defer to local codes and
+  licensed practice.
+"""
 
 
 def write_parallel_outputs(
