@@ -15,6 +15,7 @@ from dataclasses import replace
 from pathlib import Path
 
 from refine import study
+from refine.circuit.layout import Layout, ParallelLayout
 from refine.circuit.response import (
     evaluate_electrical,
     evaluate_layout,
@@ -649,7 +650,7 @@ def _field_engine():
 
 def _cmd_yield(args: argparse.Namespace) -> int:
     problem = load_problem(args.problem)
-    lay = export.read_layout(args.layout)
+    lay = _not_parallel(export.read_layout(args.layout), args)
     if isinstance(lay, dict) or problem.medium == "ideal":
         raise UsageError("yield needs a physical layout on a strip medium with [fab] tolerances")
     if not 1 <= args.samples <= tolerance.MAX_SAMPLES:
@@ -762,9 +763,19 @@ def _cmd_study(args: argparse.Namespace) -> int:
     return 0
 
 
+def _not_parallel(lay: Layout | ParallelLayout | dict, args: argparse.Namespace) -> Layout | dict:
+    """Refuse a parallel-coupled layout in the verbs that handle end-coupled ones only."""
+    if isinstance(lay, ParallelLayout):
+        raise UsageError(
+            f"{args.layout}: a parallel-coupled layout; refine {args.run} handles end-coupled "
+            "layouts only so far (refine design judges and hands over parallel-coupled ones)"
+        )
+    return lay
+
+
 def _cmd_check(args: argparse.Namespace) -> int:
     problem = load_problem(args.problem)
-    lay = export.read_layout(args.layout)
+    lay = _not_parallel(export.read_layout(args.layout), args)
     f = verification_grid(problem)
     if isinstance(lay, dict):
         if problem.medium != "ideal":
@@ -812,7 +823,7 @@ def _free_widths(args: argparse.Namespace) -> bool | None:
 def _cmd_fullwave(args: argparse.Namespace) -> int:
 
     problem = load_problem(args.problem)
-    lay = export.read_layout(args.layout)
+    lay = _not_parallel(export.read_layout(args.layout), args)
     if isinstance(lay, dict):
         raise UsageError(
             f"{args.layout}: the field check needs a physical layout, not an electrical one"

@@ -466,7 +466,7 @@ STATUS_ORDER = ("met", "met on the nominal model only", "not met", "infeasible")
 
 
 def status_counts(counts: dict) -> str:
-    """"4 met, 1 met on the nominal model only, 0 not met, 2 infeasible" (every status named,
+    """ "4 met, 1 met on the nominal model only, 0 not met, 2 infeasible" (every status named,
     so that the counts add up to the designs done)."""
     return ", ".join(f"{counts.get(s, 0)} {s}" for s in STATUS_ORDER)
 

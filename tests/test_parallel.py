@@ -332,3 +332,16 @@ def test_field_model_of_a_parallel_coupled_layout():
     np.testing.assert_allclose(mesh.y - st.y_centre, -(mesh.y - st.y_centre)[::-1], atol=1e-12)
     lopsided = ParallelLayout(1.1e-3, (0.5e-3, 0.8e-3), (0.3e-3, 0.6e-3), (7.8e-3,) * 2, 1e-4)
     assert geometry.layout_structure(lopsided, sub, 5e-3).y_centre is None
+
+
+def test_parallel_layout_file_reads_back_and_other_verbs_refuse_it(tmp_path, capsys):
+    from refine.cli import main
+    from refine.outputs.export import parallel_layout_dict, read_layout, write_json
+
+    lay = ParallelLayout(1.1e-3, (0.5e-3, 0.8e-3), (0.3e-3, 0.6e-3), (7.8e-3, 7.7e-3), 1e-4)
+    path = write_json(tmp_path / "layout.json", parallel_layout_dict(lay))
+    assert read_layout(path) == lay
+    problem = Path(__file__).parent.parent / "problems" / "parallel" / "pcb-5g8-n3-6pct.toml"
+    for verb in (["check"], ["yield"]):
+        assert main([*verb, str(path), "--problem", str(problem)]) == 2
+        assert "a parallel-coupled layout" in capsys.readouterr().err

@@ -149,8 +149,9 @@ class LayoutFileError(ValueError):
     """A layout file that cannot be used; the message names the file, the key and the value."""
 
 
-def read_layout(path: str | Path) -> Layout | dict:
-    """Read a ``layout.json``: a :class:`Layout`, or the electrical dict for the ideal medium."""
+def read_layout(path: str | Path) -> Layout | ParallelLayout | dict:
+    """Read a ``layout.json``: a :class:`Layout`, a :class:`ParallelLayout` (``topology =
+    "parallel-coupled"``), or the electrical dict for the ideal medium."""
     p = Path(path)
     try:
         data = json.loads(p.read_text(encoding="utf-8"))
@@ -172,6 +173,8 @@ def read_layout(path: str | Path) -> Layout | dict:
         return data
     if data.get("units", "m") != "m":
         raise LayoutFileError(f"{p}: units = {data.get('units')!r}: only 'm' (metres) is used")
+    if data.get("topology") == "parallel-coupled":
+        return _read_parallel(p, data)
     for key in ("external", "feed_width", "widths", "gaps", "lengths"):
         if key not in data:
             raise LayoutFileError(f"{p}: missing key {key!r}")
@@ -198,6 +201,32 @@ def read_layout(path: str | Path) -> Layout | dict:
             tuple(data["gaps"]),
             tuple(data["lengths"]),
             None if taps is None else tuple(taps),
+        )
+    except (TypeError, ValueError) as e:
+        raise LayoutFileError(f"{p}: {e}") from None
+
+
+def _read_parallel(p: Path, data: dict) -> ParallelLayout:
+    for key in ("feed_width", "widths", "spacings", "lengths"):
+        if key not in data:
+            raise LayoutFileError(f"{p}: missing key {key!r}")
+    for key in ("feed_width", "feed_stub", "widths", "spacings", "lengths"):
+        value = data.get(key, 0.0)
+        items = value if isinstance(value, list) else [value]
+        for i, x in enumerate(items):
+            if isinstance(x, bool) or not isinstance(x, (int, float)):
+                where = key if not isinstance(value, list) else f"{key}[{i}]"
+                raise LayoutFileError(
+                    f"{p}: {where} = {x!r} is not a number; a layout file holds plain numbers "
+                    "in metres"
+                )
+    try:
+        return ParallelLayout(
+            float(data["feed_width"]),
+            tuple(data["widths"]),
+            tuple(data["spacings"]),
+            tuple(data["lengths"]),
+            float(data.get("feed_stub", 0.0)),
         )
     except (TypeError, ValueError) as e:
         raise LayoutFileError(f"{p}: {e}") from None
