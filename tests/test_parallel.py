@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import re
 import warnings
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -342,6 +343,31 @@ def test_parallel_layout_file_reads_back_and_other_verbs_refuse_it(tmp_path, cap
     path = write_json(tmp_path / "layout.json", parallel_layout_dict(lay))
     assert read_layout(path) == lay
     problem = Path(__file__).parent.parent / "problems" / "parallel" / "pcb-5g8-n3-6pct.toml"
-    for verb in (["check"], ["yield"]):
-        assert main([*verb, str(path), "--problem", str(problem)]) == 2
-        assert "a parallel-coupled layout" in capsys.readouterr().err
+    assert main(["check", str(path), "--problem", str(problem)]) == 2
+    assert "a parallel-coupled layout; refine check" in capsys.readouterr().err
+    end_coupled = Path(__file__).parent.parent / "problems" / "inf-pcb-gap-5g8-n3-3pct.toml"
+    assert main(["yield", str(path), "--problem", str(end_coupled)]) == 2
+    assert "describes an end-coupled filter" in capsys.readouterr().err
+
+
+def test_parallel_yield():
+    """Without tolerances or model error every board is the nominal design; with the shop's
+    tolerances the bundled 6 % design keeps most boards (its margin is several sigma of what
+    a 10 um etch error costs), and the yield carries its interval."""
+    from refine import design_parallel, load_problem
+    from refine.tolerance.parallel import estimate_parallel_yield
+
+    path = Path(__file__).parent.parent / "problems" / "parallel" / "pcb-5g8-n3-6pct.toml"
+    p = load_problem(path)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        r = design_parallel(p)
+        exact = replace(p, fab=replace(p.fab, gap_tolerance=None, width_tolerance=None))
+        none = estimate_parallel_yield(exact, r.layout, 50, seed=3, model_error=False)
+        some = estimate_parallel_yield(p, r.layout, 400, seed=3)
+    np.testing.assert_allclose(none.margins, none.nominal_margin, atol=1e-9)
+    assert none.yield_fraction == 1.0
+    assert some.nominal_margin == pytest.approx(none.nominal_margin, abs=1e-9)
+    assert some.margins.std() > 0.05 and 0.5 < some.yield_fraction <= 1.0
+    lo, hi = some.interval
+    assert lo <= some.yield_fraction <= hi
