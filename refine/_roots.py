@@ -50,3 +50,15 @@ def bracketed_root(
                 fb *= 0.5
             side = -1
     return x
+
+
+def largest_passing(ok: Callable[[float], bool], hi: float, steps: int = 40) -> float:
+    """The largest x in [0, hi] for which ``ok(x)`` holds, by bisection (``ok`` assumed to hold
+    below some x and fail above it); ``hi`` itself when it passes, 0 when nothing does."""
+    if ok(hi):
+        return hi
+    lo = 0.0
+    for _ in range(steps):
+        mid = 0.5 * (lo + hi)
+        lo, hi = (mid, hi) if ok(mid) else (lo, mid)
+    return lo

@@ -488,15 +488,7 @@ def _design(problem, args: argparse.Namespace, painters) -> int:
             touchstone2=args.touchstone_2,
             computed=computed,
         )
-        print()
-        print(f"wrote {len(written)} files to {args.out}: " + ", ".join(w.name for w in written))
-        if r.status is Status.MET_NOMINAL_ONLY:
-            print(
-                "  (they describe a design that meets the mask on the nominal circuit model, "
-                "not at every corner of its uncertainty)"
-            )
-        elif r.status is not Status.MET:
-            print("  (they describe the best design found, which does NOT meet the mask)")
+        _say_written(written, args.out, r.status)
         if args.fullwave is not None:
             print()
             print(f"field solver check (mesh {args.fullwave}) ...", flush=True)
@@ -581,16 +573,21 @@ def _design_parallel(problem, args: argparse.Namespace, force: bool = False) -> 
         print("FAB RULE VIOLATIONS: " + "; ".join(r.violations))
     if args.out is not None:
         written = parallel_files.write_parallel_outputs(r, args.out, args.force or force)
-        print()
-        print(f"wrote {len(written)} files to {args.out}: " + ", ".join(w.name for w in written))
-        if r.status is Status.MET_NOMINAL_ONLY:
-            print(
-                "  (they describe a design that meets the mask on the nominal circuit model, "
-                "not at every corner of its uncertainty)"
-            )
-        elif r.status is not Status.MET:
-            print("  (they describe the best design found, which does NOT meet the mask)")
+        _say_written(written, args.out, r.status)
     return STATUS_EXIT[r.status]
+
+
+def _say_written(written: list[Path], out: str, status: Status) -> None:
+    """The console's line for the hand-over files, and what they describe."""
+    print()
+    print(f"wrote {len(written)} files to {out}: " + ", ".join(w.name for w in written))
+    if status is Status.MET_NOMINAL_ONLY:
+        print(
+            "  (they describe a design that meets the mask on the nominal circuit model, "
+            "not at every corner of its uncertainty)"
+        )
+    elif status is not Status.MET:
+        print("  (they describe the best design found, which does NOT meet the mask)")
 
 
 def model_range_line(r) -> str | None:
@@ -717,16 +714,15 @@ def _cmd_yield(args: argparse.Namespace) -> int:
         cols |= {"tap_in_m": smp.taps[:, 0], "tap_out_m": smp.taps[:, 1]}
     if smp.eps_r is not None and smp.height is not None:
         cols |= {"eps_r": smp.eps_r, "height_m": smp.height}
-    import pandas as pd
-
-    frame = pd.DataFrame(cols)
-    export.write_atomic(out / "yield.csv", lambda p: frame.to_csv(p, index_label="sample"))
-    plot.yield_png(
-        out / "yield.png",
+    _write_yield(
+        out,
+        cols,
         res.margins,
         res.nominal_margin,
         problem.name,
-        f"yield {100 * res.yield_fraction:.1f} % of {res.samples} ({kind})",
+        res.samples,
+        res.yield_fraction,
+        kind,
     )
     print(f"wrote {out / 'yield.csv'} and {out / 'yield.png'}")
     return 0
@@ -803,24 +799,47 @@ def _yield_parallel(problem, lay: ParallelLayout, args: argparse.Namespace) -> i
         f"nominal worst margin {res.nominal_margin:+.2f} dB; sampled worst margin 5 % "
         f"{q[0]:+.2f}, median {q[1]:+.2f}, 95 % {q[2]:+.2f} dB"
     )
-    import pandas as pd
-
     cols: dict = {"worst_margin_db": res.margins, "meets_mask": res.margins >= 0}
     for k in range(res.widths.shape[1]):
         cols[f"spacing_{k + 1}_m"] = res.spacings[:, k]
         cols[f"width_{k + 1}_m"] = res.widths[:, k]
     out.mkdir(parents=True, exist_ok=True)
+    _write_yield(
+        out,
+        cols,
+        res.margins,
+        res.nominal_margin,
+        problem.name,
+        res.samples,
+        res.yield_fraction,
+        "parallel-coupled",
+    )
+    print(f"wrote {out / 'yield.csv'} and {out / 'yield.png'}")
+    return 0
+
+
+def _write_yield(
+    out: Path,
+    cols: dict,
+    margins,
+    nominal: float,
+    name: str,
+    samples: int,
+    fraction: float,
+    kind: str,
+) -> None:
+    """yield.csv (one row per board: ``cols``) and yield.png (the margins' histogram)."""
+    import pandas as pd
+
     frame = pd.DataFrame(cols)
     export.write_atomic(out / "yield.csv", lambda p: frame.to_csv(p, index_label="sample"))
     plot.yield_png(
         out / "yield.png",
-        res.margins,
-        res.nominal_margin,
-        problem.name,
-        f"yield {100 * res.yield_fraction:.1f} % of {res.samples} (parallel-coupled)",
+        margins,
+        nominal,
+        name,
+        f"yield {100 * fraction:.1f} % of {samples} ({kind})",
     )
-    print(f"wrote {out / 'yield.csv'} and {out / 'yield.png'}")
-    return 0
 
 
 def _not_parallel(lay: Layout | ParallelLayout | dict, args: argparse.Namespace) -> Layout | dict:

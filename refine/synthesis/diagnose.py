@@ -21,6 +21,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from refine import validity
+from refine._roots import largest_passing
 from refine.physics.strip import StripMedium
 from refine.spec.coupling import Coupling
 from refine.spec.fab import FabRules
@@ -115,13 +116,7 @@ def max_fbw(design: ElectricalDesign, j_limits: list[float], hi: float | None = 
     def ok(fbw: float) -> bool:
         return bool(np.all(inverter_j(g, fbw) <= np.array(j_limits)))
 
-    lo, hi = 0.0, min(design.fbw if hi is None else hi, 0.99)
-    if ok(hi):
-        return hi
-    for _ in range(60):
-        mid = 0.5 * (lo + hi)
-        lo, hi = (mid, hi) if ok(mid) else (lo, mid)
-    return lo
+    return largest_passing(ok, min(design.fbw if hi is None else hi, 0.99), steps=60)
 
 
 def diagnose(

@@ -39,6 +39,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from refine import _validate as v
 from refine import validity
+from refine._roots import largest_passing
 from refine.physics.coupled import CoupledMicrostrip, CoupledStripline, coupled_medium
 from refine.physics.strip import StripMedium, open_end_extensions
 from refine.synthesis.inverters import inverter_j
@@ -185,13 +186,7 @@ def max_fbw(
             return False
         return min(s.needed_spacing for s in secs) >= min_spacing
 
-    lo, top = 0.0, hi
-    if ok(top):
-        return top
-    for _ in range(30):
-        mid = 0.5 * (lo + top)
-        lo, top = (mid, top) if ok(mid) else (lo, mid)
-    return lo
+    return largest_passing(ok, hi, steps=30)
 
 
 __all__ = [
