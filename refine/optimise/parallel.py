@@ -47,8 +47,9 @@ from refine.spec.problem import Problem
 from refine.synthesis.parallel import realise_sections
 
 NOT_YET = (
-    "parallel-coupled: the feeds' width steps onto the end sections are not modelled; its yield "
-    "is refine yield's, its field check so far benchmarks/em_filters.py's"
+    "parallel-coupled: the feeds' width steps onto the end sections and radiation from the open "
+    "ends are not modelled; its yield is refine yield's, its field check so far "
+    "benchmarks/em_filters.py's"
 )
 #: relative ± on (Z_even, Z_odd, ε_eff even, ε_eff odd) of every section (see the module)
 UNCERTAINTY = (0.01, 0.01, 0.005, 0.005)

@@ -97,7 +97,8 @@ def report_md(r: ParallelResult) -> str:
     lines += [
         "## Sections",
         "",
-        f"Feed lines {lay.feed_width * 1e6:.1f} um wide; total length "
+        f"Feed lines {lay.feed_width * 1e6:.1f} um wide, each joining its end section through "
+        f"a {lay.feed_stub * 1e6:.1f} um stub of that section's strip width; total length "
         f"{lay.total_length * 1e3:.3f} mm along the filter.",
         "",
         "| section | strip width (um) | spacing (um) | length (mm) |",
