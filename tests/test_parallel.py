@@ -331,6 +331,9 @@ def test_field_model_of_a_parallel_coupled_layout():
     assert st.symmetric and st.y_centre == pytest.approx(0.5 * f_out.centre)
     mesh = geometry.build_mesh(st, sub, 8e9, geometry.MESHES["coarse"])
     np.testing.assert_allclose(mesh.y - st.y_centre, -(mesh.y - st.y_centre)[::-1], atol=1e-12)
+    thru = st.thru()  # the ports' calibration line: both ports on one straight strip
+    (line,) = thru.strips
+    assert thru.feeds[0].centre == thru.feeds[1].centre == 0.5 * (line.y0 + line.y1)
     lopsided = ParallelLayout(1.1e-3, (0.5e-3, 0.8e-3), (0.3e-3, 0.6e-3), (7.8e-3,) * 2, 1e-4)
     assert geometry.layout_structure(lopsided, sub, 5e-3).y_centre is None
 

@@ -142,6 +142,9 @@ class Structure:
         if f1.axis == "x":
             lo, hi = min(f1.edge, f2.edge), max(f1.edge, f2.edge)
             st = Strip(lo, f1.centre - half, hi, f1.centre + half, "thru")
+            if f2.centre != f1.centre:  # staggered feeds: both ports on the one straight line
+                f2 = replace(f2, centre=f1.centre)
+                return Structure((st,), (f1, f2), (), self.symmetric, f1.centre)
         else:  # tapped feeds: the first feed's line carried straight across the box
             top = far_edge if far_edge is not None else max(s.y1 for s in self.strips)
             st = Strip(f1.centre - half, f1.edge, f1.centre + half, top, "thru")
