@@ -621,8 +621,14 @@ def test_mesh_uncertainty_and_the_three_way_verdict():
     # X(h) = X0 + a h²: changes 0.48, 0.12 -> p = 2, error 0.12 / 3
     assert u.mesh_uncertainty([4.0, 2.0, 1.0], [1.64, 1.16, 1.04]) == pytest.approx(0.04)
     assert u.mesh_uncertainty([4.0, 2.0, 1.0], [1.0, 1.5, 1.2]) == pytest.approx(0.5)
-    # an observed order far above the cap (here about 13) is taken as 2: |d2| / (2**2 - 1)
-    assert u.mesh_uncertainty([4.0, 2.0, 1.0], [2.0, 1.1, 1.0999]) == pytest.approx(1e-4 / 3)
+    # an observed order far above the cap (here about 13) is taken as 2, and the near-zero last
+    # change as the one order 2 predicts from the change before (0.9 / 2**2): 0.225 / (2**2 - 1)
+    assert u.mesh_uncertainty([4.0, 2.0, 1.0], [2.0, 1.1, 1.0999]) == pytest.approx(0.075)
+    # below the cap nothing changes: observed order 1.5 -> |d2| / (2**1.5 - 1)
+    d2 = 0.8 / 2**1.5
+    assert u.mesh_uncertainty([4.0, 2.0, 1.0], [2.0, 1.2, 1.2 - d2]) == pytest.approx(
+        d2 / (2**1.5 - 1)
+    )
     fig = lambda m, unc: u.Figure("worst mask margin", "dB", (m,), unc)  # noqa: E731
     assert u.verdict(fig(0.5, 0.3)) is u.MeshVerdict.MET
     assert u.verdict(fig(-0.5, 0.3)) is u.MeshVerdict.NOT_MET

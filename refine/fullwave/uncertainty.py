@@ -53,7 +53,10 @@ def mesh_uncertainty(cells: Sequence[float], values: Sequence[float]) -> float |
     ``cells`` are the edge cells, coarsest first (the refinement ratio is read from them). With
     three meshes the observed order is capped at :data:`MAX_ORDER`: a much higher observed
     order (two nearly equal finer values) would give an estimate far below the last change,
-    which three meshes cannot support (the usual cap of grid-convergence practice, from memory)."""
+    which three meshes cannot support (the usual cap of grid-convergence practice, from memory).
+    For the same reason the last change is taken as at least the one the capped order predicts
+    from the change before it (|d1| / r^MAX_ORDER): a last change near zero is a coincidence of
+    two meshes (a figure oscillating about its limit), not proof of convergence."""
     if len(values) != len(cells):
         raise ValueError(f"{len(values)} values for {len(cells)} meshes")
     if len(values) < 2:
@@ -68,7 +71,7 @@ def mesh_uncertainty(cells: Sequence[float], values: Sequence[float]) -> float |
         return max(abs(d1), abs(d2))  # not converging monotonically: the largest change
     r = cells[-2] / cells[-1]
     p = min(math.log(abs(d1 / d2)) / math.log(r), MAX_ORDER)
-    return abs(d2) / (r**p - 1.0)
+    return max(abs(d2), abs(d1) / r**MAX_ORDER) / (r**p - 1.0)
 
 
 #: the highest observed order a three-mesh estimate trusts: twice the first order of FDTD with
