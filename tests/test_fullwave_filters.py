@@ -104,3 +104,20 @@ def test_parallel_coupled_bandwidth_is_within_one_percent_of_the_circuit_model(n
 def test_parallel_coupled_field_loss_exceeds_the_circuit_model_beyond_mesh_uncertainty(name):
     em, unc, model = _em_and_unc(name, "midband_loss_db")
     assert em - unc > model
+
+
+def test_the_cost_table_builds_the_meshes_the_campaign_solved():
+    """benchmarks/em_cost.py estimates a converged check's engine time from job sizes it builds
+    itself; on every solve the campaign finished, its mesh has the cell count the engine ran."""
+    import sys
+
+    sys.path.insert(0, str(DATA.parent.parent / "benchmarks"))
+    import em_cost
+
+    from refine.spec.problem import load_problem
+
+    for name in FILTERS:
+        problem = load_problem(em_cost.ROOT / "problems" / f"{name}.toml")
+        ladder = em_cost.ladder(problem, em_cost.layout_of(name, problem, DOC["runs"]))
+        for r in _meshes(name):
+            assert ladder[r["mesh_index"]]["cells"] == r["cells"], (name, r["mesh_index"])
