@@ -1,0 +1,110 @@
+"""A weakly coupled half-wave resonator on the field solver, from the fixture
+benchmarks/em_resonators.py writes.
+
+A 50 ohm half-wave resonator fed through end gaps one substrate height wide, solved on three
+meshes (every cell refined by the field check's ratio, thirds rule at metal edges), against
+refine's circuit model of the same layout with zero metal thickness. The field model's strips
+are zero-thickness perfect conductors (its conductor loss needs a thickness) on the lossy
+substrate; the circuit model keeps its conductor loss. What the data show, pinned here:
+
+- Resonance: on 0.635 mm alumina at 10 GHz the field solver's resonance rises with each
+  refinement (−0.03, +0.15, +0.25 % from the circuit model's), converging at an observed order
+  of about 1.7; at the finest mesh it is +0.25 ± 0.12 %, so the field-check issue's 0.2 % bar
+  holds only at the lower end of the mesh uncertainty, and the field solver sits above the
+  circuit model beyond it.
+- Loss: with lossless metal the field solver's unloaded Q is about 75, against 138 in the
+  circuit model with its conductor loss and Belohoubek–Denlinger's radiation (Q_r ≈ 190): what
+  the open resonator loses to radiation and surface waves in the field model is about 2.5
+  times the circuit model's radiation term.
+- Coupling: the field solver's external Q is about 1.5 times the circuit model's, i.e. the
+  s/h = 1 gaps couple about 18 % more weakly (in series capacitance) on the field solver than
+  in the bundled static calibration at 10 GHz.
+
+Unloaded and external Q follow from the loaded Q and the peak transmission of a symmetric
+resonator: |S21| = 1 − Q_L/Q_u = 2 Q_L/Q_e (common practice, no source).
+"""
+
+from __future__ import annotations
+
+import itertools
+import json
+import math
+
+import pytest
+from conftest import DATA
+
+from refine.fullwave import geometry
+from refine.fullwave.uncertainty import mesh_uncertainty
+
+DOC = json.loads((DATA / "fullwave-resonators.json").read_text())
+SUBSTRATES = sorted({r["substrate"] for r in DOC["runs"]})
+ALUMINA = "alumina 9.8, 0.635 mm"
+
+
+def _meshes(name: str) -> list[dict]:
+    return sorted((r for r in DOC["runs"] if r["substrate"] == name), key=lambda r: r["mesh_index"])
+
+
+def _q(side: dict) -> tuple[float, float]:
+    """(unloaded Q, external Q per port) of a symmetric resonator from its loaded Q and peak."""
+    s = 10 ** (side["peak_s21_db"] / 20)
+    return side["loaded_q"] / (1 - s), 2 * side["loaded_q"] / s
+
+
+def test_alumina_ran_on_three_meshes():
+    assert ALUMINA in SUBSTRATES
+    assert len(_meshes(ALUMINA)) == 3
+
+
+@pytest.mark.parametrize("name", SUBSTRATES)
+def test_meshes_refine_every_cell_and_carry_provenance(name):
+    runs = _meshes(name)
+    assert [r["mesh_index"] for r in runs] == list(range(len(runs)))
+    for a, b in itertools.pairwise(runs):
+        assert a["edge_cell_m"] / b["edge_cell_m"] == pytest.approx(geometry.REFINE_RATIO)
+        assert b["cells"] > a["cells"]
+    for r in runs:
+        assert r["edge_rule"] == "thirds" and r["engine"] and r["date"] and r["seconds"] > 0
+        assert r["layout"] == runs[0]["layout"]
+        assert r["edge_cell_m"] <= r["layout"]["gap"] / 2  # the gap resolved
+        # rang down: what was left at the time cap is far below the peak
+        assert r["tail"] < 1e-2
+        for side in ("em", "model"):
+            assert all(math.isfinite(v) for v in r[side].values())
+
+
+def _shift_and_unc(name: str) -> tuple[float, float]:
+    runs = _meshes(name)
+    fm = runs[-1]["model"]["resonance_hz"]
+    values = [r["em"]["resonance_hz"] for r in runs]
+    unc = mesh_uncertainty([r["edge_cell_m"] for r in runs], values)
+    assert unc is not None
+    return values[-1] / fm - 1, unc / fm
+
+
+def test_alumina_resonance_within_the_bar_only_at_the_low_end_of_its_mesh_uncertainty():
+    shift, unc = _shift_and_unc(ALUMINA)
+    assert abs(shift) - unc <= 0.002  # the issue's 0.2 % bar, within the mesh uncertainty
+    assert shift - unc > 0.0  # but the field solver's resonance is above the circuit model's
+    assert abs(shift) < 0.005 and unc < 0.002
+    # converging: each refinement moves it less than the one before
+    per_mesh = [r["em"]["resonance_hz"] for r in _meshes(ALUMINA)]
+    d = [b - a for a, b in itertools.pairwise(per_mesh)]
+    assert d[0] > 0 and 0 < d[1] < d[0]
+
+
+@pytest.mark.parametrize("name", SUBSTRATES)
+def test_field_solver_loses_far_more_than_the_circuit_models_radiation_term(name):
+    """Field: lossless metal, so what it loses beyond the dielectric is radiation and surface
+    waves; circuit: conductor loss plus radiation. The field's unloaded Q is still the lower."""
+    for r in _meshes(name):
+        qu_em, _ = _q(r["em"])
+        qu_model, _ = _q(r["model"])
+        assert qu_em < 0.65 * qu_model, r["mesh_index"]
+
+
+def test_alumina_s_over_h_one_gaps_couple_more_weakly_on_the_field_solver():
+    for r in _meshes(ALUMINA):
+        _, qe_em = _q(r["em"])
+        _, qe_model = _q(r["model"])
+        assert 1.3 < qe_em / qe_model < 1.7, r["mesh_index"]
