@@ -120,6 +120,34 @@ def test_the_field_model_builds_the_problems_enclosure():
     assert j["boundaries"][2:] == ["PEC", "PEC", "PEC", "PEC"]
 
 
+def test_matched_layers_as_open_walls_sit_beyond_the_margins():
+    """open_walls "pml": matched layers on the open sides and the top, their cells added beyond
+    the side margin and the air height (the box within them is the first-order one's); a
+    shielded box keeps its metal walls whatever the choice."""
+    gap_st = geometry.gap_structure(0.6e-3, 0.1e-3, 3e-3)
+    pml = f"PML_{geometry.PML_CELLS}"
+    assert geometry.boundaries(gap_st, "open", "pml") == [pml] * 4 + ["PEC", pml]
+    assert geometry.boundaries(gap_st, "shielded", "pml")[2:] == ["PEC"] * 4
+    with pytest.raises(ValueError, match="open_walls"):
+        geometry.boundaries(gap_st, "open", "matched")
+    with pytest.raises(ValueError, match="open_walls"):
+        replace(geometry.MESHES["coarse"], open_walls="matched")
+    first = geometry.build_mesh(gap_st, ALUMINA, 14e9, geometry.MESHES["coarse"])
+    res = replace(geometry.MESHES["coarse"], open_walls="pml")
+    padded = geometry.build_mesh(gap_st, ALUMINA, 14e9, res)
+    n = geometry.PML_CELLS
+    np.testing.assert_array_equal(padded.x, first.x)  # the feeds' axis: layers there already
+    np.testing.assert_allclose(padded.y[n:-n], first.y)
+    np.testing.assert_allclose(padded.z[:-n], first.z)
+    assert np.allclose(np.diff(padded.y[: n + 1]), first.y[1] - first.y[0])
+    assert np.allclose(np.diff(padded.z[-n - 1 :]), first.z[-1] - first.z[-2])
+    j = geometry.job(
+        gap_st, padded, ALUMINA, (4e9, 14e9), np.linspace(4e9, 14e9, 3), 1e-9, 1,
+        open_walls="pml",
+    )  # fmt: skip
+    assert j["boundaries"] == [pml] * 4 + ["PEC", pml]
+
+
 def test_thirds_rule_puts_the_edge_between_two_lines():
     """Each metal edge: a line a third of the edge cell inside the metal, one two thirds outside,
     none on the edge (common practice, no source); a gap's cell is at most half the gap."""

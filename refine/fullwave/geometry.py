@@ -46,6 +46,12 @@ REFINE_RATIO = 2**0.5
 #: the engine's sheet ends a fraction of a cell short or long.
 EDGE_RULES = ("on-edge", "thirds")
 
+#: The open enclosure's walls. "first-order": the engine's first-order absorbing boundary
+#: (Mur), exact only for waves meeting it head-on; "pml": a perfectly matched layer of
+#: :data:`PML_CELLS` cells inside the box edge, which absorbs at any angle.
+#: benchmarks/em_boundaries.py measures what each does to a line and an open end.
+OPEN_WALLS = ("first-order", "pml")
+
 
 @dataclass(frozen=True)
 class Resolution:
@@ -53,7 +59,8 @@ class Resolution:
     smallest gap; cells_per_wavelength: in the substrate at the top of the band; ratio: the
     largest growth between neighbouring cells; side_margin, air_above: the box beyond the copper
     on its open sides and above the substrate, in substrate heights; edge_rule: where the mesh
-    lines sit at a metal edge (:data:`EDGE_RULES`)."""
+    lines sit at a metal edge (:data:`EDGE_RULES`); open_walls: the absorbing walls of an open
+    enclosure (:data:`OPEN_WALLS`)."""
 
     name: str
     edge_cell: float
@@ -62,6 +69,7 @@ class Resolution:
     side_margin: float = 6.0
     air_above: float = 8.0
     edge_rule: str = "on-edge"
+    open_walls: str = "first-order"
 
     def __post_init__(self) -> None:
         v.positive("mesh edge_cell", self.edge_cell)
@@ -71,6 +79,7 @@ class Resolution:
             raise ValueError(
                 f"mesh edge_rule must be one of {', '.join(EDGE_RULES)}, got {self.edge_rule!r}"
             )
+        v.one_of("mesh open_walls", self.open_walls, OPEN_WALLS)
 
     def halved(self, times: int = 1) -> Resolution:
         return replace(self, name=f"{self.name}/{2**times}", edge_cell=self.edge_cell / 2**times)
@@ -266,7 +275,8 @@ def build_mesh(st: Structure, substrate: Substrate, f_max: float, res: Resolutio
     """Graded mesh: ``edge_cell`` (at most half the gap) at every strip edge, growing to the
     wavelength limit in open regions; the box reaches ``side_margin`` (6) substrate heights
     beyond the copper on its open sides and ``air_above`` (8) above the substrate (common
-    practice, no source)."""
+    practice, no source). With ``open_walls`` "pml" the matched layers' :data:`PML_CELLS`
+    cells are added beyond those distances, so that the layers do not eat into them."""
     h = substrate.height
     d_max = meshing.max_cell(f_max, substrate.eps_r, res.cells_per_wavelength)
     edge = min(res.edge_cell, d_max)
@@ -277,16 +287,21 @@ def build_mesh(st: Structure, substrate: Substrate, f_max: float, res: Resolutio
         "y": [min(s.y0 for s in st.strips), max(s.y1 for s in st.strips)],
     }
     feed_axes = {f.axis for f in st.feeds}
+    pad = PML_CELLS if res.open_walls == "pml" else 0  # matched layers beyond the margin
     lines = {}
     for axis in ("x", "y"):
         lo, hi = box[axis]
+        open_lo = open_hi = True
         if axis in feed_axes:
             out = {f.outward for f in st.feeds if f.axis == axis}
-            lo = lo if -1 in out else lo - margin
-            hi = hi if +1 in out else hi + margin
-        else:
-            lo, hi = lo - margin, hi + margin
-        lines[axis] = meshing.graded_lines(pts[axis], lo, hi, d_max, res.ratio)
+            open_lo, open_hi = -1 not in out, +1 not in out
+        lo = lo - margin if open_lo else lo
+        hi = hi + margin if open_hi else hi
+        lines[axis] = _padded(
+            meshing.graded_lines(pts[axis], lo, hi, d_max, res.ratio),
+            pad if open_lo else 0,
+            pad if open_hi else 0,
+        )
     if st.symmetric:
         f1, f2 = st.feeds
         if f1.axis == f2.axis == "x":
@@ -296,10 +311,20 @@ def build_mesh(st: Structure, substrate: Substrate, f_max: float, res: Resolutio
     if "y" not in feed_axes and st.y_centre is not None:
         lines["y"] = meshing.symmetric(lines["y"], st.y_centre)
     z_pts = [(0.0, min(h / 4.0, d_max)), (h, edge)]
-    lines["z"] = meshing.graded_lines(z_pts, 0.0, h + res.air_above * h, d_max, res.ratio)
+    lines["z"] = _padded(
+        meshing.graded_lines(z_pts, 0.0, h + res.air_above * h, d_max, res.ratio), 0, pad
+    )
     # guarantee a line exactly at the substrate top
     assert np.any(lines["z"] == h)
     return Mesh(lines["x"], lines["y"], lines["z"], edge, d_max)
+
+
+def _padded(lines: NDArray, lo: int, hi: int) -> NDArray:
+    """``lines`` with ``lo`` and ``hi`` more cells of the outermost size beyond each end."""
+    d_lo, d_hi = lines[1] - lines[0], lines[-1] - lines[-2]
+    before = lines[0] - d_lo * np.arange(lo, 0, -1)
+    after = lines[-1] + d_hi * np.arange(1, hi + 1)
+    return np.concatenate([before, lines, after])
 
 
 def edge_points(st: Structure, edge: float, rule: str) -> dict[str, list[tuple[float, float]]]:
@@ -327,14 +352,20 @@ def edge_points(st: Structure, edge: float, rule: str) -> dict[str, list[tuple[f
 ENCLOSURES = ("open", "shielded")  # the problem's [medium] enclosure, as the field model builds it
 
 
-def boundaries(st: Structure, enclosure: str = "open") -> list[str]:
+def boundaries(
+    st: Structure, enclosure: str = "open", open_walls: str = "first-order"
+) -> list[str]:
     """Absorbing layers where the feeds leave the box, PEC floor as the ground plane, and on
-    the other sides: first-order absorbing walls for an "open" enclosure (radiation leaves), or
-    metal walls and lid for a "shielded" one (the housing the problem states; the box's side
-    margin and air height place them)."""
+    the other sides: absorbing walls for an "open" enclosure (radiation leaves; first-order or
+    matched layers, :data:`OPEN_WALLS`), or metal walls and lid for a "shielded" one (the
+    housing the problem states; the box's side margin and air height place them)."""
     v.one_of("enclosure", enclosure, ENCLOSURES)
-    wall = "MUR" if enclosure == "open" else "PEC"
+    v.one_of("open_walls", open_walls, OPEN_WALLS)
     pml = f"PML_{PML_CELLS}"
+    if enclosure != "open":
+        wall = "PEC"
+    else:
+        wall = "MUR" if open_walls == "first-order" else pml
     axes = {f.axis for f in st.feeds}
     bx = [pml, pml] if "x" in axes else [wall, wall]
     by = [pml, pml] if "y" in axes else [wall, wall]
@@ -352,6 +383,7 @@ def job(
     threads: int = 0,
     lossy: bool = True,
     enclosure: str = "open",
+    open_walls: str = "first-order",
 ) -> dict:
     """The plain-data job the solver script runs (all lengths in metres)."""
     f_lo, f_hi = band
@@ -393,7 +425,7 @@ def job(
         "mesh": {"x": mesh.x.tolist(), "y": mesh.y.tolist(), "z": mesh.z.tolist()},
         "strips": [[s.x0, s.y0, s.x1, s.y1] for s in st.strips],
         "ports": ports,
-        "boundaries": boundaries(st, enclosure),
+        "boundaries": boundaries(st, enclosure, open_walls),
         "excitation": {"f0": f0, "fc": fc},
         "frequencies": np.asarray(f, float).tolist(),
         "max_time": float(max_time),
