@@ -37,8 +37,10 @@ RUNS = json.loads((DATA / "fullwave-lines.json").read_text())["runs"]
 
 
 def test_the_fixture_holds_every_substrate_on_every_mesh_with_its_provenance():
-    have = {(r["substrate"], r["edge_cell_m"]) for r in RUNS}
-    assert have == {(s, e) for s in em_lines.SUBSTRATES for e in em_lines.EDGE_CELLS}
+    have = {(r["substrate"], r["edge_cell_m"], em_lines.rule_of(r)) for r in RUNS}
+    want = {(s, e) for s in em_lines.SUBSTRATES for e in em_lines.EDGE_CELLS}
+    assert {(s, e) for s, e, rule in have if rule == "on-edge"} == want
+    assert {(s, e) for s, e, rule in have if rule == "thirds"} <= want
     for r in RUNS:
         assert r["engine"].startswith("openEMS") and r["date"] and r["cells"] > 10_000
         assert len(r["f_hz"]) == len(r["eps_eff"]) == len(r["z0_ohm"]) == em_lines.FREQUENCIES
