@@ -533,8 +533,10 @@ def _stand_in(monkeypatch):
             )
             comps.append(compare.compare(f, s_f, s_c, problem.mask))
         figures = verify.mesh_figures([50e-6, 25e-6], comps)
+        sheet = replace(problem, substrate=replace(problem.substrate, metal_thickness=0.0))
+        s_sheet = evaluate_layout(sheet, layout, f)  # as check_layout: the field model's sheets
         return verify.FieldCheck(
-            problem, layout, mesh, f, s_f, s_c, comps[-1], tuple(solves), None, figures
+            problem, layout, mesh, f, s_f, s_c, comps[-1], tuple(solves), None, figures, s_sheet
         )
 
     monkeypatch.setattr(verify, "check_layout", fake_check)
@@ -561,7 +563,14 @@ def test_fullwave_command_writes_its_files_and_extends_the_report(monkeypatch, t
     assert report.count("## Field-solver check") == 1
     assert "| centre (3 dB) GHz |" in report
     assert "Enclosure: open, as the problem states" in report
+    # the metal thickness the field model's sheets leave out, by the circuit model
+    assert "10 um metal thickness is not in the field model" in report
     data = json.loads((out / "summary.json").read_text())
+    shift = data["field_solver"]["thickness_margin_shift_db"]
+    assert shift is not None and shift != 0.0
+    figs = {f["figure"]: f for f in data["field_solver"]["mesh_figures"]}
+    mesh_unc = figs["worst mask margin"]["uncertainty"]
+    assert f"± {mesh_unc + abs(shift):.2f} dB" in report  # the verdict's interval counts it
     assert data["field_solver"]["mask"]["field_solver"]["passed"] is False
     assert data["field_solver"]["centre_shift_hz"] < 0  # higher eps_r: lower centre
     # again, with --force: the section is replaced, not repeated; without it, refused

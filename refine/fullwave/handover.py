@@ -8,6 +8,7 @@ import json
 import re
 from pathlib import Path
 
+from refine.fullwave.compare import compare
 from refine.fullwave.uncertainty import MeshVerdict
 from refine.fullwave.verify import FieldCheck
 from refine.outputs import export, plot
@@ -55,6 +56,8 @@ def check_dict(c: FieldCheck) -> dict:
         },
         "extrapolated": c.extrapolated,
         "mesh_verdict": c.verdict.name.lower().replace("_", " "),
+        # what the metal thickness (not in the field model) moves the margin on the circuit model
+        "thickness_margin_shift_db": c.thickness_shift,
         "mesh_figures": [
             {
                 "figure": fig.name,
@@ -75,6 +78,22 @@ ENCLOSURE_WORDS = {
 }
 
 
+def thickness_words(c: FieldCheck) -> str:
+    """What the field model's zero-thickness strips leave out, by the circuit model."""
+    if c.s_model_sheet is None or c.thickness_shift is None:
+        return ""
+    sheet = compare(c.f, c.s_em, c.s_model_sheet, c.problem.mask).model
+    model = c.comparison.model
+    t = c.problem.strip_substrate.metal_thickness * 1e6
+    return (
+        f" The problem's {t:g} um metal thickness is not in the field model: on the circuit "
+        f"model it moves the centre by {100 * (model.centre / sheet.centre - 1):+.2f} %, the "
+        f"worst in-band return loss from {sheet.worst_return_loss:.2f} to "
+        f"{model.worst_return_loss:.2f} dB and the worst mask margin by "
+        f"{c.thickness_shift:+.2f} dB, which the verdict counts as uncertainty."
+    )
+
+
 def section_md(c: FieldCheck) -> str:
     """The report section: what was solved, how long it took, and the comparison table."""
     comp = c.comparison
@@ -86,7 +105,8 @@ def section_md(c: FieldCheck) -> str:
         f"{sol.engine} (FDTD), mesh `{c.mesh}` (edge cells {cells} um, {sol.mesh.cells} cells on "
         f"the finest), {c.runs} engine runs in {c.seconds:.0f} s. Strips are zero-thickness "
         "sheets; dielectric loss at the band centre; reference planes as in the circuit model. "
-        + ENCLOSURE_WORDS[c.problem.enclosure],
+        + ENCLOSURE_WORDS[c.problem.enclosure]
+        + thickness_words(c),
         "",
         f"**Verdict: {c.verdict_sentence()}.**",
         "",
@@ -182,7 +202,7 @@ def _write_check(c: FieldCheck, out: Path) -> list[Path]:
             # one verdict at the top, circuit model and field solver side by side
             head, rest = text.split(VERDICT_START, 1)
             _, tail = rest.split(VERDICT_END, 1)
-            margin = c.figure("worst mask margin")
+            margin = c.judged_margin()
             both = combined_verdict(
                 bool(data.get("meets_mask_on_nominal_model", data["meets_mask"])),
                 float(data["worst_margin_db"]),
