@@ -80,7 +80,7 @@ def run_one(name: str, edge: float, rule: str = "on-edge") -> dict:
     st = line_structure(width, sub, res, band[1])
     mesh = geometry.build_mesh(st, sub, band[1], res)
     f = np.linspace(band[0], band[1], FREQUENCIES)
-    transit = float(np.hypot(mesh.x[-1] - mesh.x[0], mesh.y[-1] - mesh.y[0])) * np.sqrt(sub.eps_r)
+    transit = mesh.span * float(np.sqrt(sub.eps_r))
     max_time = geometry.pulse_length(band) + 6.0 * transit / C0
     job = geometry.job(st, mesh, sub, band, f, max_time, 1, 0, lossy=False)
     cells, steps = engine.job_size(job)

@@ -7,6 +7,7 @@ import itertools
 import json
 import math
 import os
+import sys
 from dataclasses import replace
 from pathlib import Path
 
@@ -19,7 +20,17 @@ from refine.circuit import cascade
 from refine.circuit.layout import Layout
 from refine.circuit.response import evaluate_layout
 from refine.cli import main
-from refine.fullwave import calibration, compare, engine, geometry, mesh, spacemap, verify, waves
+from refine.fullwave import (
+    calibration,
+    compare,
+    engine,
+    geometry,
+    handover,
+    mesh,
+    spacemap,
+    verify,
+    waves,
+)
 from refine.outputs import export
 from refine.physics import gap_fixture
 from refine.physics.strip import GAP_MODELS
@@ -117,7 +128,7 @@ def test_the_field_model_builds_the_problems_enclosure():
     j = geometry.job(
         gap_st, m, ALUMINA, (4e9, 14e9), np.linspace(4e9, 14e9, 3), 1e-9, 1, enclosure="shielded"
     )
-    assert j["boundaries"][2:] == ["PEC", "PEC", "PEC", "PEC"]
+    assert j["boundaries"][2:] == ["PMC", "PEC", "PEC", "PEC"]  # the half box's centre line
 
 
 def test_matched_layers_as_open_walls_sit_beyond_the_margins():
@@ -132,8 +143,9 @@ def test_matched_layers_as_open_walls_sit_beyond_the_margins():
         geometry.boundaries(gap_st, "open", "matched")
     with pytest.raises(ValueError, match="open_walls"):
         replace(geometry.MESHES["coarse"], open_walls="matched")
-    first = geometry.build_mesh(gap_st, ALUMINA, 14e9, geometry.MESHES["coarse"])
-    res = replace(geometry.MESHES["coarse"], open_walls="pml")
+    whole = replace(geometry.MESHES["coarse"], mirror=False)
+    first = geometry.build_mesh(gap_st, ALUMINA, 14e9, whole)
+    res = replace(whole, open_walls="pml")
     padded = geometry.build_mesh(gap_st, ALUMINA, 14e9, res)
     n = geometry.PML_CELLS
     np.testing.assert_array_equal(padded.x, first.x)  # the feeds' axis: layers there already
@@ -153,7 +165,7 @@ def test_thirds_rule_puts_the_edge_between_two_lines():
     none on the edge (common practice, no source); a gap's cell is at most half the gap."""
     gap, width = 40e-6, 0.6e-3
     st_ = geometry.gap_structure(width, gap, 3e-3)
-    res = geometry.Resolution("t", 50e-6, edge_rule="thirds")
+    res = geometry.Resolution("t", 50e-6, edge_rule="thirds", mirror=False)
     m = geometry.build_mesh(st_, ALUMINA, 14e9, res)
     d = gap / 2  # the gap's edges take half the gap
     for x, inside in ((0.0, -1), (gap, +1)):  # feed-in end (metal below), feed-out start
@@ -165,6 +177,65 @@ def test_thirds_rule_puts_the_edge_between_two_lines():
         assert np.min(np.abs(m.y - (y + inside * 50e-6 / 3))) < 1e-12
     with pytest.raises(ValueError, match="edge_rule must be one of on-edge, thirds"):
         geometry.Resolution("t", 50e-6, edge_rule="middle")
+
+
+def test_a_mirror_symmetric_layout_is_solved_as_the_half_box_above_its_centre_line():
+    """Gap-coupled copper is symmetric across the strips' centre line: the default mesh is the
+    half box above it, its first cell straddling the line (the engine's magnetic wall sits half
+    a cell inside the box edge), a magnetic wall there, the copper and ports cut at the box
+    edge; tapped feeds break the symmetry and keep the whole box."""
+    lay = _gap_layout()
+    length = geometry.feed_length(ALUMINA, lay.feed_width, 14e9, geometry.MESHES["coarse"])
+    st_ = geometry.layout_structure(lay, ALUMINA, length)
+    assert st_.mirror_line() == 0.0
+    assert geometry.layout_structure(_tap_layout(), ALUMINA, length).mirror_line() is None
+    shifted = replace(st_, strips=(*st_.strips[:-1], replace(st_.strips[-1], y1=1e-3)))
+    assert shifted.mirror_line() is None
+    whole_res = replace(geometry.MESHES["coarse"], mirror=False)
+    whole = geometry.build_mesh(st_, ALUMINA, 14e9, whole_res)
+    half = geometry.build_mesh(st_, ALUMINA, 14e9, geometry.MESHES["coarse"])
+    assert whole.mirror is None and half.mirror == 0.0
+    assert half.y[0] == pytest.approx(-half.y[1], abs=1e-15) and half.y[1] > 0
+    np.testing.assert_array_equal(half.y[1:], whole.y[whole.y > 1e-12])
+    assert half.cells < 0.55 * whole.cells
+    assert half.span == pytest.approx(whole.span, rel=1e-12)  # the simulated time: whole box's
+    band, f = (4e9, 14e9), np.linspace(4e9, 14e9, 3)
+    jw = geometry.job(st_, whole, ALUMINA, band, f, 1e-9, 1)
+    jh = geometry.job(st_, half, ALUMINA, band, f, 1e-9, 1)
+    assert jh["boundaries"][2] == "PMC" and jw["boundaries"][2] == "MUR"
+    assert jh["mirror"] and not jw["mirror"]
+    assert len(jh["strips"]) == len(jw["strips"])
+    for (x0, y0, x1, y1), (a0, b0, a1, b1) in zip(jh["strips"], jw["strips"], strict=True):
+        assert (x0, x1, y1) == (a0, a1, b1) and y0 == max(b0, half.y[0])
+    for p in jh["ports"]:
+        assert p["start"][1] == half.y[0]
+
+
+def test_the_half_box_solve_reports_the_whole_structures_currents(monkeypatch, tmp_path):
+    """A half box carries half of each strip's current at the same voltage: engine.run hands
+    back the whole structure's current and line impedance."""
+    script = tmp_path / "fake_engine.py"
+    script.write_text(
+        "import json, sys, numpy as np\n"
+        "job = json.load(open(sys.argv[1]))\n"
+        "n = len(job['frequencies'])\n"
+        "arrays = {}\n"
+        "for k in (1, 2):\n"
+        "    arrays.update({f'v{k}': np.ones(n, complex), f'i{k}': np.full(n, 0.01 + 0j),\n"
+        "                   f'zc{k}': np.full(n, 100 + 0j)})\n"
+        "np.savez(sys.argv[2], **arrays)\n"
+    )
+    monkeypatch.setattr(engine, "SCRIPT", script)
+    monkeypatch.setattr(engine, "find_engine", lambda: engine.Engine(sys.executable, "fake"))
+    st_ = geometry.gap_structure(0.6e-3, 0.1e-3, 3e-3)
+    f = np.linspace(4e9, 14e9, 3)
+    for mirror, scale in ((True, 2.0), (False, 1.0)):
+        res = replace(geometry.MESHES["coarse"], mirror=mirror)
+        m = geometry.build_mesh(st_, ALUMINA, 14e9, res)
+        r = engine.run(geometry.job(st_, m, ALUMINA, (4e9, 14e9), f, 1e-9, 1))
+        np.testing.assert_allclose(r["i1"], 0.01 * scale)
+        np.testing.assert_allclose(r["zc1"], 100 / scale)
+        np.testing.assert_allclose(r["v1"], 1.0)
 
 
 @pytest.mark.parametrize("make", [_gap_layout, _tap_layout])
@@ -497,12 +568,17 @@ def test_coarse_single_gap_end_to_end_against_the_fixture(fx, tmp_path):
     rec = fx.records[0]
     g = gap_fixture.GapGeometry(**rec["geometry"])
     coarse = rec["meshes"][0]
-    got = calibration.solve_gap(g, coarse["edge_cell"], workdir=tmp_path)
+    got = calibration.solve_gap(g, coarse["edge_cell"], workdir=tmp_path, mirror=False)
     assert got.cells == coarse["cells"]
     assert got.c_series == pytest.approx(coarse["c_series"], rel=0.01)
     assert got.c_shunt == pytest.approx(coarse["c_shunt"], rel=0.05)
     assert 1.10 < got.c_series / rec["c_series"] < 1.40
     assert (tmp_path / "thru" / "engine.log").exists()
+    # the default half box (magnetic wall on the centre line): half the cells, the same gap
+    half = calibration.solve_gap(g, coarse["edge_cell"])
+    assert half.cells < 0.55 * got.cells
+    assert half.c_series == pytest.approx(got.c_series, rel=0.005)
+    assert half.c_shunt == pytest.approx(got.c_shunt, rel=0.02)
 
 
 # ------------------------------------------------- command and hand-over (stand-in solver)
@@ -563,6 +639,7 @@ def test_fullwave_command_writes_its_files_and_extends_the_report(monkeypatch, t
     assert report.count("## Field-solver check") == 1
     assert "| centre (3 dB) GHz |" in report
     assert "Enclosure: open, as the problem states" in report
+    assert handover.HALF_WORDS not in report  # tapped feeds: the whole box
     # the metal thickness the field model's sheets leave out, by the circuit model
     assert "10 um metal thickness is not in the field model" in report
     data = json.loads((out / "summary.json").read_text())
@@ -629,6 +706,13 @@ def test_design_with_fullwave_puts_the_comparison_in_the_report(monkeypatch, tmp
     assert json.loads((out / "summary.json").read_text())["meets_mask_on_field_solver"] == "not met"
     assert "## Gap models against the field solver" in report
     assert (out / "fullwave.s2p").exists()
+
+
+def test_the_report_says_when_the_half_box_was_solved(monkeypatch):
+    _stand_in(monkeypatch)
+    problem = load_problem(TAP_PROBLEM)
+    text = handover.section_md(verify.check_layout(problem, _gap_layout()))
+    assert handover.HALF_WORDS in text
 
 
 def test_job_size_counts_cells_and_courant_steps():

@@ -69,10 +69,14 @@ class GapSolve:
     seconds: float
 
 
-def solve_gap(g: GapGeometry, edge_cell: float, workdir: str | Path | None = None) -> GapSolve:
-    """Field-solve one gap on one mesh (lossless: capacitances only)."""
+def solve_gap(
+    g: GapGeometry, edge_cell: float, workdir: str | Path | None = None, mirror: bool = True
+) -> GapSolve:
+    """Field-solve one gap on one mesh (lossless: capacitances only). mirror: solve the half
+    box above the strips' centre line (:class:`refine.fullwave.geometry.Resolution`); the
+    fixture's records were solved whole."""
     sub = Substrate(g.eps_r, g.height)
-    res = geometry.Resolution(f"edge {edge_cell * 1e6:g} um", edge_cell)
+    res = geometry.Resolution(f"edge {edge_cell * 1e6:g} um", edge_cell, mirror=mirror)
     lo, hi = extraction_band(g.height)
     f = np.linspace(lo, hi, 21)
     st = geometry.gap_structure(g.width, g.gap, geometry.feed_length(sub, g.width, hi, res))

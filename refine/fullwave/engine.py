@@ -179,6 +179,13 @@ def run(
             raise EngineFailed(f"the field solve failed (exit {returncode}):\n{tail}")
         with np.load(out_path) as data:
             result = {k: data[k] for k in data.files}
+    if job.get("mirror"):
+        # a half box (magnetic wall on the centre line) carries half of every strip's current
+        # at the same voltage: the whole structure's current is twice, its impedance half
+        for p in job["ports"]:
+            n = int(p["number"])
+            result[f"i{n}"] = 2.0 * result[f"i{n}"]
+            result[f"zc{n}"] = 0.5 * result[f"zc{n}"]
     result["seconds"] = seconds
     result["engine"] = engine.version
     return result

@@ -94,6 +94,13 @@ def thickness_words(c: FieldCheck) -> str:
     )
 
 
+#: said of a mesh that is the half box above the strips' centre line
+HALF_WORDS = (
+    ": the half box above the strips' centre line, a magnetic wall on it, as the layout is "
+    "mirror-symmetric across it"
+)
+
+
 def section_md(c: FieldCheck) -> str:
     """The report section: what was solved, how long it took, and the comparison table."""
     comp = c.comparison
@@ -103,7 +110,8 @@ def section_md(c: FieldCheck) -> str:
         SECTION,
         "",
         f"{sol.engine} (FDTD), mesh `{c.mesh}` (edge cells {cells} um, {sol.mesh.cells} cells on "
-        f"the finest), {c.runs} engine runs in {c.seconds:.0f} s. Strips are zero-thickness "
+        f"the finest{HALF_WORDS if sol.mesh.mirror is not None else ''}), {c.runs} engine runs "
+        f"in {c.seconds:.0f} s. Strips are zero-thickness "
         "sheets; dielectric loss at the band centre; reference planes as in the circuit model. "
         + ENCLOSURE_WORDS[c.problem.enclosure]
         + thickness_words(c),

@@ -48,8 +48,7 @@ class FieldSolve:
 
 def transit_time(mesh: geometry.Mesh, substrate: Substrate) -> float:
     """Time for a wave in the substrate to cross the box diagonal once (s)."""
-    span = math.dist((mesh.x[0], mesh.y[0]), (mesh.x[-1], mesh.y[-1]))
-    return span * math.sqrt(substrate.eps_r) / C0
+    return mesh.span * math.sqrt(substrate.eps_r) / C0
 
 
 def solve(
