@@ -81,7 +81,7 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict]) -> dict:
             taps=None if d["taps"] is None else tuple(d["taps"]),
         )
         status = mine[0]["status"]
-    res = verify.resolutions("converged", lay)[k]
+    res = same_box(verify.resolutions("converged", lay)[k], mine)
     t0 = time.perf_counter()
     c = verify.check_layout(
         problem, lay, threads=threads, meshes=[res], progress=lambda s: print(f"  {s}", flush=True)
@@ -95,6 +95,19 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict]) -> dict:
     return _record(name, k, res, status, layout, problem, c, t0)
 
 
+def same_box(res: geometry.Resolution, earlier: list[dict]) -> geometry.Resolution:
+    """``res`` with the walls and box of the filter's earlier meshes, so that one mesh sequence
+    never mixes two boxes (records before those keys: first-order walls, whole box)."""
+    if not earlier:
+        return res
+    first = earlier[0]
+    return replace(
+        res,
+        open_walls=first.get("open_walls", "first-order"),
+        mirror=bool(first.get("half_box", False)),
+    )
+
+
 def _record(name, k, res, status, layout: dict, problem, c, t0: float) -> dict:
     """One finished (filter, mesh) solve as the data file stores it."""
     cmp_ = c.comparison
@@ -104,6 +117,8 @@ def _record(name, k, res, status, layout: dict, problem, c, t0: float) -> dict:
         "edge_cell_m": res.edge_cell,
         "cells_per_wavelength": res.cells_per_wavelength,
         "edge_rule": res.edge_rule,
+        "open_walls": res.open_walls,
+        "half_box": c.solves[-1].mesh.mirror is not None,
         "status": status,
         "layout": layout,
         "fbw": problem.fbw,
@@ -142,7 +157,7 @@ def _run_parallel(name: str, problem, k: int, threads: int, earlier: list[dict])
             d["feed_width"], d["widths"], d["spacings"], d["lengths"], d["feed_stub"]
         )
         status = mine[0]["status"]
-    res = verify.resolutions("converged", lay)[k]
+    res = same_box(verify.resolutions("converged", lay)[k], mine)
     t0 = time.perf_counter()
     c = verify.check_layout(
         problem, lay, threads=threads, meshes=[res], progress=lambda s: print(f"  {s}", flush=True)

@@ -120,7 +120,9 @@ def group_delay_at_peak(f: NDArray, s21: NDArray) -> float:
     return float(gd[int(np.argmax(np.abs(s21)))])
 
 
-def run_one(name: str, k: int, threads: int) -> dict:
+def run_one(name: str, k: int, threads: int, earlier: list[dict] | None = None) -> dict:
+    """Mesh ``k`` of one resonator, in the walls and box of its earlier meshes if any (records
+    before those keys: first-order walls, whole box), the field check's defaults otherwise."""
     p = problem_for(name)
     lay = layout_for(name)
     f = frequencies(name)
@@ -128,6 +130,13 @@ def run_one(name: str, k: int, threads: int) -> dict:
     ring = RING_DELAYS * group_delay_at_peak(f, s_model[:, 1, 0])
     d = min(geometry.MESHES["coarse"].edge_cell, 0.5 * min(lay.gaps))
     res = geometry.Resolution("converged", d, edge_rule="thirds").refined(k)
+    mine = [r for r in earlier or [] if r["substrate"] == name]
+    if mine:
+        res = replace(
+            res,
+            open_walls=mine[0].get("open_walls", "first-order"),
+            mirror=bool(mine[0].get("half_box", False)),
+        )
     sub = p.strip_substrate
     band = (float(f[0]), float(f[-1]))
     length = geometry.feed_length(sub, lay.feed_width, band[1], res)
@@ -145,6 +154,8 @@ def run_one(name: str, k: int, threads: int) -> dict:
         "edge_cell_m": res.edge_cell,
         "cells_per_wavelength": res.cells_per_wavelength,
         "edge_rule": res.edge_rule,
+        "open_walls": res.open_walls,
+        "half_box": fs.mesh.mirror is not None,
         "problem": CASES[name][0],
         "gap_model": p.gap_model,
         "layout": {"width": lay.feed_width, "gap": lay.gaps[0], "length": lay.lengths[0]},
@@ -243,7 +254,7 @@ def main(argv: list[str] | None = None) -> int:
                 if any(r["substrate"] == name and r["mesh_index"] == k for r in runs):
                     continue
                 print(f"{name}, mesh {k + 1} of {MESHES} ...", flush=True)
-                runs.append(run_one(name, k, args.threads))
+                runs.append(run_one(name, k, args.threads, runs))
                 save(runs)
     text = table(runs)
     if args.readme:

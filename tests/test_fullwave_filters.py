@@ -118,6 +118,7 @@ def test_the_cost_table_builds_the_meshes_the_campaign_solved():
 
     for name in FILTERS:
         problem = load_problem(em_cost.ROOT / "problems" / f"{name}.toml")
-        ladder = em_cost.ladder(problem, em_cost.layout_of(name, problem, DOC["runs"]))
+        lay = em_cost.layout_of(name, problem, DOC["runs"])
         for r in _meshes(name):
+            ladder = em_cost.ladder(problem, lay, r)  # in the box the campaign solved
             assert ladder[r["mesh_index"]]["cells"] == r["cells"], (name, r["mesh_index"])

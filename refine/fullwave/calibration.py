@@ -70,13 +70,20 @@ class GapSolve:
 
 
 def solve_gap(
-    g: GapGeometry, edge_cell: float, workdir: str | Path | None = None, mirror: bool = True
+    g: GapGeometry,
+    edge_cell: float,
+    workdir: str | Path | None = None,
+    mirror: bool = True,
+    open_walls: str = "pml",
 ) -> GapSolve:
-    """Field-solve one gap on one mesh (lossless: capacitances only). mirror: solve the half
-    box above the strips' centre line (:class:`refine.fullwave.geometry.Resolution`); the
-    fixture's records were solved whole."""
+    """Field-solve one gap on one mesh (lossless: capacitances only). mirror, open_walls: the
+    half box above the strips' centre line, and the open box's walls
+    (:class:`refine.fullwave.geometry.Resolution`); the fixture's records were solved in the
+    whole box with first-order walls."""
     sub = Substrate(g.eps_r, g.height)
-    res = geometry.Resolution(f"edge {edge_cell * 1e6:g} um", edge_cell, mirror=mirror)
+    res = geometry.Resolution(
+        f"edge {edge_cell * 1e6:g} um", edge_cell, mirror=mirror, open_walls=open_walls
+    )
     lo, hi = extraction_band(g.height)
     f = np.linspace(lo, hi, 21)
     st = geometry.gap_structure(g.width, g.gap, geometry.feed_length(sub, g.width, hi, res))
