@@ -26,7 +26,6 @@ from __future__ import annotations
 
 import argparse
 import datetime
-import json
 import sys
 import time
 from pathlib import Path
@@ -38,6 +37,7 @@ from refine.physics import radiation
 from refine.physics.constants import C0
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
+import campaign_data
 from em_lines import SUBSTRATES
 from em_open_ends import GAP_OVER_H, width_of
 from readme_block import replace_block
@@ -115,7 +115,7 @@ def run_one(name: str, side: float, above: float, walls: str, threads: int = 0) 
 
 
 def load() -> list[dict]:
-    return json.loads(DATA.read_text())["runs"] if DATA.exists() else []
+    return campaign_data.load_runs(DATA)
 
 
 def save(runs: list[dict]) -> None:
@@ -125,9 +125,7 @@ def save(runs: list[dict]) -> None:
         "written by benchmarks/em_boundaries.py",
         "runs": runs,
     }
-    tmp = DATA.with_suffix(".tmp")
-    tmp.write_text(json.dumps(doc, indent=1) + "\n")
-    tmp.replace(DATA)
+    campaign_data.save_doc(DATA, doc)
 
 
 def find(runs: list[dict], name: str, walls: tuple[float, float, str]) -> dict | None:

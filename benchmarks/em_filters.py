@@ -21,7 +21,6 @@ from __future__ import annotations
 
 import argparse
 import datetime
-import json
 import sys
 import time
 import warnings
@@ -40,6 +39,7 @@ from refine.spec.problem import load_problem
 from refine.validity import ModelRangeWarning
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
+import campaign_data
 from readme_block import replace_block
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -166,7 +166,7 @@ def _run_parallel(name: str, problem, k: int, threads: int, earlier: list[dict])
 
 
 def load() -> list[dict]:
-    return json.loads(DATA.read_text())["runs"] if DATA.exists() else []
+    return campaign_data.load_runs(DATA)
 
 
 def save(runs: list[dict]) -> None:
@@ -176,9 +176,7 @@ def save(runs: list[dict]) -> None:
         "benchmarks/em_filters.py",
         "runs": runs,
     }
-    tmp = DATA.with_suffix(".tmp")
-    tmp.write_text(json.dumps(doc, indent=1) + "\n")
-    tmp.replace(DATA)
+    campaign_data.save_doc(DATA, doc)
 
 
 def summary(runs: list[dict], name: str) -> dict | None:

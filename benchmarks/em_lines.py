@@ -22,11 +22,11 @@ from __future__ import annotations
 
 import argparse
 import datetime
-import json
 import sys
 import time
 from pathlib import Path
 
+import campaign_data
 import numpy as np
 
 from refine.circuit.layout import Layout
@@ -146,7 +146,7 @@ def two_port_eps_eff(r: dict, f: np.ndarray) -> np.ndarray:
 
 
 def load() -> list[dict]:
-    return json.loads(DATA.read_text())["runs"] if DATA.exists() else []
+    return campaign_data.load_runs(DATA)
 
 
 def save(runs: list[dict]) -> None:
@@ -155,9 +155,7 @@ def save(runs: list[dict]) -> None:
         "thickness lossless strips; written by benchmarks/em_lines.py",
         "runs": runs,
     }
-    tmp = DATA.with_suffix(".tmp")
-    tmp.write_text(json.dumps(doc, indent=1) + "\n")
-    tmp.replace(DATA)
+    campaign_data.save_doc(DATA, doc)
 
 
 #: the engine's tolerances against the closed forms (the field-check issue's bar)

@@ -28,7 +28,6 @@ from __future__ import annotations
 
 import argparse
 import datetime
-import json
 import sys
 import time
 from dataclasses import replace
@@ -40,6 +39,7 @@ from refine.fullwave import calibration, engine, geometry, solve
 from refine.physics.constants import C0
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
+import campaign_data
 from em_lines import SUBSTRATES
 from em_open_ends import width_of
 from readme_block import replace_block
@@ -123,7 +123,7 @@ def run_gap(name: str, box: str) -> dict:
 
 
 def load() -> list[dict]:
-    return json.loads(DATA.read_text())["runs"] if DATA.exists() else []
+    return campaign_data.load_runs(DATA)
 
 
 def save(runs: list[dict]) -> None:
@@ -135,9 +135,7 @@ def save(runs: list[dict]) -> None:
         "by benchmarks/em_mirror.py",
         "runs": runs,
     }
-    tmp = DATA.with_suffix(".tmp")
-    tmp.write_text(json.dumps(doc, indent=1) + "\n")
-    tmp.replace(DATA)
+    campaign_data.save_doc(DATA, doc)
 
 
 def find(runs: list[dict], kind: str, name: str, box: str) -> dict | None:

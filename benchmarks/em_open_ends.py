@@ -42,6 +42,7 @@ from refine.physics.strip import open_end_extension
 from refine.physics.substrate import Substrate
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
+import campaign_data
 from em_lines import MESHES, SUBSTRATES
 from readme_block import replace_block
 
@@ -98,7 +99,7 @@ def run_one(name: str, rule: str, edge: float, threads: int = 0) -> dict:
 
 
 def load() -> list[dict]:
-    return json.loads(DATA.read_text())["runs"] if DATA.exists() else []
+    return campaign_data.load_runs(DATA)
 
 
 def save(runs: list[dict], refs: dict | None = None) -> None:
@@ -112,9 +113,7 @@ def save(runs: list[dict], refs: dict | None = None) -> None:
         doc["references_m"] = refs
     elif DATA.exists():
         doc["references_m"] = json.loads(DATA.read_text()).get("references_m", {})
-    tmp = DATA.with_suffix(".tmp")
-    tmp.write_text(json.dumps(doc, indent=1) + "\n")
-    tmp.replace(DATA)
+    campaign_data.save_doc(DATA, doc)
 
 
 #: the field-check issue's bar for the open end against Kirschning-Jansen-Koster

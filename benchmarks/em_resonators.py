@@ -27,7 +27,6 @@ from __future__ import annotations
 
 import argparse
 import datetime
-import json
 import sys
 import time
 from dataclasses import replace
@@ -46,6 +45,7 @@ from refine.spec.coupling import Coupling
 from refine.spec.problem import Problem, load_problem
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
+import campaign_data
 from readme_block import replace_block
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -171,7 +171,7 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict] | None = None) 
 
 
 def load() -> list[dict]:
-    return json.loads(DATA.read_text())["runs"] if DATA.exists() else []
+    return campaign_data.load_runs(DATA)
 
 
 def save(runs: list[dict]) -> None:
@@ -182,9 +182,7 @@ def save(runs: list[dict]) -> None:
         "(zero metal thickness, its conductor loss kept); written by benchmarks/em_resonators.py",
         "runs": runs,
     }
-    tmp = DATA.with_suffix(".tmp")
-    tmp.write_text(json.dumps(doc, indent=1) + "\n")
-    tmp.replace(DATA)
+    campaign_data.save_doc(DATA, doc)
 
 
 def summary(runs: list[dict], name: str) -> dict | None:

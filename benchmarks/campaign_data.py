@@ -1,0 +1,23 @@
+"""Reading and writing a field-solver campaign's data file (``tests/data/fullwave-*.json``).
+
+Every campaign script appends each finished solve to its file at once, so a killed campaign
+resumes where it stopped; the write goes to a temporary file first and replaces the old one in
+one step, so an interrupted write never leaves a half-written file.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+
+def load_runs(path: Path) -> list[dict]:
+    """The file's finished runs (none when it does not exist yet)."""
+    return json.loads(path.read_text())["runs"] if path.exists() else []
+
+
+def save_doc(path: Path, doc: dict) -> None:
+    """Write ``doc`` (its "what", its "runs" and anything else) to ``path`` atomically."""
+    tmp = path.with_suffix(".tmp")
+    tmp.write_text(json.dumps(doc, indent=1) + "\n")
+    tmp.replace(path)
