@@ -32,14 +32,14 @@ from pathlib import Path
 
 import numpy as np
 
-from refine.fullwave import calibration, geometry, solve, waves
+from refine.fullwave import calibration, geometry
 from refine.physics import radiation
-from refine.physics.constants import C0
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import campaign_data
+import em_open_ends
 from em_lines import SUBSTRATES
-from em_open_ends import GAP_OVER_H, width_of
+from em_open_ends import solve_open_end, width_of
 from readme_block import replace_block
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -61,7 +61,7 @@ WALLS = (
 )
 EDGE_CELL = 50e-6
 CELLS_PER_WAVELENGTH = 40
-FREQUENCIES = 21
+FREQUENCIES = em_open_ends.FREQUENCIES  # the solve is em_open_ends.solve_open_end
 
 
 def run_one(name: str, side: float, above: float, walls: str, threads: int = 0) -> dict:
@@ -77,17 +77,9 @@ def run_one(name: str, side: float, above: float, walls: str, threads: int = 0) 
         open_walls=walls,
         mirror=False,  # the whole box: the walls on both sides are what is studied
     )
-    lo, hi = calibration.extraction_band(sub.height)
-    f = np.linspace(lo, hi, FREQUENCIES)
-    gap = GAP_OVER_H * sub.height
-    st = geometry.gap_structure(width, gap, geometry.feed_length(sub, width, hi, res))
     t0 = time.perf_counter()
-    r = solve.solve(st, sub, f, 50.0, res, lossy=False, threads=threads)
-    pc = waves.pi_capacitances(r.abcd, f)
-    c_end = 0.5 * (pc.c_shunt_in + pc.c_shunt_out) + pc.c_series
-    z0 = np.real(r.zc)
-    eps_eff = (np.real(r.beta) * C0 / (2 * np.pi * f)) ** 2
-    dl = c_end * z0 * C0 / np.sqrt(eps_eff)
+    o = solve_open_end(name, res, threads)
+    r, f, gap, z0, eps_eff, dl = o.solve, o.f, o.gap, o.z0, o.eps_eff, o.extension
     a, b, _c, d = (np.asarray(x, complex) for x in r.abcd)
     # pi network from ABCD: series Z = B, shunt Y_in = (D - 1)/B, Y_out = (A - 1)/B
     g_shunt = 0.5 * np.real((d - 1) / b + (a - 1) / b)

@@ -30,6 +30,7 @@ import datetime
 import json
 import sys
 import time
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -57,6 +58,38 @@ def width_of(sub: Substrate, band: tuple[float, float]) -> float:
     return Microstrip(sub, loss=False).width_for_z0(50.0, 0.5 * sum(band))
 
 
+@dataclass(frozen=True)
+class OpenEnd:
+    """One solve of the open-end structure: the field solve, its frequencies, the gap, the
+    open end's capacitance (π-network shunt plus series), the line's Z0 and ε_eff from the thru
+    run, and the length extension Δl = C_end Z0 c / √ε_eff."""
+
+    solve: solve.FieldSolve
+    f: np.ndarray
+    gap: float
+    c_end: np.ndarray
+    z0: np.ndarray
+    eps_eff: np.ndarray
+    extension: np.ndarray
+
+
+def solve_open_end(name: str, res: geometry.Resolution, threads: int = 0) -> OpenEnd:
+    """Field-solve the open-end structure of substrate ``name`` (lossless) on mesh ``res``."""
+    sub, band = SUBSTRATES[name]
+    width = width_of(sub, band)
+    lo, hi = calibration.extraction_band(sub.height)
+    f = np.linspace(lo, hi, FREQUENCIES)
+    gap = GAP_OVER_H * sub.height
+    st = geometry.gap_structure(width, gap, geometry.feed_length(sub, width, hi, res))
+    r = solve.solve(st, sub, f, 50.0, res, lossy=False, threads=threads)
+    pc = waves.pi_capacitances(r.abcd, f)
+    c_end = 0.5 * (pc.c_shunt_in + pc.c_shunt_out) + pc.c_series
+    z0 = np.real(r.zc)
+    eps_eff = (np.real(r.beta) * C0 / (2 * np.pi * f)) ** 2
+    dl = c_end * z0 * C0 / np.sqrt(eps_eff)
+    return OpenEnd(r, f, gap, c_end, z0, eps_eff, dl)
+
+
 def run_one(name: str, rule: str, edge: float, threads: int = 0) -> dict:
     sub, band = SUBSTRATES[name]
     width = width_of(sub, band)
@@ -67,17 +100,9 @@ def run_one(name: str, rule: str, edge: float, threads: int = 0) -> dict:
         f"edge {edge * 1e6:g} um", edge, per_wavelength, edge_rule=rule,
         open_walls="first-order", mirror=False,
     )  # fmt: skip
-    lo, hi = calibration.extraction_band(sub.height)
-    f = np.linspace(lo, hi, FREQUENCIES)
-    gap = GAP_OVER_H * sub.height
-    st = geometry.gap_structure(width, gap, geometry.feed_length(sub, width, hi, res))
     t0 = time.perf_counter()
-    r = solve.solve(st, sub, f, 50.0, res, lossy=False, threads=threads)
-    pc = waves.pi_capacitances(r.abcd, f)
-    c_end = 0.5 * (pc.c_shunt_in + pc.c_shunt_out) + pc.c_series
-    z0 = np.real(r.zc)
-    eps_eff = (np.real(r.beta) * C0 / (2 * np.pi * f)) ** 2
-    dl = c_end * z0 * C0 / np.sqrt(eps_eff)
+    o = solve_open_end(name, res, threads)
+    r, f, gap, c_end, dl = o.solve, o.f, o.gap, o.c_end, o.extension
     return {
         "substrate": name,
         "rule": rule,
