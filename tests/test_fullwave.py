@@ -644,7 +644,7 @@ def test_fullwave_command_writes_its_files_and_extends_the_report(monkeypatch, t
     report = (out / "report.md").read_text()
     assert report.count("## Field-solver check") == 1
     assert "| centre (3 dB) GHz |" in report
-    assert "Enclosure: open, as the problem states" in report
+    assert "Enclosure: open, as the problem states (matched absorbing layers" in report
     assert handover.HALF_WORDS not in report  # tapped feeds: the whole box
     # the metal thickness the field model's sheets leave out, by the circuit model
     assert "10 um metal thickness is not in the field model" in report

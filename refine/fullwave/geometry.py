@@ -51,8 +51,8 @@ EDGE_RULES = ("on-edge", "thirds")
 #: layer of :data:`PML_CELLS` cells added beyond the side margin and the air height, which
 #: absorbs at any angle. benchmarks/em_boundaries.py measured both on a line and an open end:
 #: matched layers at 6 substrate heights and at 12 agree within 0.07 % in ε_eff and Z0 and
-#: 0.1 % in the open end's Δl; first-order walls at 6 h move ε_eff by up to 0.6 % (alumina) and
-#: 1 % (laminate) at the bottom of the band and the open end's radiated conductance by +9 % and
+#: 0.1 % in the open end's Δl; first-order walls at 6 h move ε_eff by up to 0.7 % (alumina) and
+#: 1.1 % (laminate) at the bottom of the band and the open end's radiated conductance by +9 % and
 #: +70 %, and on the laminate have not caught up even at 24 h.
 OPEN_WALLS = ("first-order", "pml")
 

@@ -71,7 +71,7 @@ def check_dict(c: FieldCheck) -> dict:
 
 
 ENCLOSURE_WORDS = {
-    "open": "Enclosure: open, as the problem states (absorbing walls 6 substrate heights beside "
+    "open": "Enclosure: open, as the problem states ({walls} 6 substrate heights beside "
     "the copper and 8 above it: radiation leaves).",
     "shielded": "Enclosure: shielded, as the problem states (metal side walls 6 substrate "
     "heights beside the copper and a metal lid 8 above it).",
@@ -94,6 +94,9 @@ def thickness_words(c: FieldCheck) -> str:
     )
 
 
+#: the open box's walls (refine.fullwave.geometry.OPEN_WALLS) in the report's words
+WALL_WORDS = {"pml": "matched absorbing layers", "first-order": "first-order absorbing walls"}
+
 #: said of a mesh that is the half box above the strips' centre line
 HALF_WORDS = (
     ": the half box above the strips' centre line, a magnetic wall on it, as the layout is "
@@ -113,7 +116,7 @@ def section_md(c: FieldCheck) -> str:
         f"the finest{HALF_WORDS if sol.mesh.mirror is not None else ''}), {c.runs} engine runs "
         f"in {c.seconds:.0f} s. Strips are zero-thickness "
         "sheets; dielectric loss at the band centre; reference planes as in the circuit model. "
-        + ENCLOSURE_WORDS[c.problem.enclosure]
+        + ENCLOSURE_WORDS[c.problem.enclosure].format(walls=WALL_WORDS[sol.resolution.open_walls])
         + thickness_words(c),
         "",
         f"**Verdict: {c.verdict_sentence()}.**",
