@@ -11,8 +11,14 @@ f*h = 4 GHz*mm up and within 2 % everywhere, highest (1.5-1.9 %) at the bottom o
 The port's own beta (measured across one cell) is 2-3 % high at the bottom of the band, within
 1 % only from 7 GHz*mm. Z0 (the port's voltage-current impedance) agrees within 2 % up to
 f*h = 5 GHz*mm and drifts upward with the mesh above. The field-check issue's bar (1 % in
-eps_eff, 2 % in Z0 over the whole band) is not met; the README's table (written by the same
-script) says so.
+eps_eff, 2 % in Z0 over the whole band) is not met in that first set-up (lines on the strip
+edges, first-order walls at 6 h).
+
+The campaign ran twice more (em_lines.SETUPS): with the thirds rule, and with the thirds rule,
+matched-layer walls and the half box, the field check's defaults. In the last the two-port
+eps_eff is within 0.4 % over the whole band (the bar holds); the port's own eps_eff is still
+high at the bottom of the band, and its Z0 meets 2 % only up to f*h = 3 GHz*mm. The README's
+table (written by the same script) gives all three.
 """
 
 from __future__ import annotations
@@ -37,10 +43,13 @@ RUNS = json.loads((DATA / "fullwave-lines.json").read_text())["runs"]
 
 
 def test_the_fixture_holds_every_substrate_on_every_mesh_with_its_provenance():
-    have = {(r["substrate"], r["edge_cell_m"], em_lines.rule_of(r)) for r in RUNS}
+    have = {
+        (r["substrate"], r["edge_cell_m"], em_lines.rule_of(r), em_lines.walls_of(r))
+        for r in RUNS
+    }
     want = {(s, e) for s in em_lines.SUBSTRATES for e in em_lines.EDGE_CELLS}
-    assert {(s, e) for s, e, rule in have if rule == "on-edge"} == want
-    assert {(s, e) for s, e, rule in have if rule == "thirds"} <= want
+    for setup in em_lines.SETUPS:
+        assert {(s, e) for s, e, *su in have if tuple(su) == setup} == want, setup
     for r in RUNS:
         assert r["engine"].startswith("openEMS") and r["date"] and r["cells"] > 10_000
         assert len(r["f_hz"]) == len(r["eps_eff"]) == len(r["z0_ohm"]) == em_lines.FREQUENCIES
@@ -98,6 +107,50 @@ def test_z0_is_within_two_percent_up_to_5_ghz_mm(name):
     d = em_lines.deviations(RUNS, name)
     fh = d["f"] * 1e-9 * _height(name) * 1e3
     assert np.all(np.abs(d["z0"][-1][fh <= 5.0]) < 0.02)
+
+
+# ------------------------------------------------- the field check's defaults (thirds, matched layers)
+#
+# The same lines with the thirds rule at the strip edges, matched-layer walls and the half box
+# (refine.fullwave.geometry.Resolution's defaults since benchmarks/em_boundaries.py and
+# em_mirror.py). The bounds are the field-check issue's (1 % in eps_eff, 2 % in Z0) where they
+# hold, and what was measured where they do not.
+
+DEFAULTS = ("thirds", "pml")
+
+
+@pytest.mark.parametrize("name", list(em_lines.SUBSTRATES))
+def test_default_set_up_two_port_eps_eff_is_within_half_a_percent_over_the_whole_band(name):
+    """With matched-layer walls the two-port eps_eff lies within 0.4 % of the closed forms from
+    the bottom of the band to its top (the 1.4-1.8 % at the bottom with first-order walls was
+    the walls)."""
+    d = em_lines.deviations(RUNS, name, *DEFAULTS)
+    assert d["meshes"] == list(em_lines.EDGE_CELLS)
+    assert np.all(np.abs(d["eps_eff_two_port"][-1]) < 0.005)
+    old = em_lines.deviations(RUNS, name, "thirds", "first-order")
+    assert old["eps_eff_two_port"][-1][0] - d["eps_eff_two_port"][-1][0] > 0.008
+
+
+@pytest.mark.parametrize("name", list(em_lines.SUBSTRATES))
+def test_default_set_up_port_eps_eff_is_high_at_the_bottom_of_the_band(name):
+    """The port's own beta (across one cell) stays 1-2.5 % high at the bottom of the band and is
+    within 1 % from f*h = 5.5 GHz*mm: a two-port figure, not the port's, is the one to trust
+    there."""
+    d = em_lines.deviations(RUNS, name, *DEFAULTS)
+    fh = d["f"] * 1e-9 * _height(name) * 1e3
+    assert np.all(np.abs(d["eps_eff"][-1][fh >= 5.5]) < 0.01)
+    assert 0.008 < d["eps_eff"][-1][0] < 0.03
+
+
+@pytest.mark.parametrize("name", list(em_lines.SUBSTRATES))
+def test_default_set_up_z0_is_within_two_percent_only_at_low_f_h(name):
+    """The port's voltage-current Z0 agrees within 2 % up to f*h = 3 GHz*mm and then rises
+    faster than the Jansen-Kirschning dispersion (a power-current impedance), to 2.4-5.4 % at
+    the top of the band: the issue's 2 % bar for Z0 is not met there."""
+    d = em_lines.deviations(RUNS, name, *DEFAULTS)
+    fh = d["f"] * 1e-9 * _height(name) * 1e3
+    assert np.all(np.abs(d["z0"][-1][fh <= 3.0]) < 0.02)
+    assert 0.02 < d["z0"][-1][-1] < 0.06
 
 
 def _height(name: str) -> float:
