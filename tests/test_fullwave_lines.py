@@ -44,8 +44,7 @@ RUNS = json.loads((DATA / "fullwave-lines.json").read_text())["runs"]
 
 def test_the_fixture_holds_every_substrate_on_every_mesh_with_its_provenance():
     have = {
-        (r["substrate"], r["edge_cell_m"], em_lines.rule_of(r), em_lines.walls_of(r))
-        for r in RUNS
+        (r["substrate"], r["edge_cell_m"], em_lines.rule_of(r), em_lines.walls_of(r)) for r in RUNS
     }
     want = {(s, e) for s in em_lines.SUBSTRATES for e in em_lines.EDGE_CELLS}
     for setup in em_lines.SETUPS:
