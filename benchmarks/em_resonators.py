@@ -186,19 +186,27 @@ def save(runs: list[dict]) -> None:
 
 
 def summary(runs: list[dict], name: str) -> dict | None:
-    """Finest-mesh figures with their mesh uncertainty (None until two meshes ran)."""
+    """Finest-mesh figures with their mesh uncertainty (None while one mesh has run), or None
+    before any."""
     mine = sorted((r for r in runs if r["substrate"] == name), key=lambda r: r["mesh_index"])
-    if len(mine) < 2:
+    if not mine:
         return None
     cells = [r["edge_cell_m"] for r in mine]
     out: dict = {"model": mine[-1]["model"], "meshes": len(mine), "gap_model": mine[0]["gap_model"]}
     for key in ("resonance_hz", "loaded_q"):
         values = [r["em"][key] for r in mine]
-        out[key] = (values[-1], mesh_uncertainty(cells, values))
+        out[key] = (values[-1], mesh_uncertainty(cells, values) if len(mine) > 1 else None)
     out["per_mesh_shift"] = [r["em"]["resonance_hz"] / r["model"]["resonance_hz"] - 1 for r in mine]
     out["finest_em"] = mine[-1]["em"]
     out["seconds"] = sum(r["seconds"] for r in mine)
     out["tail"] = max(r["tail"] for r in mine)
+    half = bool(mine[0].get("half_box", False))
+    walls = (
+        "matched layers"
+        if mine[0].get("open_walls", "first-order") == "pml"
+        else "first-order walls"
+    )
+    out["box"] = f"{walls}, {'half' if half else 'whole'} box"
     return out
 
 
@@ -226,9 +234,11 @@ def table(runs: list[dict]) -> str:
         per = " / ".join(f"{100 * x:+.2f}" for x in s["per_mesh_shift"])
         qu_e, qe_e = unloaded_and_external_q(s["finest_em"])
         qu_m, qe_m = unloaded_and_external_q(s["model"])
+        pm_f = "(one mesh)" if dfe is None else f"± {100 * dfe / fm:.2f} %"
+        pm_q = "(one mesh)" if dq is None else f"± {dq:.0f}"
         rows.append(
-            f"| {name} ({s['gap_model']}) | {fm / 1e9:.4f} GHz | {100 * (fe / fm - 1):+.2f} ± "
-            f"{100 * dfe / fm:.2f} % | {per} % | {q:.0f} ± {dq:.0f} "
+            f"| {name} ({s['gap_model']}; {s['box']}) | {fm / 1e9:.4f} GHz | "
+            f"{100 * (fe / fm - 1):+.2f} % {pm_f} | {per} % | {q:.0f} {pm_q} "
             f"({s['model']['loaded_q']:.0f}) | {qu_e:.0f} ({qu_m:.0f}) | {qe_e:.0f} ({qe_m:.0f}) | "
             f"{s['meshes']}, {s['seconds'] / 60:.0f} min |"
         )

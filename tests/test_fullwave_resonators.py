@@ -12,6 +12,9 @@ substrate; the circuit model keeps its conductor loss. What the data show, pinne
   of about 1.7; at the finest mesh it is +0.25 ± 0.12 %, so the field-check issue's 0.2 % bar
   holds only at the lower end of the mesh uncertainty, and the field solver sits above the
   circuit model beyond it.
+- Laminate (3.55, 0.508 mm, 5.8 GHz; matched-layer walls and the half box, first mesh so
+  far): resonance −0.36 %, unloaded Q about 250 with lossless metal against 140 in the circuit
+  model, gaps as calibrated.
 - Loss: with lossless metal the field solver's unloaded Q is about 75, against 138 in the
   circuit model with its conductor loss and Belohoubek–Denlinger's radiation (Q_r ≈ 190): what
   the open resonator loses to radiation and surface waves in the field model is about 2.5
@@ -93,14 +96,35 @@ def test_alumina_resonance_within_the_bar_only_at_the_low_end_of_its_mesh_uncert
     assert d[0] > 0 and 0 < d[1] < d[0]
 
 
-@pytest.mark.parametrize("name", SUBSTRATES)
-def test_field_solver_loses_far_more_than_the_circuit_models_radiation_term(name):
+def test_alumina_field_solver_loses_far_more_than_the_circuit_models_radiation_term():
     """Field: lossless metal, so what it loses beyond the dielectric is radiation and surface
-    waves; circuit: conductor loss plus radiation. The field's unloaded Q is still the lower."""
-    for r in _meshes(name):
+    waves; circuit: conductor loss plus radiation. The field's unloaded Q is still the lower.
+    (Solved with first-order walls at 6 h, which the boundary study puts about 9 % high in an
+    open end's radiated conductance on alumina: far less than the gap.)"""
+    for r in _meshes(ALUMINA):
         qu_em, _ = _q(r["em"])
         qu_model, _ = _q(r["model"])
         assert qu_em < 0.65 * qu_model, r["mesh_index"]
+
+
+LAMINATE = "laminate 3.55, 0.508 mm"
+
+
+def test_laminate_resonator_in_the_defaults_box_loses_less_than_the_circuit_model():
+    """The laminate resonator in the field check's defaults (matched layers, half box), first
+    mesh so far: resonance 0.36 % below the circuit model's (one mesh: no uncertainty yet);
+    with lossless metal its unloaded Q (about 250) is above the circuit model's with conductor
+    loss (about 140), so on this substrate the radiation the field solver sees is small next to
+    the conductor loss; the s/h = 1 gaps couple as the calibration says (external Q within
+    5 %)."""
+    runs = _meshes(LAMINATE)
+    assert runs and runs[0]["open_walls"] == "pml" and runs[0]["half_box"]
+    r = runs[0]
+    shift = r["em"]["resonance_hz"] / r["model"]["resonance_hz"] - 1
+    assert -0.006 < shift < 0.0
+    (qu_em, qe_em), (qu_model, qe_model) = _q(r["em"]), _q(r["model"])
+    assert qu_em > 1.5 * qu_model
+    assert qe_em / qe_model == pytest.approx(1.0, abs=0.05)
 
 
 def test_alumina_s_over_h_one_gaps_couple_more_weakly_on_the_field_solver():
