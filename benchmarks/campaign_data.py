@@ -16,6 +16,16 @@ def load_runs(path: Path) -> list[dict]:
     return json.loads(path.read_text())["runs"] if path.exists() else []
 
 
+def box_of(record: dict) -> dict:
+    """The box a campaign record was solved in, as ``Resolution`` fields (``open_walls`` and
+    ``mirror``); records from before those keys were solved whole with first-order walls.
+    A campaign resumes in the box it started in: ``replace(res, **box_of(first_record))``."""
+    return {
+        "open_walls": str(record.get("open_walls", "first-order")),
+        "mirror": bool(record.get("half_box", False)),
+    }
+
+
 def save_doc(path: Path, doc: dict) -> None:
     """Write ``doc`` (its "what", its "runs" and anything else) to ``path`` atomically."""
     tmp = path.with_suffix(".tmp")

@@ -38,6 +38,7 @@ from refine.spec.problem import Problem, load_problem
 from refine.validity import ModelRangeWarning
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
+import campaign_data
 from em_filters import DATA, FILTERS
 from readme_block import replace_block
 
@@ -88,11 +89,7 @@ def ladder(problem: Problem, lay: Layout | ParallelLayout, like: dict | None = N
     out = []
     for res in verify.resolutions("converged", lay):
         if like is not None:
-            res = replace(
-                res,
-                open_walls=like.get("open_walls", "first-order"),
-                mirror=bool(like.get("half_box", False)),
-            )
+            res = replace(res, **campaign_data.box_of(like))
         length = geometry.feed_length(sub, lay.feed_width, band[1], res)
         st = geometry.layout_structure(lay, sub, length)
         mesh = geometry.build_mesh(st, sub, band[1], res)

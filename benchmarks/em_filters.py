@@ -100,12 +100,7 @@ def same_box(res: geometry.Resolution, earlier: list[dict]) -> geometry.Resoluti
     never mixes two boxes (records before those keys: first-order walls, whole box)."""
     if not earlier:
         return res
-    first = earlier[0]
-    return replace(
-        res,
-        open_walls=first.get("open_walls", "first-order"),
-        mirror=bool(first.get("half_box", False)),
-    )
+    return replace(res, **campaign_data.box_of(earlier[0]))
 
 
 def _record(name, k, res, status, layout: dict, problem, c, t0: float) -> dict:

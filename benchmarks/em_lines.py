@@ -30,7 +30,7 @@ import campaign_data
 import numpy as np
 
 from refine.circuit.layout import Layout
-from refine.fullwave import engine, geometry, waves
+from refine.fullwave import engine, geometry, solve, waves
 from refine.fullwave.uncertainty import mesh_uncertainty
 from refine.physics.constants import C0
 from refine.physics.microstrip import Microstrip
@@ -70,7 +70,7 @@ def rule_of(run: dict) -> str:
 
 def walls_of(run: dict) -> str:
     """A run's open walls (records before the key: first-order walls, whole box)."""
-    return str(run.get("open_walls", "first-order"))
+    return campaign_data.box_of(run)["open_walls"]
 
 
 def line_structure(width: float, sub: Substrate, res: geometry.Resolution, f_max: float):
@@ -96,8 +96,7 @@ def run_one(name: str, edge: float, rule: str = "on-edge", walls: str = "first-o
     st = line_structure(width, sub, res, band[1])
     mesh = geometry.build_mesh(st, sub, band[1], res)
     f = np.linspace(band[0], band[1], FREQUENCIES)
-    transit = mesh.span * float(np.sqrt(sub.eps_r))
-    max_time = geometry.pulse_length(band) + 6.0 * transit / C0
+    max_time = geometry.pulse_length(band) + 6.0 * solve.transit_time(mesh, sub)
     job = geometry.job(st, mesh, sub, band, f, max_time, 1, 0, lossy=False)
     cells, steps = engine.job_size(job)
     t0 = time.perf_counter()

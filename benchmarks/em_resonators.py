@@ -132,11 +132,7 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict] | None = None) 
     res = geometry.Resolution("converged", d, edge_rule="thirds").refined(k)
     mine = [r for r in earlier or [] if r["substrate"] == name]
     if mine:
-        res = replace(
-            res,
-            open_walls=mine[0].get("open_walls", "first-order"),
-            mirror=bool(mine[0].get("half_box", False)),
-        )
+        res = replace(res, **campaign_data.box_of(mine[0]))
     sub = p.strip_substrate
     band = (float(f[0]), float(f[-1]))
     length = geometry.feed_length(sub, lay.feed_width, band[1], res)
@@ -200,13 +196,9 @@ def summary(runs: list[dict], name: str) -> dict | None:
     out["finest_em"] = mine[-1]["em"]
     out["seconds"] = sum(r["seconds"] for r in mine)
     out["tail"] = max(r["tail"] for r in mine)
-    half = bool(mine[0].get("half_box", False))
-    walls = (
-        "matched layers"
-        if mine[0].get("open_walls", "first-order") == "pml"
-        else "first-order walls"
-    )
-    out["box"] = f"{walls}, {'half' if half else 'whole'} box"
+    box = campaign_data.box_of(mine[0])
+    walls = "matched layers" if box["open_walls"] == "pml" else "first-order walls"
+    out["box"] = f"{walls}, {'half' if box['mirror'] else 'whole'} box"
     return out
 
 

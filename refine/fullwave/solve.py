@@ -83,8 +83,7 @@ def solve(
         return work / name if work is not None else None
 
     thru_st = st.thru(far_edge=float(mesh.y[-1]))
-    walls = res.open_walls
-    jt = geometry.job(thru_st, mesh, substrate, band, f, base, 1, threads, lossy, enclosure, walls)
+    jt = geometry.job(thru_st, mesh, substrate, band, f, base, 1, threads, lossy, enclosure)
     rt = engine.run(jt, sub("thru"), progress=progress, label="thru run")
     zc = {1: rt["zc1"], 2: rt["zc2"]}
     beta = {1: rt["beta1"], 2: rt["beta2"]}
@@ -94,7 +93,7 @@ def solve(
     states = []
     for k in (1,) if st.symmetric else (1, 2):
         jd = geometry.job(
-            st, mesh, substrate, band, f, base + ringing, k, threads, lossy, enclosure, walls
+            st, mesh, substrate, band, f, base + ringing, k, threads, lossy, enclosure
         )
         r = engine.run(jd, sub(f"excite-{k}"), progress=progress, label=f"excitation {k}")
         runs += 1
