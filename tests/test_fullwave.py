@@ -226,7 +226,7 @@ def test_the_half_box_solve_reports_the_whole_structures_currents(monkeypatch, t
         "arrays = {}\n"
         "for k in (1, 2):\n"
         "    arrays.update({f'v{k}': np.ones(n, complex), f'i{k}': np.full(n, 0.01 + 0j),\n"
-        "                   f'zc{k}': np.full(n, 100 + 0j)})\n"
+        "                   f'zc{k}': np.full(n, 100 + 0j), f'yi{k}': np.full(5, 0.01)})\n"
         "np.savez(sys.argv[2], **arrays)\n"
     )
     monkeypatch.setattr(engine, "SCRIPT", script)
@@ -238,6 +238,7 @@ def test_the_half_box_solve_reports_the_whole_structures_currents(monkeypatch, t
         m = geometry.build_mesh(st_, ALUMINA, 14e9, res)
         r = engine.run(geometry.job(st_, m, ALUMINA, (4e9, 14e9), f, 1e-9, 1))
         np.testing.assert_allclose(r["i1"], 0.01 * scale)
+        np.testing.assert_allclose(r["yi1"], 0.01 * scale)  # the time record behind i1 too
         np.testing.assert_allclose(r["zc1"], 100 / scale)
         np.testing.assert_allclose(r["v1"], 1.0)
 

@@ -104,6 +104,15 @@ def main(job_path, out_path):
         out[f"beta{n}"] = np.asarray(port.beta, complex)  # already per metre
         out[f"zc{n}"] = np.asarray(port.Z_ref, complex)
         out[f"meas{n}"] = np.array(meas)
+        # the time records behind v and i, for continuing a record's ring-down on the refine
+        # side: the middle voltage probe, and the mean of the two current probes (the engine's
+        # own v and i are their transforms)
+        out[f"tv{n}"] = np.asarray(port.u_data.ui_time[1], float)
+        out[f"yv{n}"] = np.asarray(port.u_data.ui_val[1], float)
+        out[f"ti{n}"] = np.asarray(port.i_data.ui_time[0], float)
+        out[f"yi{n}"] = 0.5 * (
+            np.asarray(port.i_data.ui_val[0], float) + np.asarray(port.i_data.ui_val[1], float)
+        )
         t = np.asarray(port.u_data.ui_time[1], float)
         out["sim_time"] = np.array(t[-1] if len(t) else 0.0)
         tail = np.abs(np.asarray(port.u_data.ui_val[1], float))

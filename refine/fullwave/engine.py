@@ -185,6 +185,8 @@ def run(
         for p in job["ports"]:
             n = int(p["number"])
             result[f"i{n}"] = 2.0 * result[f"i{n}"]
+            if f"yi{n}" in result:
+                result[f"yi{n}"] = 2.0 * result[f"yi{n}"]
             result[f"zc{n}"] = 0.5 * result[f"zc{n}"]
     result["seconds"] = seconds
     result["engine"] = engine.version
