@@ -84,7 +84,12 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict]) -> dict:
     res = same_box(verify.resolutions("converged", lay)[k], mine)
     t0 = time.perf_counter()
     c = verify.check_layout(
-        problem, lay, threads=threads, meshes=[res], progress=lambda s: print(f"  {s}", flush=True)
+        problem,
+        lay,
+        threads=threads,
+        meshes=[res],
+        progress=lambda s: print(f"  {s}", flush=True),
+        continue_ringdown=continued(mine),
     )
     layout = {
         "gaps": list(lay.gaps),
@@ -103,6 +108,12 @@ def same_box(res: geometry.Resolution, earlier: list[dict]) -> geometry.Resoluti
     return replace(res, **campaign_data.box_of(earlier[0]))
 
 
+def continued(earlier: list[dict]) -> bool:
+    """Whether the filter's records continue their ring-down (the field check's default since
+    benchmarks/em_ringdown.py; a sequence begun without it goes on without it)."""
+    return bool(earlier[0].get("ringdown_continued", False)) if earlier else True
+
+
 def _record(name, k, res, status, layout: dict, problem, c, t0: float) -> dict:
     """One finished (filter, mesh) solve as the data file stores it."""
     cmp_ = c.comparison
@@ -114,6 +125,8 @@ def _record(name, k, res, status, layout: dict, problem, c, t0: float) -> dict:
         "edge_rule": res.edge_rule,
         "open_walls": res.open_walls,
         "half_box": c.solves[-1].mesh.mirror is not None,
+        "ringdown_continued": c.solves[-1].ringdown_check is not None,
+        "ringdown_fit_check": c.solves[-1].ringdown_check,
         "status": status,
         "layout": layout,
         "fbw": problem.fbw,
@@ -155,7 +168,12 @@ def _run_parallel(name: str, problem, k: int, threads: int, earlier: list[dict])
     res = same_box(verify.resolutions("converged", lay)[k], mine)
     t0 = time.perf_counter()
     c = verify.check_layout(
-        problem, lay, threads=threads, meshes=[res], progress=lambda s: print(f"  {s}", flush=True)
+        problem,
+        lay,
+        threads=threads,
+        meshes=[res],
+        progress=lambda s: print(f"  {s}", flush=True),
+        continue_ringdown=continued(mine),
     )
     return _record(name, k, res, status, parallel_layout_dict(lay), problem, c, t0)
 

@@ -57,9 +57,9 @@ LONG_END = 1e-9
 
 
 def group_delay(s21: np.ndarray, f: np.ndarray) -> float:
-    """The circuit model's largest group delay where |S21| > -10 dB (s); the field check
-    rings for eight of these (refine.fullwave.verify.ringing_time)."""
-    return verify.ringing_time(s21, f) / 8.0
+    """The circuit model's largest group delay where |S21| > -10 dB (s), the unit of
+    refine.fullwave.verify.ringing_time."""
+    return verify.ringing_time(s21, f, delays=1.0)
 
 
 def _figures(problem, f, s) -> dict:

@@ -611,7 +611,19 @@ def _stand_in(monkeypatch):
             m = geometry.build_mesh(st_, problem.substrate, f.max(), res)
             solves.append(
                 solve.FieldSolve(
-                    f, s_f, None, problem.z_ref, None, None, m, res, 2, 1.5, 1e-4, "openEMS test"
+                    f,
+                    s_f,
+                    None,
+                    problem.z_ref,
+                    None,
+                    None,
+                    m,
+                    res,
+                    2,
+                    1.5,
+                    1e-4,
+                    "openEMS test",
+                    ringdown_check=2e-5,
                 )
             )
             comps.append(compare.compare(f, s_f, s_c, problem.mask))
@@ -657,6 +669,9 @@ def test_fullwave_command_writes_its_files_and_extends_the_report(monkeypatch, t
     assert f"± {mesh_unc + abs(shift):.2f} dB" in report  # the verdict's interval counts it
     assert data["field_solver"]["mask"]["field_solver"]["passed"] is False
     assert data["field_solver"]["centre_shift_hz"] < 0  # higher eps_r: lower centre
+    assert data["field_solver"]["ringdown_fit_check"] == 2e-5
+    assert "ring-down was continued" in report and "missed by 2.0e-05" in report
+    assert "not reliable" not in report
     # again, with --force: the section is replaced, not repeated; without it, refused
     assert main(["fullwave", str(lay), "--problem", str(TAP_PROBLEM)]) == 2
     assert main(["fullwave", str(lay), "--problem", str(TAP_PROBLEM), "--force"]) == 1

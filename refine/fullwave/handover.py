@@ -8,6 +8,7 @@ import json
 import re
 from pathlib import Path
 
+from refine.fullwave import ringdown
 from refine.fullwave.compare import compare
 from refine.fullwave.uncertainty import MeshVerdict
 from refine.fullwave.verify import FieldCheck
@@ -35,6 +36,7 @@ def check_dict(c: FieldCheck) -> dict:
         "engine_runs": c.runs,
         "engine_seconds": c.seconds,
         "late_time_residual": max(s.tail for s in c.solves),
+        "ringdown_fit_check": ringdown_check(c),
         "centre_hz": {"field_solver": comp.em.centre, "circuit_model": comp.model.centre},
         "centre_shift_hz": comp.centre_shift,
         "bandwidth_3db_hz": {
@@ -151,7 +153,21 @@ def section_md(c: FieldCheck) -> str:
             f"{c.extrapolated['worst_return_loss']:.2f} dB.",
         ]
     tail = max(s.tail for s in c.solves)
-    if tail > 1e-2:
+    fit = ringdown_check(c)
+    if fit is not None:
+        lines += [
+            "",
+            "Each record's ring-down was continued past its end (matrix-pencil fit of the ports' "
+            f"late signals); the fit's own check, predicting the last third of its window from "
+            f"the first two, missed by {fit:.1e} of the window's peak at worst.",
+        ]
+        if fit > ringdown.CHECK_LIMIT:
+            lines += [
+                "",
+                f"Caution: that misfit is above {ringdown.CHECK_LIMIT:.0e}: the continued "
+                "ring-down is not reliable; solve again with a longer record.",
+            ]
+    elif tail > 1e-2:
         lines += [
             "",
             f"Caution: the port voltage had only decayed to {tail:.1e} of its peak when the "
@@ -164,6 +180,12 @@ def section_md(c: FieldCheck) -> str:
         "",
     ]
     return "\n".join(lines)
+
+
+def ringdown_check(c: FieldCheck) -> float | None:
+    """The worst ring-down fit check over the check's solves (None: no record continued)."""
+    checks = [s.ringdown_check for s in c.solves if s.ringdown_check is not None]
+    return max(checks) if checks else None
 
 
 def write_check(c: FieldCheck, out: str | Path, force: bool = False) -> list[Path]:

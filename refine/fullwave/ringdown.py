@@ -39,6 +39,9 @@ ORDER_TOL = 1e-7
 MAX_ORDER = 60
 #: the most samples fitted (the window's latest are used beyond this)
 MAX_SAMPLES = 2400
+#: a fit whose own check (:attr:`Tail.check`) misses by more than this fraction of the window's
+#: peak is reported as unreliable
+CHECK_LIMIT = 1e-3
 
 
 class Tail(NamedTuple):

@@ -49,14 +49,21 @@ def em_frequencies(problem: Problem, n: int = 401) -> NDArray[np.float64]:
     return np.unique(np.concatenate([np.linspace(lo, hi, n), edges]))
 
 
-def ringing_time(s21: NDArray, f: NDArray) -> float:
-    """Eight times the circuit model's largest group delay where |S21| > -10 dB: long enough
-    for a Chebyshev filter's slowest pole to ring down by about 60 dB (common practice, no
-    source)."""
+#: a record's ringing after the pulse, in the circuit model's largest passband group delays:
+#: as recorded, long enough for a Chebyshev filter's slowest pole to ring down by about 60 dB
+#: (common practice, no source)
+RING_DELAYS = 8.0
+#: the same with the ring-down continued past the record's end (refine.fullwave.ringdown);
+#: benchmarks/em_ringdown.py measured how early a record may stop
+CONTINUED_RING_DELAYS = 8.0
+
+
+def ringing_time(s21: NDArray, f: NDArray, delays: float = RING_DELAYS) -> float:
+    """``delays`` times the circuit model's largest group delay where |S21| > -10 dB (s)."""
     phase = np.unwrap(np.angle(s21))
     gd = -np.gradient(phase, 2.0 * np.pi * f)
     passing = np.abs(s21) > 10 ** (-10 / 20)
-    return 8.0 * float(gd[passing].max()) if passing.any() else 0.0
+    return delays * float(gd[passing].max()) if passing.any() else 0.0
 
 
 @dataclass(frozen=True)
@@ -160,13 +167,16 @@ def check_layout(
     lossy: bool = True,
     progress: engine.Progress | None = None,
     meshes: list[geometry.Resolution] | None = None,
+    continue_ringdown: bool = True,
 ) -> FieldCheck:
     """Field-solve a layout on its problem's substrate and compare with the circuit model;
     ``progress`` receives a line before each engine run and while it runs.
 
     lossy False: PEC strips on a lossless substrate in the field solver (a diagnostic: the
     circuit model keeps its losses). ``meshes`` overrides the preset ``mesh`` names (a campaign
-    that runs one mesh at a time)."""
+    that runs one mesh at a time). continue_ringdown: continue each record's ring-down past its
+    end (:mod:`refine.fullwave.ringdown`): the engine stops on its energy criterion while a
+    narrowband filter's port signals still ring."""
     if problem.medium != "microstrip":
         raise FieldCheckError(
             f"medium.kind = {problem.medium!r}: the field check handles microstrip only "
@@ -178,7 +188,9 @@ def check_layout(
         if isinstance(layout, ParallelLayout)
         else evaluate_layout(problem, layout, f)
     )
-    ring = ringing_time(s_model[:, 1, 0], f)
+    ring = ringing_time(
+        s_model[:, 1, 0], f, CONTINUED_RING_DELAYS if continue_ringdown else RING_DELAYS
+    )
     sub = problem.strip_substrate
     s_sheet = None
     if sub.metal_thickness > 0:
@@ -208,6 +220,7 @@ def check_layout(
                 lossy,
                 progress,
                 problem.enclosure,
+                continue_ringdown,
             )
         )
     s_em = solves[-1].s
