@@ -36,8 +36,8 @@ import numpy as np
 from numpy.typing import NDArray
 
 from refine.circuit.layout import Layout
-from refine.circuit.response import evaluate_layout
-from refine.fullwave import geometry, solve
+from refine.circuit.response import evaluate_layout, loss_budget
+from refine.fullwave import geometry, solve, verify
 from refine.fullwave.uncertainty import mesh_uncertainty
 from refine.physics.microstrip import Microstrip
 from refine.physics.strip import open_end_extension
@@ -120,19 +120,34 @@ def group_delay_at_peak(f: NDArray, s21: NDArray) -> float:
     return float(gd[int(np.argmax(np.abs(s21)))])
 
 
+#: the box every new sequence is solved in: the field check's defaults
+DEFAULT_BOX = {"open_walls": "pml", "mirror": True}
+
+
+def sequence(run: dict) -> tuple[str, str, bool]:
+    """A record's mesh sequence: its substrate and the box it was solved in (records before
+    the box keys: first-order walls, whole box). Each sequence is one row of the table."""
+    box = campaign_data.box_of(run)
+    return run["substrate"], box["open_walls"], box["mirror"]
+
+
 def run_one(name: str, k: int, threads: int, earlier: list[dict] | None = None) -> dict:
-    """Mesh ``k`` of one resonator, in the walls and box of its earlier meshes if any (records
-    before those keys: first-order walls, whole box), the field check's defaults otherwise."""
+    """Mesh ``k`` of one resonator in the field check's default box (:data:`DEFAULT_BOX`). A
+    sequence continues as it began: records of the same sequence that ran to
+    :data:`RING_DELAYS` group delays without continuing the ring-down keep doing so; a new
+    sequence continues it (refine.fullwave.ringdown) after
+    refine.fullwave.verify.CONTINUED_RING_DELAYS."""
     p = problem_for(name)
     lay = layout_for(name)
     f = frequencies(name)
     s_model = evaluate_layout(p, lay, f)
-    ring = RING_DELAYS * group_delay_at_peak(f, s_model[:, 1, 0])
     d = min(geometry.MESHES["coarse"].edge_cell, 0.5 * min(lay.gaps))
-    res = geometry.Resolution("converged", d, edge_rule="thirds").refined(k)
-    mine = [r for r in earlier or [] if r["substrate"] == name]
-    if mine:
-        res = replace(res, **campaign_data.box_of(mine[0]))
+    res = replace(geometry.Resolution("converged", d, edge_rule="thirds").refined(k), **DEFAULT_BOX)
+    key = (name, res.open_walls, res.mirror)
+    mine = [r for r in earlier or [] if sequence(r) == key]
+    continued = bool(mine[0].get("ringdown_continued", False)) if mine else True
+    delays = verify.CONTINUED_RING_DELAYS if continued else RING_DELAYS
+    ring = delays * group_delay_at_peak(f, s_model[:, 1, 0])
     sub = p.strip_substrate
     band = (float(f[0]), float(f[-1]))
     length = geometry.feed_length(sub, lay.feed_width, band[1], res)
@@ -140,7 +155,7 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict] | None = None) 
     t0 = time.perf_counter()
     fs = solve.solve(
         st, sub, f, p.z_ref, res, ring, band, None, threads, True,
-        lambda s: print(f"  {s}", flush=True), p.enclosure,
+        lambda s: print(f"  {s}", flush=True), p.enclosure, continued,
     )  # fmt: skip
     fe, qe, pe = peak(f, fs.s[:, 1, 0])
     fm, qm, pm = peak(f, s_model[:, 1, 0])
@@ -158,6 +173,8 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict] | None = None) 
         "em": {"resonance_hz": fe, "loaded_q": qe, "peak_s21_db": pe},
         "model": {"resonance_hz": fm, "loaded_q": qm, "peak_s21_db": pm},
         "ringing_s": ring,
+        "ringdown_continued": continued,
+        "ringdown_fit_check": fs.ringdown_check,
         "tail": fs.tail,
         "cells": fs.mesh.cells,
         "seconds": time.perf_counter() - t0,
@@ -181,10 +198,16 @@ def save(runs: list[dict]) -> None:
     campaign_data.save_doc(DATA, doc)
 
 
-def summary(runs: list[dict], name: str) -> dict | None:
-    """Finest-mesh figures with their mesh uncertainty (None while one mesh has run), or None
-    before any."""
-    mine = sorted((r for r in runs if r["substrate"] == name), key=lambda r: r["mesh_index"])
+def sequences(runs: list[dict]) -> list[tuple[str, str, bool]]:
+    """The data's mesh sequences, by substrate in :data:`CASES` order, oldest box first."""
+    keys = {sequence(r) for r in runs}
+    return sorted(keys, key=lambda k: (list(CASES).index(k[0]), k[1] == "pml", k[2]))
+
+
+def summary(runs: list[dict], key: tuple[str, str, bool]) -> dict | None:
+    """One sequence's finest-mesh figures with their mesh uncertainty (None while one mesh has
+    run), or None before any."""
+    mine = sorted((r for r in runs if sequence(r) == key), key=lambda r: r["mesh_index"])
     if not mine:
         return None
     cells = [r["edge_cell_m"] for r in mine]
@@ -199,7 +222,17 @@ def summary(runs: list[dict], name: str) -> dict | None:
     box = campaign_data.box_of(mine[0])
     walls = "matched layers" if box["open_walls"] == "pml" else "first-order walls"
     out["box"] = f"{walls}, {'half' if box['mirror'] else 'whole'} box"
+    out["continued"] = bool(mine[0].get("ringdown_continued", False))
     return out
+
+
+def radiation_qs(name: str, field: dict) -> tuple[float, float]:
+    """(field, circuit) Q of what the open resonator radiates. Field: its unloaded Q (lossless
+    metal) with the circuit model's dielectric Q taken out, so radiation and surface waves;
+    circuit: Belohoubek and Denlinger's space-wave Q (refine.circuit.response.loss_budget)."""
+    budget = loss_budget(problem_for(name), layout_for(name), [1.0])
+    qu, _ = unloaded_and_external_q(field)
+    return 1.0 / (1.0 / qu - 1.0 / budget.q_dielectric[0]), budget.q_radiation[0]
 
 
 def unloaded_and_external_q(side: dict) -> tuple[float, float]:
@@ -213,13 +246,16 @@ def table(runs: list[dict]) -> str:
     rows = [
         "| substrate (circuit gap model) | resonance, circuit | field solver's shift | "
         "shift per mesh, coarse to fine | loaded Q, field (circuit) | unloaded Q, field "
-        "(circuit) | external Q per port, field (circuit) | meshes, engine time |",
-        "|---|---|---|---|---|---|---|---|",
+        "(circuit) | external Q per port, field (circuit) | radiation Q, field "
+        "(Belohoubek–Denlinger) | meshes, engine time |",
+        "|---|---|---|---|---|---|---|---|---|",
     ]
-    for name in CASES:
-        s = summary(runs, name)
+    for key in sequences(runs):
+        name = key[0]
+        s = summary(runs, key)
         if s is None:
             continue
+        qr_e, qr_m = radiation_qs(name, s["finest_em"])
         fm = s["model"]["resonance_hz"]
         fe, dfe = s["resonance_hz"]
         q, dq = s["loaded_q"]
@@ -232,7 +268,8 @@ def table(runs: list[dict]) -> str:
             f"| {name} ({s['gap_model']}; {s['box']}) | {fm / 1e9:.4f} GHz | "
             f"{100 * (fe / fm - 1):+.2f} % {pm_f} | {per} % | {q:.0f} {pm_q} "
             f"({s['model']['loaded_q']:.0f}) | {qu_e:.0f} ({qu_m:.0f}) | {qe_e:.0f} ({qe_m:.0f}) | "
-            f"{s['meshes']}, {s['seconds'] / 60:.0f} min |"
+            f"{qr_e:.0f} ({qr_m:.0f}) | {s['meshes']}{', continued' if s['continued'] else ''}, "
+            f"{s['seconds'] / 60:.0f} min |"
         )
     return "\n".join(rows)
 
@@ -250,8 +287,9 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     if not (args.table or args.readme):
         for name in [args.only] if args.only else list(CASES):
+            key = (name, DEFAULT_BOX["open_walls"], DEFAULT_BOX["mirror"])
             for k in range(MESHES):
-                if any(r["substrate"] == name and r["mesh_index"] == k for r in runs):
+                if any(sequence(r) == key and r["mesh_index"] == k for r in runs):
                     continue
                 print(f"{name}, mesh {k + 1} of {MESHES} ...", flush=True)
                 runs.append(run_one(name, k, args.threads, runs))
