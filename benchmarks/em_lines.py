@@ -30,7 +30,7 @@ import campaign_data
 import numpy as np
 
 from refine.circuit.layout import Layout
-from refine.fullwave import engine, geometry, solve, waves
+from refine.fullwave import cross_plane, engine, geometry, solve, waves
 from refine.fullwave.uncertainty import mesh_uncertainty
 from refine.physics.constants import C0
 from refine.physics.microstrip import Microstrip
@@ -98,12 +98,35 @@ def run_one(name: str, edge: float, rule: str = "on-edge", walls: str = "first-o
     f = np.linspace(band[0], band[1], FREQUENCIES)
     max_time = geometry.pulse_length(band) + 6.0 * solve.transit_time(mesh, sub)
     job = geometry.job(st, mesh, sub, band, f, max_time, 1, 0, lossy=False)
+    if mesh.mirror is not None:  # the cross-section's fields, for the power-current impedance
+        job["field_plane"] = field_plane(st, mesh, f[::PLANE_EVERY])
     cells, steps = engine.job_size(job)
     t0 = time.perf_counter()
     r = engine.run(job, progress=lambda s: print(f"  {name}, {res.name}: {s}", flush=True))
     beta = np.asarray(r["beta1"])
     zc = np.asarray(r["zc1"])
     two = two_port_eps_eff(r, f)
+    plane = {}
+    if "plane_e" in r:
+        strip = st.strips[0]
+        z = cross_plane.impedances(
+            r["plane_e"],
+            r["plane_h"],
+            r["plane_x"],
+            r["plane_hx"],
+            r["plane_y"],
+            r["plane_z"],
+            strip.y1,
+            sub.height,
+            True,
+        )
+        plane = {
+            "plane_f_hz": np.asarray(r["plane_f"]).tolist(),
+            "z0_plane_vi_ohm": z.z_vi.tolist(),
+            "z0_power_current_ohm": z.z_pi.tolist(),
+            "z0_power_voltage_ohm": z.z_pv.tolist(),
+            "plane_reflection": z.reflection.tolist(),
+        }
     return {
         "substrate": name,
         "eps_r": sub.eps_r,
@@ -118,12 +141,25 @@ def run_one(name: str, edge: float, rule: str = "on-edge", walls: str = "first-o
         "eps_eff": ((np.real(beta) * C0 / (2 * np.pi * f)) ** 2).tolist(),
         "z0_ohm": np.real(zc).tolist(),
         "eps_eff_two_port": two.tolist(),
+        **plane,
         "cells": cells,
         "time_steps_at_most": steps,
         "seconds": time.perf_counter() - t0,
         "engine": str(r["engine"]),
         "date": datetime.date.today().isoformat(),
     }
+
+
+#: the cross-section's fields are transformed at every PLANE_EVERY-th frequency
+PLANE_EVERY = 4
+
+
+def field_plane(st: geometry.Structure, mesh: geometry.Mesh, f: np.ndarray) -> dict:
+    """The job's cross-sections for refine.fullwave.cross_plane: the mesh line nearest the
+    middle of the line between its two feeds' reference planes and its two neighbours."""
+    middle = 0.5 * (st.feeds[0].ref + st.feeds[1].ref)
+    k = int(np.argmin(np.abs(mesh.x - middle)))
+    return {"x0": float(mesh.x[k - 1]), "x1": float(mesh.x[k + 1]), "frequencies": f.tolist()}
 
 
 def two_port_eps_eff(r: dict, f: np.ndarray) -> np.ndarray:
@@ -243,7 +279,13 @@ def main(argv: list[str] | None = None) -> int:
     args = ap.parse_args(argv)
     runs = load()
     if not args.table:
-        done = {(r["substrate"], r["edge_cell_m"], rule_of(r), walls_of(r)) for r in runs}
+        # a half-box run without its cross-section (solved before the power-current impedance
+        # was measured) is solved again and replaced
+        done = {
+            (r["substrate"], r["edge_cell_m"], rule_of(r), walls_of(r))
+            for r in runs
+            if not (r.get("half_box") and "z0_power_current_ohm" not in r)
+        }
         for rule, walls in SETUPS:
             for edge in EDGE_CELLS:  # every substrate's coarser mesh first
                 for name in SUBSTRATES:
@@ -255,7 +297,14 @@ def main(argv: list[str] | None = None) -> int:
                         f"{name}, {rule}, {walls} walls, edge cell {edge * 1e6:g} um ...",
                         flush=True,
                     )
-                    runs.append(run_one(name, edge, rule, walls))
+                    new = run_one(name, edge, rule, walls)
+                    key = (name, edge, rule, walls)
+                    runs = [
+                        r
+                        for r in runs
+                        if (r["substrate"], r["edge_cell_m"], rule_of(r), walls_of(r)) != key
+                    ]
+                    runs.append(new)
                     save(runs)
     text = table(runs)
     print(text)

@@ -87,6 +87,17 @@ def main(job_path, out_path):
             )
         )
 
+    # optional: the raw E and H fields on a few neighbouring cross-sections, from mesh line x0
+    # to mesh line x1, transformed at a few frequencies (refine.fullwave.cross_plane)
+    plane = job.get("field_plane")
+    if plane:
+        zs = job["mesh"]["z"]
+        for name, kind in (("plane-e", 10), ("plane-h", 11)):
+            dump = csx.AddDump(
+                name, dump_type=kind, dump_mode=0, file_type=1, frequency=plane["frequencies"]
+            )
+            dump.AddBox(um([plane["x0"], ys[0], zs[0]]), um([plane["x1"], ys[-1], zs[-1]]))
+
     t0 = time.time()
     fdtd.Run(sim_path, cleanup=True, verbose=0, numThreads=int(job.get("threads", 0)))
     elapsed = time.time() - t0
@@ -120,6 +131,27 @@ def main(job_path, out_path):
         out[f"tail{n}"] = np.array(
             float(tail[-max(1, tail.size // 20) :].max()) / peak if peak else 0.0
         )
+    if plane:
+        import h5py  # the engine's own dumps are HDF5; only needed with a field plane
+
+        for name, key in (("plane-e", "plane_e"), ("plane-h", "plane_h")):
+            with h5py.File(os.path.join(sim_path, name + ".h5"), "r") as fh:
+                fd = fh["FieldData/FD"]
+                n_f = len(plane["frequencies"])
+                # (3, nz, ny, nx) per frequency
+                out[key] = np.stack(
+                    [
+                        np.asarray(fd[f"f{k}_real"]) + 1j * np.asarray(fd[f"f{k}_imag"])
+                        for k in range(n_f)
+                    ]
+                )
+                if key == "plane_h":  # H's own (dual) planes along the line
+                    out["plane_hx"] = np.asarray(fh["Mesh/x"], float)
+                if key == "plane_e":  # the primary lines (the H dump lists the dual ones)
+                    out["plane_x"] = np.asarray(fh["Mesh/x"], float)
+                    out["plane_y"] = np.asarray(fh["Mesh/y"], float)
+                    out["plane_z"] = np.asarray(fh["Mesh/z"], float)
+        out["plane_f"] = np.asarray(plane["frequencies"], float)
     tmp = out_path + ".part.npz"
     np.savez(tmp, **out)
     os.replace(tmp, out_path)
