@@ -223,6 +223,20 @@ def deviations(
         unc = [mesh_uncertainty(cells, list(d[:, j])) for j in range(d.shape[1])]
         return float(d[-1, k]), (None if unc[k] is None else float(unc[k]))
 
+    out_pi: dict = {}
+    if all("z0_power_current_ohm" in r for r in mine):
+        fp = np.asarray(mine[0]["plane_f_hz"])
+        z_fp, _ = Microstrip(sub, loss=False).dispersive(mine[0]["width_m"], fp)
+        dp = np.array([np.asarray(r["z0_power_current_ohm"]) / z_fp - 1 for r in mine])
+        dv = np.array([np.asarray(r["z0_plane_vi_ohm"]) / z_fp - 1 for r in mine])
+        unc_p = [mesh_uncertainty(cells, list(dp[:, j])) for j in range(dp.shape[1])]
+        out_pi = {
+            "f_plane": fp,
+            "z0_power_current": dp,
+            "z0_power_current_unc": unc_p,
+            "z0_plane_vi": dv,
+            "worst_z0_power_current": worst(dp),
+        }
     return {
         "meshes": cells,
         "f": f,
@@ -232,6 +246,7 @@ def deviations(
         "worst_eps_eff": worst(de),
         "worst_eps_eff_two_port": worst(dt),
         "worst_z0": worst(dz),
+        **out_pi,
         "seconds": [r["seconds"] for r in mine],
         "cells": [r["cells"] for r in mine],
     }
@@ -251,8 +266,9 @@ def table(runs: list[dict]) -> str:
     lines = [
         "| substrate (50 ohm line) | edge rule, walls | meshes (edge cell, um) | eps_eff (port): "
         "worst deviation, finest mesh | eps_eff (two-port): worst deviation | Z0 (port): worst "
-        "deviation | cells, finest | engine s, finest |",
-        "|---|---|---|---|---|---|---|---|",
+        "deviation | Z0 (power-current, from the fields): worst deviation | cells, finest "
+        "| engine s, finest |",
+        "|---|---|---|---|---|---|---|---|---|",
     ]
     for name, (rule, walls) in ((n, su) for su in SETUPS for n in SUBSTRATES):
         d = deviations(runs, name, rule, walls)
@@ -262,11 +278,22 @@ def table(runs: list[dict]) -> str:
         t, ut = d["worst_eps_eff_two_port"]
         fmt = lambda x, u: f"{100 * x:+.2f} %" + ("" if u is None else f" ± {100 * u:.2f} %")  # noqa: E731
         box = ", half box" if walls == "pml" else ""
+        pi = "–"
+        if "worst_z0_power_current" in d:
+            p, up = d["worst_z0_power_current"]
+            verdicts = [
+                _judge(x, u, TOL_Z0)
+                for x, u in zip(d["z0_power_current"][-1], d["z0_power_current_unc"], strict=True)
+            ]
+            pi = (
+                f"{fmt(p, up)}; within 2 % beyond the mesh uncertainty at "
+                f"{verdicts.count('within')} of {len(verdicts)} frequencies"
+            )
         lines.append(
             f"| {name} | {rule}, {walls}{box} | {', '.join(f'{c * 1e6:g}' for c in d['meshes'])} "
             f"| {fmt(e, ue)} ({_judge(e, ue, TOL_EPS_EFF)} 1 %) | {fmt(t, ut)} "
             f"({_judge(t, ut, TOL_EPS_EFF)} 1 %) | {fmt(z, uz)} ({_judge(z, uz, TOL_Z0)} 2 %) | "
-            f"{d['cells'][-1]:,} | {d['seconds'][-1]:.0f} |"
+            f"{pi} | {d['cells'][-1]:,} | {d['seconds'][-1]:.0f} |"
         )
     return "\n".join(lines)
 

@@ -17,8 +17,10 @@ edges, first-order walls at 6 h).
 The campaign ran twice more (em_lines.SETUPS): with the thirds rule, and with the thirds rule,
 matched-layer walls and the half box, the field check's defaults. In the last the two-port
 eps_eff is within 0.4 % over the whole band (the bar holds); the port's own eps_eff is still
-high at the bottom of the band, and its Z0 meets 2 % only up to f*h = 3 GHz*mm. The README's
-table (written by the same script) gives all three.
+high at the bottom of the band, and its voltage-current Z0 meets 2 % only up to f*h = 3 GHz*mm,
+while the power-current Z0 from the engine's own fields (the definition Jansen-Kirschning's
+dispersion uses) meets it below the top of each band. The README's table (written by the same
+script) gives all three set-ups.
 """
 
 from __future__ import annotations
@@ -154,3 +156,27 @@ def test_default_set_up_z0_is_within_two_percent_only_at_low_f_h(name):
 
 def _height(name: str) -> float:
     return em_lines.SUBSTRATES[name][0].height
+
+
+@pytest.mark.parametrize("name", list(em_lines.SUBSTRATES))
+def test_default_set_up_power_current_z0_meets_two_percent_below_the_top_of_the_band(name):
+    """Like for like: the power-current impedance from the engine's own fields (Poynting flux
+    and loop current on a cross-section, forward and backward waves separated;
+    refine.fullwave.cross_plane) against Jansen-Kirschning's power-current Z0. On the finest
+    mesh it is within 0.7 % at every frequency below the top of each band (the issue's bar is
+    2 %), and within 2 % beyond the mesh uncertainty at 9 or 10 of 11 frequencies; what stays
+    undecided is the top of each band, where the field dump's transform does not converge with
+    the mesh (on the laminate +0.9, +2.8, +7.0 %), and on alumina the bottom (three meshes
+    that converge slowly: +-3 %). The port's voltage-current impedance drifting 2.5-5.4 % high
+    at the top of the band (the test above) is the definition, not the engine: the wave's
+    voltage-current impedance on the same cross-section rises the same way."""
+    d = em_lines.deviations(RUNS, name, *DEFAULTS)
+    dp, unc = d["z0_power_current"], d["z0_power_current_unc"]
+    assert np.all(np.abs(dp[-1][:-1]) < 0.0075)
+    within = [
+        u is not None and abs(x) + u <= em_lines.TOL_Z0 for x, u in zip(dp[-1], unc, strict=True)
+    ]
+    assert sum(within) >= 9 and all(within[1:-1])
+    assert not within[-1]  # the top of the band: undecided
+    # the same cross-section's voltage-current impedance rises with f*h as the port's does
+    assert d["z0_plane_vi"][-1][-2] - dp[-1][-2] > 0.015
