@@ -201,6 +201,17 @@ def table(runs: list[dict]) -> str:
     return "\n".join(lines)
 
 
+def _save(runs: list[dict]) -> None:
+    campaign_data.save_doc(
+        DATA,
+        {
+            "what": "a filter's field-solve record cut early, as recorded and with its "
+            "ring-down continued (benchmarks/em_ringdown.py)",
+            "runs": runs,
+        },
+    )
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--readme", action="store_true", help="write the README block")
@@ -211,9 +222,22 @@ def main(argv: list[str] | None = None) -> int:
         default=ROOT.parent / "ringdown-scratch",
         help="where the engine runs are kept between sessions (default: beside the project)",
     )
+    ap.add_argument(
+        "--reanalyse",
+        action="store_true",
+        help="recompute every record whose engine runs are in the scratch folder (no solving)",
+    )
     args = ap.parse_args(argv)
     runs = campaign_data.load_runs(DATA)
-    if not args.readme:
+    if args.reanalyse:
+        runs = [
+            study(r["filter"], args.scratch, args.threads)
+            if _runs_path(args.scratch, r["filter"]).exists()
+            else r
+            for r in runs
+        ]
+        _save(runs)
+    if not (args.readme or args.reanalyse):
         if not engine.available():
             print("the field solver is not installed", file=sys.stderr)
             return 2
@@ -223,14 +247,7 @@ def main(argv: list[str] | None = None) -> int:
                 continue
             print(f"{name} ...", flush=True)
             runs.append(study(name, args.scratch, args.threads))
-            campaign_data.save_doc(
-                DATA,
-                {
-                    "what": "a filter's field-solve record cut early, as recorded and with "
-                    "its ring-down continued (benchmarks/em_ringdown.py)",
-                    "runs": runs,
-                },
-            )
+            _save(runs)
     text = table(runs)
     print(text)
     if args.readme:

@@ -670,7 +670,7 @@ def test_fullwave_command_writes_its_files_and_extends_the_report(monkeypatch, t
     assert data["field_solver"]["mask"]["field_solver"]["passed"] is False
     assert data["field_solver"]["centre_shift_hz"] < 0  # higher eps_r: lower centre
     assert data["field_solver"]["ringdown_fit_check"] == 2e-5
-    assert "ring-down was continued" in report and "missed by 2.0e-05" in report
+    assert "ring-down was continued" in report and "by 2.0e-05 of their peak" in report
     assert "not reliable" not in report
     # again, with --force: the section is replaced, not repeated; without it, refused
     assert main(["fullwave", str(lay), "--problem", str(TAP_PROBLEM)]) == 2

@@ -158,8 +158,8 @@ def section_md(c: FieldCheck) -> str:
         lines += [
             "",
             "Each record's ring-down was continued past its end (matrix-pencil fit of the ports' "
-            f"late signals); the fit's own check, predicting the last third of its window from "
-            f"the first two, missed by {fit:.1e} of the window's peak at worst.",
+            "late signals); continuing it from two thirds of the fit's window instead moved the "
+            f"port spectra by {fit:.1e} of their peak at worst.",
         ]
         if fit > ringdown.CHECK_LIMIT:
             lines += [

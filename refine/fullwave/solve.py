@@ -32,7 +32,7 @@ class FieldSolve:
     tail : the largest late-time port voltage over its peak (a truncation check: well under
     1e-2 means the ringing had died down before the time cap);
     ringdown_check : with the ring-down continued, the worst of its fits' own checks
-    (:attr:`refine.fullwave.ringdown.Tail.check`), else None.
+    (:attr:`refine.fullwave.ringdown.Continued.check`), else None.
     """
 
     f: NDArray[np.float64]
@@ -207,13 +207,13 @@ def port_state(
     beta: dict[int, NDArray],
     fit_from: float | None = None,
     cut: float | None = None,
-) -> tuple[waves.PortState, list[ringdown.Tail]]:
+) -> tuple[waves.PortState, list[ringdown.Continued]]:
     """Both ports' (V, I) of one excitation run, moved to the structure's reference planes.
 
     fit_from : continue each port signal's ring-down from a fit of its record after this time
         (s; :mod:`refine.fullwave.ringdown`); None takes the engine's transforms as they are.
     cut : use the record only up to this time (s): a study of how early a record may end.
-    Returns the state and the ring-down fits made (four, or none)."""
+    Returns the state and the continuations made (four, or none)."""
     planes, fits = [], []
     for p, fd in enumerate(st.feeds, start=1):
         vi = [run[f"v{p}"], run[f"i{p}"]]
@@ -223,12 +223,12 @@ def port_state(
                 t, y = np.asarray(run[f"t{q}{p}"]), np.asarray(run[f"y{q}{p}"])
                 if cut is not None:
                     t, y = t[t <= cut], y[t <= cut]
-                spec = ringdown.record_spectrum(t, y, f)
                 if fit_from is not None:
-                    fit = ringdown.fit_tail(t, y, fit_from)
-                    spec = spec + ringdown.tail_spectrum(fit, f)
-                    fits.append(fit)
-                vi.append(spec)
+                    cont = ringdown.continued_spectrum(t, y, f, fit_from)
+                    fits.append(cont)
+                    vi.append(cont.spectrum)
+                else:
+                    vi.append(ringdown.record_spectrum(t, y, f))
         d = abs(float(run[f"meas{p}"]) - fd.ref)
         planes += list(waves.move_to_plane(vi[0], vi[1], zc[p], beta[p], d))
     return waves.PortState(*planes), fits
