@@ -83,14 +83,7 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict]) -> dict:
         status = mine[0]["status"]
     res = same_box(verify.resolutions("converged", lay)[k], mine)
     t0 = time.perf_counter()
-    c = verify.check_layout(
-        problem,
-        lay,
-        threads=threads,
-        meshes=[res],
-        progress=lambda s: print(f"  {s}", flush=True),
-        continue_ringdown=continued(mine),
-    )
+    c = _check(problem, lay, res, threads, mine)
     layout = {
         "gaps": list(lay.gaps),
         "lengths": list(lay.lengths),
@@ -106,6 +99,18 @@ def same_box(res: geometry.Resolution, earlier: list[dict]) -> geometry.Resoluti
     if not earlier:
         return res
     return replace(res, **campaign_data.box_of(earlier[0]))
+
+
+def _check(problem, lay, res: geometry.Resolution, threads: int, mine: list[dict]):
+    """The field check of one mesh, in the set-up the filter's earlier meshes used."""
+    return verify.check_layout(
+        problem,
+        lay,
+        threads=threads,
+        meshes=[res],
+        progress=lambda s: print(f"  {s}", flush=True),
+        continue_ringdown=continued(mine),
+    )
 
 
 def continued(earlier: list[dict]) -> bool:
@@ -167,14 +172,7 @@ def _run_parallel(name: str, problem, k: int, threads: int, earlier: list[dict])
         status = mine[0]["status"]
     res = same_box(verify.resolutions("converged", lay)[k], mine)
     t0 = time.perf_counter()
-    c = verify.check_layout(
-        problem,
-        lay,
-        threads=threads,
-        meshes=[res],
-        progress=lambda s: print(f"  {s}", flush=True),
-        continue_ringdown=continued(mine),
-    )
+    c = _check(problem, lay, res, threads, mine)
     return _record(name, k, res, status, parallel_layout_dict(lay), problem, c, t0)
 
 
