@@ -55,7 +55,7 @@ def em_frequencies(problem: Problem, n: int = 401) -> NDArray[np.float64]:
 RING_DELAYS = 8.0
 #: the same with the ring-down continued past the record's end (refine.fullwave.ringdown);
 #: benchmarks/em_ringdown.py measured how early a record may stop
-CONTINUED_RING_DELAYS = 8.0
+CONTINUED_RING_DELAYS = 3.0
 
 
 def ringing_time(s21: NDArray, f: NDArray, delays: float = RING_DELAYS) -> float:
