@@ -16,6 +16,22 @@ def load_runs(path: Path) -> list[dict]:
     return json.loads(path.read_text())["runs"] if path.exists() else []
 
 
+#: The boxes the campaigns solve in, by name, as ``Resolution`` fields: the first one (whole,
+#: first-order absorbing walls at the margins), and the field check's defaults since the
+#: boundary study (the centre-line half box, matched layers).
+BOXES: dict[str, dict] = {
+    "whole, first-order walls": {"open_walls": "first-order", "mirror": False},
+    "half, matched layers": {"open_walls": "pml", "mirror": True},
+}
+OLD_BOX, DEFAULT_BOX = BOXES
+
+
+def box_name(record: dict) -> str:
+    """The name in :data:`BOXES` of the box a record was solved in."""
+    box = box_of(record)
+    return next(k for k, v in BOXES.items() if v == box)
+
+
 def box_of(record: dict) -> dict:
     """The box a campaign record was solved in, as ``Resolution`` fields (``open_walls`` and
     ``mirror``); records from before those keys were solved whole with first-order walls.

@@ -50,6 +50,8 @@ FILTERS = (
     "ms-alumina-tap-10g-n3-10pct",
     "ms-pcb-tap-5g8-n3-3pct",
     "parallel/pcb-5g8-n3-6pct",
+    # the 3 % gap-coupled thin-film filter: 15 um end gaps, hours per mesh (benchmarks/em_cost.py)
+    "microstrip-x-band-alumina-n3",
 )
 MESHES = 3
 
@@ -59,12 +61,21 @@ def _midband_loss(f: np.ndarray, s: np.ndarray, f0: float) -> float:
     return float(-20 * np.log10(np.interp(f0, f, s21)))
 
 
-def run_one(name: str, k: int, threads: int, earlier: list[dict]) -> dict:
-    """One filter on mesh ``k``; the layout is the one the filter's earlier meshes solved (so
-    that a change of the refiner between sessions never mixes two layouts in one sequence)."""
+def sequence(run: dict) -> tuple[str, str]:
+    """A record's mesh sequence: its filter and the name of the box it was solved in
+    (:data:`campaign_data.BOXES`). Each sequence is one row of the table."""
+    return run["filter"], campaign_data.box_name(run)
+
+
+def run_one(
+    name: str, k: int, threads: int, earlier: list[dict], box: str = campaign_data.DEFAULT_BOX
+) -> dict:
+    """One filter on mesh ``k`` in ``box``; the layout is the one the filter's earlier records
+    solved, in any box (so that a change of the refiner between sessions never mixes two
+    layouts, and two boxes compare like for like)."""
     problem = load_problem(ROOT / "problems" / f"{name}.toml")
     if problem.topology == "parallel-coupled":
-        return _run_parallel(name, problem, k, threads, earlier)
+        return _run_parallel(name, problem, k, threads, earlier, box)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ModelRangeWarning)
         r = refine_problem(problem)
@@ -81,9 +92,9 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict]) -> dict:
             taps=None if d["taps"] is None else tuple(d["taps"]),
         )
         status = mine[0]["status"]
-    res = same_box(verify.resolutions("converged", lay)[k], mine)
+    res, seq = in_box(verify.resolutions("converged", lay)[k], mine, box)
     t0 = time.perf_counter()
-    c = _check(problem, lay, res, threads, mine)
+    c = _check(problem, lay, res, threads, seq)
     layout = {
         "gaps": list(lay.gaps),
         "lengths": list(lay.lengths),
@@ -93,16 +104,18 @@ def run_one(name: str, k: int, threads: int, earlier: list[dict]) -> dict:
     return _record(name, k, res, status, layout, problem, c, t0)
 
 
-def same_box(res: geometry.Resolution, earlier: list[dict]) -> geometry.Resolution:
-    """``res`` with the walls and box of the filter's earlier meshes, so that one mesh sequence
-    never mixes two boxes (records before those keys: first-order walls, whole box)."""
-    if not earlier:
-        return res
-    return replace(res, **campaign_data.box_of(earlier[0]))
+def in_box(
+    res: geometry.Resolution, earlier: list[dict], box: str
+) -> tuple[geometry.Resolution, list[dict]]:
+    """``res`` with the walls and box named ``box``, and the filter's earlier records of that
+    box (its sequence so far)."""
+    return replace(res, **campaign_data.BOXES[box]), [
+        e for e in earlier if campaign_data.box_name(e) == box
+    ]
 
 
 def _check(problem, lay, res: geometry.Resolution, threads: int, mine: list[dict]):
-    """The field check of one mesh, in the set-up the filter's earlier meshes used."""
+    """The field check of one mesh, in the set-up the sequence's earlier meshes used."""
     return verify.check_layout(
         problem,
         lay,
@@ -157,7 +170,7 @@ def _record(name, k, res, status, layout: dict, problem, c, t0: float) -> dict:
     }
 
 
-def _run_parallel(name: str, problem, k: int, threads: int, earlier: list[dict]) -> dict:
+def _run_parallel(name: str, problem, k: int, threads: int, earlier: list[dict], box: str) -> dict:
     """:func:`run_one` for a parallel-coupled problem (refine.optimise.parallel)."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ModelRangeWarning)
@@ -170,9 +183,9 @@ def _run_parallel(name: str, problem, k: int, threads: int, earlier: list[dict])
             d["feed_width"], d["widths"], d["spacings"], d["lengths"], d["feed_stub"]
         )
         status = mine[0]["status"]
-    res = same_box(verify.resolutions("converged", lay)[k], mine)
+    res, seq = in_box(verify.resolutions("converged", lay)[k], mine, box)
     t0 = time.perf_counter()
-    c = _check(problem, lay, res, threads, mine)
+    c = _check(problem, lay, res, threads, seq)
     return _record(name, k, res, status, parallel_layout_dict(lay), problem, c, t0)
 
 
@@ -190,11 +203,18 @@ def save(runs: list[dict]) -> None:
     campaign_data.save_doc(DATA, doc)
 
 
-def summary(runs: list[dict], name: str) -> dict | None:
-    """Finest-mesh figures of one filter with their mesh uncertainty (None until two meshes
-    ran: with two, the uncertainty is their difference; with three, from the observed order)."""
-    mine = sorted((r for r in runs if r["filter"] == name), key=lambda r: r["mesh_index"])
-    if len(mine) < 2:
+def sequences(runs: list[dict]) -> list[tuple[str, str]]:
+    """The data's mesh sequences, filters in :data:`FILTERS` order, the old box first."""
+    keys = {sequence(r) for r in runs if r["filter"] in FILTERS}
+    return sorted(keys, key=lambda k: (FILTERS.index(k[0]), list(campaign_data.BOXES).index(k[1])))
+
+
+def summary(runs: list[dict], key: tuple[str, str]) -> dict | None:
+    """Finest-mesh figures of one sequence with their mesh uncertainty (None with one mesh:
+    with two, the uncertainty is their difference; with three, from the observed order), or
+    None before any mesh ran."""
+    mine = sorted((r for r in runs if sequence(r) == key), key=lambda r: r["mesh_index"])
+    if not mine:
         return None
     cells = [r["edge_cell_m"] for r in mine]
     out: dict = {
@@ -205,26 +225,27 @@ def summary(runs: list[dict], name: str) -> dict | None:
     }
     for key in ("centre_hz", "bandwidth_hz", "worst_return_loss_db", "midband_loss_db"):
         values = [r["em"][key] for r in mine]
-        out[key] = (values[-1], mesh_uncertainty(cells, values))
+        out[key] = (values[-1], mesh_uncertainty(cells, values) if len(mine) > 1 else None)
     out["seconds"] = sum(r["seconds"] for r in mine)
     return out
 
 
 def _pm(x: float | None, scale: float, fmt: str) -> str:
-    return "" if x is None else f" ± {format(x * scale, fmt)}"
+    return " (one mesh)" if x is None else f" ± {format(x * scale, fmt)}"
 
 
 def table(runs: list[dict]) -> str:
     rows = [
-        "| filter (status on the circuit model) | centre shift | in units of the FBW | 3 dB "
+        "| filter (status on the circuit model; box) | centre shift | in units of the FBW | 3 dB "
         "bandwidth ratio | worst in-band RL, field (circuit) | midband loss, field (circuit) | "
         "meshes, engine time |",
         "|---|---|---|---|---|---|---|",
     ]
-    for name in FILTERS:
-        s = summary(runs, name)
+    for key in sequences(runs):
+        s = summary(runs, key)
         if s is None:
             continue
+        name, box = key
         m = s["model"]
         fc, dfc = s["centre_hz"]
         shift = fc / m["centre_hz"] - 1
@@ -232,7 +253,7 @@ def table(runs: list[dict]) -> str:
         rl, drl = s["worst_return_loss_db"]
         il, dil = s["midband_loss_db"]
         rows.append(
-            f"| {name} ({s['status']}) | {100 * shift:+.2f}{_pm(dfc, 100 / m['centre_hz'], '.2f')} % "
+            f"| {name} ({s['status']}; {box}) | {100 * shift:+.2f}{_pm(dfc, 100 / m['centre_hz'], '.2f')} % "
             f"| {shift / s['fbw']:+.2f}{_pm(dfc, 1 / (m['centre_hz'] * s['fbw']), '.2f')} | "
             f"{bw / m['bandwidth_hz']:.3f}{_pm(dbw, 1 / m['bandwidth_hz'], '.3f')} | "
             f"{rl:.1f}{_pm(drl, 1, '.1f')} dB ({m['worst_return_loss_db']:.1f}) | "
@@ -248,18 +269,22 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--readme", action="store_true", help="write the README block")
     ap.add_argument("--threads", type=int, default=0, help="engine threads (0: all cores)")
     ap.add_argument("--only", help="run this filter only (a name of FILTERS)")
+    ap.add_argument(
+        "--box", choices=list(campaign_data.BOXES), default=campaign_data.DEFAULT_BOX,
+        help=f"the box to solve in (default: {campaign_data.DEFAULT_BOX!r}, the field check's)",
+    )  # fmt: skip
     args = ap.parse_args(argv)
     if args.only is not None and args.only not in FILTERS:
         ap.error(f"--only {args.only!r}: not one of {', '.join(FILTERS)}")
     runs = load()
     if not (args.table or args.readme):
-        done = {(r["filter"], r["mesh_index"]) for r in runs}
+        done = {(*sequence(r), r["mesh_index"]) for r in runs}
         for k in range(MESHES):  # every filter's coarser meshes first: a table sooner
             for name in FILTERS:
-                if (name, k) in done or (args.only is not None and name != args.only):
+                if (name, args.box, k) in done or (args.only is not None and name != args.only):
                     continue
-                print(f"{name}, mesh {k + 1} of {MESHES} ...", flush=True)
-                rec = run_one(name, k, args.threads, runs)
+                print(f"{name}, {args.box}, mesh {k + 1} of {MESHES} ...", flush=True)
+                rec = run_one(name, k, args.threads, runs, args.box)
                 runs.append(rec)
                 save(runs)
                 print(

@@ -15,8 +15,10 @@ run of the same mesh, reduced to its quasi-static value by the fit C0 + k f^2 ov
 f*h = 0.8-5 GHz*mm.
 
 Three substrates (those of benchmarks/em_lines.py), the same mesh sequence (every cell halved
-each time), and both mesh rules at metal edges (refine.fullwave.geometry.EDGE_RULES): the
-comparison of the rules' convergence is what the field check's mesh rule rests on. Each
+each time). In the first box (whole, first-order walls) both mesh rules at metal edges ran
+(refine.fullwave.geometry.EDGE_RULES): the comparison of the rules' convergence is what the
+field check's mesh rule rests on. ``--box`` names the box (campaign_data.BOXES); by default the
+field check's own (half box, matched layers), with the thirds rule only. Each
 finished (substrate, rule, mesh) solve is appended to ``tests/data/fullwave-open-ends.json`` at
 once with its provenance, so a killed campaign resumes where it stopped; only the data is
 committed. The fast test ``tests/test_fullwave_open_ends.py`` reads that file, with the
@@ -90,22 +92,28 @@ def solve_open_end(name: str, res: geometry.Resolution, threads: int = 0) -> Ope
     return OpenEnd(r, f, gap, c_end, z0, eps_eff, dl)
 
 
-def run_one(name: str, rule: str, edge: float, threads: int = 0) -> dict:
+BOXES = campaign_data.BOXES
+OLD_BOX, DEFAULT_BOX = campaign_data.OLD_BOX, campaign_data.DEFAULT_BOX
+
+
+def box_of(run: dict) -> str:
+    return run.get("box", OLD_BOX)
+
+
+def run_one(name: str, rule: str, edge: float, threads: int = 0, box: str = DEFAULT_BOX) -> dict:
     sub, band = SUBSTRATES[name]
     width = width_of(sub, band)
     per_wavelength = dict(MESHES)[edge]
-    # the box the study's records were solved in: whole, first-order walls (before the half
-    # box and the matched layers became the field check's defaults)
     res = geometry.Resolution(
-        f"edge {edge * 1e6:g} um", edge, per_wavelength, edge_rule=rule,
-        open_walls="first-order", mirror=False,
-    )  # fmt: skip
+        f"edge {edge * 1e6:g} um", edge, per_wavelength, edge_rule=rule, **BOXES[box]
+    )
     t0 = time.perf_counter()
     o = solve_open_end(name, res, threads)
     r, f, gap, c_end, dl = o.solve, o.f, o.gap, o.c_end, o.extension
     return {
         "substrate": name,
         "rule": rule,
+        "box": box,
         "eps_r": sub.eps_r,
         "height_m": sub.height,
         "width_m": width,
@@ -157,11 +165,11 @@ def references(name: str) -> dict[str, float]:
     }
 
 
-def summary(runs: list[dict], name: str, rule: str) -> dict:
+def summary(runs: list[dict], name: str, rule: str, box: str = OLD_BOX) -> dict:
     """Per mesh (coarsest first) the quasi-static Δl; the finest value with its mesh
     uncertainty (from the last three meshes)."""
     mine = sorted(
-        (r for r in runs if r["substrate"] == name and r["rule"] == rule),
+        (r for r in runs if r["substrate"] == name and r["rule"] == rule and box_of(r) == box),
         key=lambda r: -r["edge_cell_m"],
     )
     if not mine:
@@ -174,24 +182,28 @@ def summary(runs: list[dict], name: str, rule: str) -> dict:
 
 def table(runs: list[dict], with_static: bool = True) -> str:
     stored = json.loads(DATA.read_text()).get("references_m", {}) if DATA.exists() else {}
-    head = "| substrate | mesh rule | Δl/h per mesh (edge cell 100 / 50 / 25 µm) | finest vs KJK |"
-    rows = [head, "|---|---|---|---|"]
+    head = (
+        "| substrate | mesh rule | box | Δl/h per mesh (edge cell 100 / 50 / 25 µm) "
+        "| finest vs KJK |"
+    )
+    rows = [head, "|---|---|---|---|---|"]
     if with_static:
         rows[0] = head + " finest vs electrostatic |"
-        rows[1] = "|---|---|---|---|---|"
+        rows[1] = "|---|---|---|---|---|---|"
     for name in SUBSTRATES:
         if not any(r["substrate"] == name for r in runs):
             continue
         refs = stored.get(name) or references(name)  # the electrostatic solve takes ~30 s
-        for rule in RULES:
-            s = summary(runs, name, rule)
+        for box, rule in ((b, r) for b in BOXES for r in RULES):
+            s = summary(runs, name, rule, box)
             if not s:
                 continue
             h = SUBSTRATES[name][0].height
             per = " / ".join(f"{x / h:.4f}" for x in s["values"])
             unc = f" ± {100 * s['uncertainty'] / refs['kjk']:.1f}" if s["uncertainty"] else ""
             row = (
-                f"| {name} | {rule} | {per} | {100 * (s['finest'] / refs['kjk'] - 1):+.1f}{unc} % |"
+                f"| {name} | {rule} | {box} | {per} "
+                f"| {100 * (s['finest'] / refs['kjk'] - 1):+.1f}{unc} % |"
             )
             if with_static:
                 row += f" {100 * (s['finest'] / refs['static'] - 1):+.1f} % |"
@@ -204,18 +216,24 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--table", action="store_true", help="print the table only, run nothing")
     ap.add_argument("--readme", action="store_true", help="write the README block")
     ap.add_argument("--rule", choices=RULES, action="append", help="run only these rules")
+    ap.add_argument(
+        "--box", choices=list(BOXES), default=DEFAULT_BOX,
+        help=f"the box to solve in (default: {DEFAULT_BOX!r}, the field check's)",
+    )  # fmt: skip
     ap.add_argument("--threads", type=int, default=0, help="engine threads (0: all cores)")
     args = ap.parse_args(argv)
     runs = load()
     if not (args.table or args.readme):
-        done = {(r["substrate"], r["rule"], r["edge_cell_m"]) for r in runs}
+        done = {(r["substrate"], r["rule"], box_of(r), r["edge_cell_m"]) for r in runs}
+        # in the defaults' box only the rule every field-check preset uses, unless asked
+        rules = args.rule or (RULES if args.box == OLD_BOX else ["thirds"])
         for edge, _ in MESHES:
-            for rule in args.rule or RULES:
+            for rule in rules:
                 for name in SUBSTRATES:
-                    if (name, rule, edge) in done:
+                    if (name, rule, args.box, edge) in done:
                         continue
-                    print(f"{name}, {rule}, edge {edge * 1e6:g} um ...", flush=True)
-                    rec = run_one(name, rule, edge, args.threads)
+                    print(f"{name}, {rule}, {args.box}, edge {edge * 1e6:g} um ...", flush=True)
+                    rec = run_one(name, rule, edge, args.threads, args.box)
                     runs.append(rec)
                     save(runs)
                     print(
