@@ -7,7 +7,9 @@ one step, so an interrupted write never leaves a half-written file.
 
 from __future__ import annotations
 
+import fcntl
 import json
+from collections.abc import Callable, Hashable
 from pathlib import Path
 
 
@@ -42,8 +44,19 @@ def box_of(record: dict) -> dict:
     }
 
 
-def save_doc(path: Path, doc: dict) -> None:
-    """Write ``doc`` (its "what", its "runs" and anything else) to ``path`` atomically."""
-    tmp = path.with_suffix(".tmp")
-    tmp.write_text(json.dumps(doc, indent=1) + "\n")
-    tmp.replace(path)
+def save_doc(path: Path, doc: dict, key: Callable[[dict], Hashable] | None = None) -> None:
+    """Write ``doc`` (its "what", its "runs" and anything else) to ``path`` atomically.
+
+    With ``key`` (what names a run: its case, box and mesh), the file's runs whose key none of
+    ``doc``'s runs has are kept, ahead of them: two campaigns writing one file (say two filters
+    at once) never drop each other's runs, and a run this campaign replaced stays replaced. The
+    read and the write hold an exclusive lock on a hidden file beside ``path``."""
+    with open(path.with_name(f".{path.name}.lock"), "w") as lock:
+        fcntl.flock(lock, fcntl.LOCK_EX)
+        if key is not None and path.exists():
+            mine = {key(r) for r in doc["runs"]}
+            others = [r for r in load_runs(path) if key(r) not in mine]
+            doc = {**doc, "runs": others + list(doc["runs"])}
+        tmp = path.with_suffix(".tmp")
+        tmp.write_text(json.dumps(doc, indent=1) + "\n")
+        tmp.replace(path)

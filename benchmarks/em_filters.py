@@ -200,7 +200,7 @@ def save(runs: list[dict]) -> None:
         "benchmarks/em_filters.py",
         "runs": runs,
     }
-    campaign_data.save_doc(DATA, doc)
+    campaign_data.save_doc(DATA, doc, key=lambda r: (*sequence(r), r["mesh_index"]))
 
 
 def sequences(runs: list[dict]) -> list[tuple[str, str]]:

@@ -12,6 +12,10 @@ substrate; the circuit model keeps its conductor loss. What the data show, pinne
   of about 1.7; at the finest mesh it is +0.25 ± 0.12 %, so the field-check issue's 0.2 % bar
   holds only at the lower end of the mesh uncertainty, and the field solver sits above the
   circuit model beyond it.
+- The same alumina resonator in the field check's defaults (matched layers, half box, the
+  ring-down continued): −0.18, −0.00, +0.10 % over three meshes, converging; at the finest mesh
+  +0.10 ± 0.14 %: inside the 0.2 % bar, though not beyond its mesh uncertainty (the upper end,
+  0.24 %, is outside it), so the bar is undecided at these meshes; a fourth would decide.
 - Laminate (3.55, 0.508 mm, 5.8 GHz; matched-layer walls and the half box, first mesh so
   far): resonance −0.36 %, unloaded Q about 250 with lossless metal against 140 in the circuit
   model, gaps as calibrated.
@@ -191,3 +195,15 @@ def test_alumina_in_the_defaults_box_first_mesh():
     (qu_em, qe_em), (_, qe_model) = _q(r["em"]), _q(r["model"])
     assert 170 < qu_em < 190
     assert 1.1 < qe_em / qe_model < 1.3
+
+
+def test_alumina_in_the_defaults_box_within_the_bar_at_the_finest_mesh_undecided_beyond_it():
+    runs = _meshes(ALUMINA, DEFAULT_BOX)
+    assert len(runs) == 3
+    shift, unc = _shift_and_unc(ALUMINA, DEFAULT_BOX)
+    assert abs(shift) < 0.002  # the 0.2 % bar, at the finest mesh
+    assert abs(shift) + unc > 0.002  # but not beyond the mesh uncertainty: undecided
+    assert unc < 0.002
+    per_mesh = [r["em"]["resonance_hz"] for r in runs]
+    d = [b - a for a, b in itertools.pairwise(per_mesh)]
+    assert d[0] > 0 and 0 < d[1] < d[0]  # rising, each refinement moving it less
