@@ -7,7 +7,9 @@ import itertools
 import json
 import math
 import os
+import subprocess
 import sys
+import time
 from dataclasses import replace
 from pathlib import Path
 
@@ -241,6 +243,77 @@ def test_the_half_box_solve_reports_the_whole_structures_currents(monkeypatch, t
         np.testing.assert_allclose(r["yi1"], 0.01 * scale)  # the time record behind i1 too
         np.testing.assert_allclose(r["zc1"], 100 / scale)
         np.testing.assert_allclose(r["v1"], 1.0)
+
+
+_SLOW_ENGINE = (
+    "import os, sys, time\n"
+    "open(sys.argv[1] + '.pid', 'w').write(str(os.getpid()))\n"
+    "for k in range(600):\n"
+    "    try:  # like the engine's own output, carry on when no one reads it any more\n"
+    "        print(f'Timestep: {k}', flush=True)\n"
+    "    except OSError:\n"
+    "        pass\n"
+    "    time.sleep(0.1)\n"
+)
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    # a zombie is dead too
+    stat = Path(f"/proc/{pid}/stat")
+    return not (stat.exists() and stat.read_text().split()[2] == "Z")
+
+
+def _wait_gone(pid: int, seconds: float = 10.0) -> bool:
+    t0 = time.monotonic()
+    while time.monotonic() - t0 < seconds:
+        if not _alive(pid):
+            return True
+        time.sleep(0.1)
+    return False
+
+
+def test_a_timed_out_solve_stops_the_engine(monkeypatch, tmp_path):
+    script = tmp_path / "slow_engine.py"
+    script.write_text(_SLOW_ENGINE)
+    monkeypatch.setattr(engine, "SCRIPT", script)
+    monkeypatch.setattr(engine, "find_engine", lambda: engine.Engine(sys.executable, "slow"))
+    with pytest.raises(engine.EngineFailed, match="took longer than"):
+        engine.run({"mesh": {"x": [0, 1], "y": [0, 1], "z": [0, 1]}, "max_time": 1e-9},
+                   workdir=tmp_path / "work", timeout=0.5)  # fmt: skip
+    pid = int((tmp_path / "work" / "job.json.pid").read_text())
+    assert _wait_gone(pid)
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="parent-death signal: Linux")
+def test_a_killed_campaign_leaves_no_engine_running(tmp_path):
+    """A campaign killed mid-solve (SIGKILL: no clean-up of its own runs) takes its engine
+    process with it, instead of leaving it to run for hours on the machine's cores."""
+    script = tmp_path / "slow_engine.py"
+    script.write_text(_SLOW_ENGINE)
+    work = tmp_path / "work"
+    parent = subprocess.Popen(
+        [sys.executable, "-c",
+         "import sys\n"
+         "from refine.fullwave import engine\n"
+         f"engine.SCRIPT = engine.Path({str(script)!r})\n"
+         "engine.find_engine = lambda: engine.Engine(sys.executable, 'slow')\n"
+         "engine.run({'mesh': {'x': [0, 1], 'y': [0, 1], 'z': [0, 1]}, 'max_time': 1e-9},\n"
+         f"           workdir={str(work)!r})\n"],
+    )  # fmt: skip
+    pid_file = work / "job.json.pid"
+    t0 = time.monotonic()
+    while not pid_file.exists() and time.monotonic() - t0 < 30:
+        time.sleep(0.1)
+    time.sleep(0.2)
+    pid = int(pid_file.read_text())
+    assert _alive(pid)
+    parent.kill()
+    parent.wait()
+    assert _wait_gone(pid)
 
 
 @pytest.mark.parametrize("make", [_gap_layout, _tap_layout])

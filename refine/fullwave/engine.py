@@ -14,6 +14,7 @@ import json
 import math
 import os
 import re
+import signal
 import subprocess
 import sys
 import tempfile
@@ -118,6 +119,18 @@ def job_size(job: dict) -> tuple[int, int]:
     return cells, math.ceil(float(job["max_time"]) / dt)
 
 
+def _die_with_parent() -> None:
+    """Run in the engine's process before it starts (Linux): have the kernel send it SIGTERM
+    when the process that started it dies, so that a campaign killed mid-solve leaves no engine
+    running on (``prctl(PR_SET_PDEATHSIG)``, Linux man-pages prctl(2)). Elsewhere nothing."""
+    import ctypes
+
+    try:
+        ctypes.CDLL(None, use_errno=True).prctl(1, int(signal.SIGTERM))  # 1: PR_SET_PDEATHSIG
+    except (OSError, AttributeError):
+        pass
+
+
 def run(
     job: dict,
     workdir: str | Path | None = None,
@@ -151,25 +164,29 @@ def run(
             stderr=subprocess.STDOUT,
             text=True,
             cwd=work,
+            preexec_fn=_die_with_parent if sys.platform.startswith("linux") else None,
         ) as proc:
             assert proc.stdout is not None
             last = t0
-            for line in proc.stdout:
-                log.append(line)
-                now = time.perf_counter()
-                if now - t0 > timeout:
-                    proc.kill()
-                    raise EngineFailed(f"the field solve took longer than {timeout:.0f} s")
-                m = _STEP.search(line)
-                if progress is not None and m and now - last >= PROGRESS_EVERY:
-                    last = now
-                    done = int(m.group(1))
-                    left = (now - t0) * max(steps - done, 0) / max(done, 1)
-                    progress(
-                        f"  {label}: time step {done:,} of at most {steps:,} "
-                        f"({100 * done / max(steps, 1):.0f} %), {now - t0:.0f} s, "
-                        f"at most about {left:.0f} s left"
-                    )
+            try:
+                for line in proc.stdout:
+                    log.append(line)
+                    now = time.perf_counter()
+                    if now - t0 > timeout:
+                        raise EngineFailed(f"the field solve took longer than {timeout:.0f} s")
+                    m = _STEP.search(line)
+                    if progress is not None and m and now - last >= PROGRESS_EVERY:
+                        last = now
+                        done = int(m.group(1))
+                        left = (now - t0) * max(steps - done, 0) / max(done, 1)
+                        progress(
+                            f"  {label}: time step {done:,} of at most {steps:,} "
+                            f"({100 * done / max(steps, 1):.0f} %), {now - t0:.0f} s, "
+                            f"at most about {left:.0f} s left"
+                        )
+            except BaseException:  # timed out or interrupted: the engine stops with us
+                proc.kill()
+                raise
             returncode = proc.wait()
         seconds = time.perf_counter() - t0
         text = "".join(log)
