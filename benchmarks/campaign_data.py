@@ -29,9 +29,12 @@ OLD_BOX, DEFAULT_BOX = BOXES
 
 
 def box_name(record: dict) -> str:
-    """The name in :data:`BOXES` of the box a record was solved in."""
+    """The box a record was solved in, in the words of :data:`BOXES` ("half" or "whole",
+    then the walls). A layout without the mirror symmetry is solved whole even where the half
+    box was asked for: this names what ran."""
     box = box_of(record)
-    return next(k for k, v in BOXES.items() if v == box)
+    walls = "matched layers" if box["open_walls"] == "pml" else "first-order walls"
+    return f"{'half' if box['mirror'] else 'whole'}, {walls}"
 
 
 def box_of(record: dict) -> dict:

@@ -62,9 +62,11 @@ def _midband_loss(f: np.ndarray, s: np.ndarray, f0: float) -> float:
 
 
 def sequence(run: dict) -> tuple[str, str]:
-    """A record's mesh sequence: its filter and the name of the box it was solved in
-    (:data:`campaign_data.BOXES`). Each sequence is one row of the table."""
-    return run["filter"], campaign_data.box_name(run)
+    """A record's mesh sequence: its filter and the box its campaign asked for (a name of
+    :data:`campaign_data.BOXES`; records from before the key: the first box). Each sequence is
+    one row of the table, labelled with the box that ran (:func:`campaign_data.box_name`: a
+    tapped layout has no mirror line and is solved whole where the half box was asked for)."""
+    return run["filter"], run.get("box", campaign_data.OLD_BOX)
 
 
 def run_one(
@@ -101,7 +103,7 @@ def run_one(
         "widths": list(lay.widths),
         "taps": None if lay.taps is None else list(lay.taps),
     }
-    return _record(name, k, res, status, layout, problem, c, t0)
+    return _record(name, k, res, status, layout, problem, c, t0, box)
 
 
 def in_box(
@@ -109,9 +111,7 @@ def in_box(
 ) -> tuple[geometry.Resolution, list[dict]]:
     """``res`` with the walls and box named ``box``, and the filter's earlier records of that
     box (its sequence so far)."""
-    return replace(res, **campaign_data.BOXES[box]), [
-        e for e in earlier if campaign_data.box_name(e) == box
-    ]
+    return replace(res, **campaign_data.BOXES[box]), [e for e in earlier if sequence(e)[1] == box]
 
 
 def _check(problem, lay, res: geometry.Resolution, threads: int, mine: list[dict]):
@@ -132,11 +132,13 @@ def continued(earlier: list[dict]) -> bool:
     return bool(earlier[0].get("ringdown_continued", False)) if earlier else True
 
 
-def _record(name, k, res, status, layout: dict, problem, c, t0: float) -> dict:
-    """One finished (filter, mesh) solve as the data file stores it."""
+def _record(name, k, res, status, layout: dict, problem, c, t0: float, box: str) -> dict:
+    """One finished (filter, mesh) solve as the data file stores it; ``box``: the box its
+    campaign asked for (what ran: ``open_walls`` and ``half_box``)."""
     cmp_ = c.comparison
     return {
         "filter": name,
+        "box": box,
         "mesh_index": k,
         "edge_cell_m": res.edge_cell,
         "cells_per_wavelength": res.cells_per_wavelength,
@@ -186,7 +188,7 @@ def _run_parallel(name: str, problem, k: int, threads: int, earlier: list[dict],
     res, seq = in_box(verify.resolutions("converged", lay)[k], mine, box)
     t0 = time.perf_counter()
     c = _check(problem, lay, res, threads, seq)
-    return _record(name, k, res, status, parallel_layout_dict(lay), problem, c, t0)
+    return _record(name, k, res, status, parallel_layout_dict(lay), problem, c, t0, box)
 
 
 def load() -> list[dict]:
@@ -222,6 +224,7 @@ def summary(runs: list[dict], key: tuple[str, str]) -> dict | None:
         "model": mine[-1]["model"],
         "status": mine[0]["status"],
         "meshes": len(mine),
+        "box": campaign_data.box_name(mine[0]),  # what ran
     }
     for key in ("centre_hz", "bandwidth_hz", "worst_return_loss_db", "midband_loss_db"):
         values = [r["em"][key] for r in mine]
@@ -231,7 +234,7 @@ def summary(runs: list[dict], key: tuple[str, str]) -> dict | None:
 
 
 def _pm(x: float | None, scale: float, fmt: str) -> str:
-    return " (one mesh)" if x is None else f" ± {format(x * scale, fmt)}"
+    return "" if x is None else f" ± {format(x * scale, fmt)}"
 
 
 def table(runs: list[dict]) -> str:
@@ -245,7 +248,7 @@ def table(runs: list[dict]) -> str:
         s = summary(runs, key)
         if s is None:
             continue
-        name, box = key
+        name = key[0]
         m = s["model"]
         fc, dfc = s["centre_hz"]
         shift = fc / m["centre_hz"] - 1
@@ -253,12 +256,13 @@ def table(runs: list[dict]) -> str:
         rl, drl = s["worst_return_loss_db"]
         il, dil = s["midband_loss_db"]
         rows.append(
-            f"| {name} ({s['status']}; {box}) | {100 * shift:+.2f}{_pm(dfc, 100 / m['centre_hz'], '.2f')} % "
+            f"| {name} ({s['status']}; {s['box']}) | {100 * shift:+.2f}{_pm(dfc, 100 / m['centre_hz'], '.2f')} % "
             f"| {shift / s['fbw']:+.2f}{_pm(dfc, 1 / (m['centre_hz'] * s['fbw']), '.2f')} | "
             f"{bw / m['bandwidth_hz']:.3f}{_pm(dbw, 1 / m['bandwidth_hz'], '.3f')} | "
             f"{rl:.1f}{_pm(drl, 1, '.1f')} dB ({m['worst_return_loss_db']:.1f}) | "
             f"{il:.2f}{_pm(dil, 1, '.2f')} dB ({m['midband_loss_db']:.2f}) | "
-            f"{s['meshes']}, {s['seconds'] / 60:.0f} min |"
+            f"{s['meshes']}{' (no uncertainty yet)' if s['meshes'] == 1 else ''}, "
+            f"{s['seconds'] / 60:.0f} min |"
         )
     return "\n".join(rows)
 
