@@ -141,3 +141,20 @@ def test_the_cost_table_builds_the_meshes_the_campaign_solved():
         for r in (r for r in DOC["runs"] if r["filter"] == name):
             ladder = em_cost.ladder(problem, lay, r)  # in the box the campaign solved
             assert ladder[r["mesh_index"]]["cells"] == r["cells"], (name, r["mesh_index"])
+
+
+def test_the_old_boxs_walls_were_part_of_the_8_percent_filters_loss():
+    """The 8 % tapped filter in the old box (first-order walls at 6 h) lost more at midband
+    than the circuit model beyond the mesh uncertainty; solved again with matched layers, its
+    midband loss lies within the mesh uncertainty of the circuit model's (1.16 +- 0.22 dB
+    against 1.21 dB on two meshes), while the return loss still falls short beyond it."""
+    name = "ms-alumina-tap-10g-n3-8pct"
+    old = (name, "first-order", False)
+    new = (name, "pml", False)  # a tapped layout has no mirror line: whole box
+    assert len(_meshes(new)) >= 2
+    em, unc, model = _em_and_unc(old, "midband_loss_db")
+    assert em - unc > model
+    em, unc, model = _em_and_unc(new, "midband_loss_db")
+    assert abs(em - model) <= unc < 0.5
+    em, unc, model = _em_and_unc(new, "worst_return_loss_db")
+    assert em + unc < model
