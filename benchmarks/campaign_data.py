@@ -28,6 +28,12 @@ BOXES: dict[str, dict] = {
 OLD_BOX, DEFAULT_BOX = BOXES
 
 
+def box_asked(record: dict) -> str:
+    """The name in :data:`BOXES` of the box a record's campaign asked for (records from before
+    that key: the first box)."""
+    return str(record.get("box", OLD_BOX))
+
+
 def box_name(record: dict) -> str:
     """The box a record was solved in, in the words of :data:`BOXES` ("half" or "whole",
     then the walls). A layout without the mirror symmetry is solved whole even where the half

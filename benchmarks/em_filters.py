@@ -66,7 +66,7 @@ def sequence(run: dict) -> tuple[str, str]:
     :data:`campaign_data.BOXES`; records from before the key: the first box). Each sequence is
     one row of the table, labelled with the box that ran (:func:`campaign_data.box_name`: a
     tapped layout has no mirror line and is solved whole where the half box was asked for)."""
-    return run["filter"], run.get("box", campaign_data.OLD_BOX)
+    return run["filter"], campaign_data.box_asked(run)
 
 
 def run_one(

@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import argparse
 import datetime
+import itertools
 import json
 import sys
 import time
@@ -92,12 +93,7 @@ def solve_open_end(name: str, res: geometry.Resolution, threads: int = 0) -> Ope
     return OpenEnd(r, f, gap, c_end, z0, eps_eff, dl)
 
 
-BOXES = campaign_data.BOXES
-OLD_BOX, DEFAULT_BOX = campaign_data.OLD_BOX, campaign_data.DEFAULT_BOX
-
-
-def box_of(run: dict) -> str:
-    return run.get("box", OLD_BOX)
+BOXES, OLD_BOX, DEFAULT_BOX = campaign_data.BOXES, campaign_data.OLD_BOX, campaign_data.DEFAULT_BOX
 
 
 def run_one(name: str, rule: str, edge: float, threads: int = 0, box: str = DEFAULT_BOX) -> dict:
@@ -169,7 +165,11 @@ def summary(runs: list[dict], name: str, rule: str, box: str = OLD_BOX) -> dict:
     """Per mesh (coarsest first) the quasi-static Δl; the finest value with its mesh
     uncertainty (from the last three meshes)."""
     mine = sorted(
-        (r for r in runs if r["substrate"] == name and r["rule"] == rule and box_of(r) == box),
+        (
+            r
+            for r in runs
+            if r["substrate"] == name and r["rule"] == rule and campaign_data.box_asked(r) == box
+        ),
         key=lambda r: -r["edge_cell_m"],
     )
     if not mine:
@@ -194,7 +194,7 @@ def table(runs: list[dict], with_static: bool = True) -> str:
         if not any(r["substrate"] == name for r in runs):
             continue
         refs = stored.get(name) or references(name)  # the electrostatic solve takes ~30 s
-        for box, rule in ((b, r) for b in BOXES for r in RULES):
+        for box, rule in itertools.product(BOXES, RULES):
             s = summary(runs, name, rule, box)
             if not s:
                 continue
@@ -224,7 +224,9 @@ def main(argv: list[str] | None = None) -> int:
     args = ap.parse_args(argv)
     runs = load()
     if not (args.table or args.readme):
-        done = {(r["substrate"], r["rule"], box_of(r), r["edge_cell_m"]) for r in runs}
+        done = {
+            (r["substrate"], r["rule"], campaign_data.box_asked(r), r["edge_cell_m"]) for r in runs
+        }
         # in the defaults' box only the rule every field-check preset uses, unless asked
         rules = args.rule or (RULES if args.box == OLD_BOX else ["thirds"])
         for edge, _ in MESHES:
