@@ -27,6 +27,7 @@ from refine.circuit.builder import (
 )
 from refine.circuit.layout import Layout, ParallelLayout
 from refine.physics import calibrated, radiation
+from refine.physics.constants import C0
 from refine.physics.gap_fixture import comparison, load_fixture
 from refine.physics.microstrip import Microstrip
 from refine.physics.strip import GAP_MODELS, StripMedium, medium_kind
@@ -271,22 +272,26 @@ class ModelUncertainty:
 def model_uncertainty(problem: Problem, layout: Layout) -> ModelUncertainty:
     """The circuit model's uncertainty for this layout. A calibration: twice its own largest
     uncertainty over the layout's gaps, at least its largest difference from the field solver's
-    gap fixture (5 %, ``tests/test_calibrated.py``). A closed form: its largest series and RMS
-    shunt error against that fixture. Radiation: ±:data:`RADIATION_SPREAD` on open microstrip."""
+    gap fixture (5 %, ``tests/test_calibrated.py``; kept for stripline, which has no field
+    fixture yet). A microstrip closed form: its largest series and RMS shunt error against that
+    fixture. The stripline closed form: its largest series and shunt error against the bundled
+    stripline calibration at the layout's own gaps (shunt capacitance taken to the strip ends).
+    Radiation: ±:data:`RADIATION_SPREAD` on open microstrip."""
     medium = strip_medium_for(problem)
     rad = RADIATION_SPREAD if isinstance(medium, Microstrip) and medium.radiates else 0.0
     model = problem.gap_model
+    h = medium.substrate.height
+    widths = (
+        [layout.feed_width, *layout.widths, layout.feed_width]
+        if layout.external is Coupling.GAP
+        else list(layout.widths)
+    )
+    # gap k lies between widths k and k + 1; its series capacitance is taken at their mean
+    means = [math.sqrt(widths[k] * widths[k + 1]) for k in range(len(layout.gaps))]
     if model.startswith(calibrated.PREFIX):
         cal = calibrated.load(model[len(calibrated.PREFIX) :])
-        h = medium.substrate.height
-        widths = (
-            [layout.feed_width, *layout.widths, layout.feed_width]
-            if layout.external is Coupling.GAP
-            else list(layout.widths)
-        )
         us, up = 0.0, 0.0
-        for k, s in enumerate(layout.gaps):  # gap k lies between widths k and k + 1
-            w = math.sqrt(widths[k] * widths[k + 1])
+        for w, s in zip(means, layout.gaps, strict=True):
             a, b = calibrated.relative_uncertainty(cal, w, s, h)
             us, up = max(us, float(a)), max(up, float(b))
         return ModelUncertainty(
@@ -302,7 +307,38 @@ def model_uncertainty(problem: Problem, layout: Layout) -> ModelUncertainty:
         return ModelUncertainty(
             series, shunt, rad, f"{model} against the field solver's gap fixture"
         )
+    name = calibrated.for_eps_r(medium.substrate.eps_r, stripline=True)
+    if isinstance(medium, Stripline) and name is not None and layout.gaps:
+        series, shunt = stripline_closed_form_error(medium, name, means, list(layout.gaps))
+        return ModelUncertainty(
+            series, shunt, rad, f"{model} against the stripline calibration {name}"
+        )
     return ModelUncertainty(0.0, 0.0, rad, f"{model}: no uncertainty data")
+
+
+def stripline_closed_form_error(
+    medium: Stripline, name: str, widths: Sequence[float], gaps: Sequence[float]
+) -> tuple[float, float]:
+    """The quasi-static stripline gap's largest relative (series, shunt) error against the
+    calibration ``name`` at symmetric gaps of these widths and spacings (shunt capacitance taken
+    to the strip ends: the closed form's centre-referenced value plus the line's s/2)."""
+    from refine.physics import discontinuities
+
+    cal = calibrated.load(name)
+    sub = medium.substrate
+    w = np.asarray(widths, float)
+    s = np.asarray(gaps, float)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        with validity.unchecked():
+            ref = calibrated.gap(cal, w, w, s, sub.height, sub.eps_r)
+            closed = discontinuities.stripline_gap(s, sub.height, sub.eps_r, medium.z0(w))
+            c_line = math.sqrt(sub.eps_r) / (C0 * medium.z0(w))
+    shunt = closed.c_shunt_in + c_line * s / 2
+    return (
+        float(np.max(np.abs(closed.c_series / ref.c_series - 1.0))),
+        float(np.max(np.abs(shunt / ref.c_shunt_in - 1.0))),
+    )
 
 
 FIXTURE_AGREEMENT = 0.05  # the calibrations' largest series difference from the gap fixture

@@ -13,6 +13,13 @@ it). Points run on a local process pool or a Dask cluster and are appended to a 
 file is written, atomically, only when every point is in.
 
     python -m refine.fullwave.static_calibration --eps-r 9.8 --out refine/physics/calibrations/static-er9.8.json
+
+Stripline (``--stripline``): the strips midway between two ground planes b apart in a
+homogeneous dielectric. There every capacitance is exactly ε_r times its value in air, so one
+file, solved at ε_r = 1 and stored divided by ε0·b (read: by ε0·ε_r·b), serves every ε_r and
+every b; its grid is over W/b and s/b.
+
+    python -m refine.fullwave.static_calibration --stripline --out refine/physics/calibrations/static-stripline.json
 """
 
 from __future__ import annotations
@@ -52,15 +59,17 @@ def _plain(c: es.Converged, per_length: bool = False) -> dict[str, Any]:
     }
 
 
-def solve_point(eps_r: float, kind: str, w_h: float, s_h: float | None) -> dict[str, Any]:
+def solve_point(
+    eps_r: float, kind: str, w_h: float, s_h: float | None, stripline: bool = False
+) -> dict[str, Any]:
     """One calibration point as a plain row (runs in a worker)."""
     t0 = time.perf_counter()
     if kind == "gap":
         assert s_h is not None
-        got = es.converged_gap(eps_r, HEIGHT, w_h * HEIGHT, s_h * HEIGHT)
+        got = es.converged_gap(eps_r, HEIGHT, w_h * HEIGHT, s_h * HEIGHT, stripline)
         keys = ("c_series", "c_shunt")
     else:
-        got = es.converged_open_end(eps_r, HEIGHT, w_h * HEIGHT)
+        got = es.converged_open_end(eps_r, HEIGHT, w_h * HEIGHT, stripline)
         keys = ("c_end", "c_line")
     row: dict[str, Any] = {"kind": kind, "w_h": w_h, "s_h": s_h}
     for key in keys:
@@ -85,8 +94,12 @@ def calibrate(
     w_h: tuple[float, ...] = W_H,
     s_h: tuple[float, ...] = S_H,
     progress: Callable[[int, int, dict], None] | None = None,
+    stripline: bool = False,
 ) -> Path:
-    """Run (or resume) the campaign for ``eps_r`` and write the data file ``out``."""
+    """Run (or resume) the campaign for ``eps_r`` (microstrip) or for stripline (solved at
+    ε_r = 1, ``eps_r`` ignored) and write the data file ``out``."""
+    if stripline:
+        eps_r = 1.0
     v.real_in_range("eps_r", eps_r, 1.0, 100.0)
     out = Path(out)
     store = out.with_name(out.name + ".runs.jsonl")
@@ -108,28 +121,44 @@ def calibrate(
         if progress is not None:
             progress(len(done), total, row)
 
-    for row in unordered(solve_point, [(eps_r, *p) for p in todo], workers, client):
+    for row in unordered(solve_point, [(eps_r, *p, stripline) for p in todo], workers, client):
         finish(row)
     rows = [done[_key(*p)] for p in points(w_h, s_h)]
     data = {
         "format": FORMAT,
+        "medium": "stripline" if stripline else "microstrip",
         "eps_r": eps_r,
         "metal_thickness": 0.0,
-        "environment": "open (no lid, no side walls)",
-        "units": "capacitance / (eps0 * h), dimensionless; c_line per unit length / eps0",
+        "environment": (
+            "two ground planes b apart, homogeneous dielectric, strips midway, no side walls"
+            if stripline
+            else "open (no lid, no side walls)"
+        ),
+        "units": (
+            "capacitance / (eps0 * eps_r * b), dimensionless; c_line per unit length / "
+            "(eps0 * eps_r); w_h and s_h are W/b and s/b"
+            if stripline
+            else "capacitance / (eps0 * h), dimensionless; c_line per unit length / eps0"
+        ),
         "w_h": list(w_h),
         "s_h": list(s_h),
         "provenance": {
             "method": (
                 "electrostatic boundary-element solve (refine.fullwave.electrostatic): "
-                "zero-thickness strips on a grounded slab, image-series Green's function, "
-                "semi-infinite strips, three panel densities and Richardson extrapolation"
+                + (
+                    "zero-thickness strips midway between two ground planes, image-series "
+                    "Green's function (Euler-summed)"
+                    if stripline
+                    else "zero-thickness strips on a grounded slab, image-series Green's function"
+                )
+                + ", semi-infinite strips, three panel densities and Richardson extrapolation"
             ),
             "densities": list(es.DENSITIES),
             "length_spread": es.LENGTH_SPREAD,
             "refine_version": VERSION,
             "created": datetime.date.today().isoformat(),
-            "command": f"python -m refine.fullwave.static_calibration --eps-r {eps_r:g}",
+            "command": "python -m refine.fullwave.static_calibration "
+            + ("--stripline" if stripline else f"--eps-r {eps_r:g}"),
             "cpu_seconds": round(sum(r["seconds"] for r in rows), 1),
         },
         "open_ends": [_strip(r) for r in rows if r["kind"] == "end"],
@@ -152,13 +181,18 @@ def main(argv: list[str] | None = None) -> int:
         prog="python -m refine.fullwave.static_calibration",
         description="Electrostatic gap and open-end calibration for one substrate permittivity.",
     )
-    ap.add_argument("--eps-r", type=float, required=True, help="relative permittivity, 1-100")
+    which = ap.add_mutually_exclusive_group(required=True)
+    which.add_argument("--eps-r", type=float, help="microstrip: relative permittivity, 1-100")
+    which.add_argument(
+        "--stripline", action="store_true", help="stripline (one file serves every eps_r)"
+    )
     ap.add_argument("--out", required=True, help="the data file to write (JSON)")
     ap.add_argument("--workers", type=int, default=2, help="local processes (default 2)")
     ap.add_argument("--scheduler", help="a Dask scheduler address instead of local processes")
     a = ap.parse_args(argv)
     try:
-        v.real_in_range("--eps-r", a.eps_r, 1.0, 100.0)
+        if not a.stripline:
+            v.real_in_range("--eps-r", a.eps_r, 1.0, 100.0)
         v.integer_in_range("--workers", a.workers, 1, 256)
     except ValueError as e:
         print(f"error: {e}", file=sys.stderr)
@@ -173,7 +207,8 @@ def main(argv: list[str] | None = None) -> int:
             flush=True,
         )
 
-    path = calibrate(a.eps_r, a.out, a.workers, client, progress=say)
+    eps_r = 1.0 if a.stripline else a.eps_r
+    path = calibrate(eps_r, a.out, a.workers, client, progress=say, stripline=a.stripline)
     print(f"wrote {path}")
     return 0
 

@@ -25,6 +25,13 @@ stand-in substrate, within :data:`EPS_SPREAD`) is carried by Garg–Bahl's ε_r 
 series capacitance scales as (ε_r/ε_cal)^0.8 (their odd mode), the shunt capacitance as
 (ε_r/ε_cal)^0.9 (their even mode), the open end's Δl by Kirschning–Jansen–Koster's ratio.
 
+**Stripline.** A stripline calibration (``"medium": "stripline"`` in the file) is over W/b and
+s/b, solved at ε_r = 1: in the homogeneous dielectric between the ground planes every
+capacitance is exactly ε_r times its value in air and Δl does not depend on ε_r, so it serves
+every ε_r. Outside its grid the value at the edge is carried on by the quasi-static stripline
+gap's trend (:func:`refine.physics.discontinuities.stripline_gap`), the open end held at the
+edge.
+
 Calibrations bundled with refine live in ``refine/physics/calibrations``; a problem names one by
 its file stem (``static-er9.8``) or by a path.
 """
@@ -42,7 +49,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from refine import validity
 from refine.physics import discontinuities
-from refine.physics.constants import EPS0
+from refine.physics.constants import C0, EPS0
 from refine.physics.microstrip import hammerstad_jensen
 
 BUNDLED = Path(__file__).with_name("calibrations")
@@ -69,6 +76,7 @@ class Calibration:
     shunt_unc: NDArray
     end_unc: NDArray
     provenance: dict
+    stripline: bool = False
 
     @property
     def w_h_range(self) -> tuple[float, float]:
@@ -140,21 +148,29 @@ def load(ref: str) -> Calibration:
         shunt_unc,
         end_unc,
         data["provenance"],
+        data.get("medium", "microstrip") == "stripline",
     )
 
 
-def for_eps_r(eps_r: float) -> str | None:
-    """The bundled calibration for ``eps_r`` (equal to 1 part in 10⁶), if there is one."""
+def for_eps_r(eps_r: float, stripline: bool = False) -> str | None:
+    """The bundled microstrip calibration for ``eps_r`` (equal to 1 part in 10⁶), or with
+    ``stripline`` the bundled stripline one (it serves every ε_r), if there is one."""
     for name in bundled_names():
-        if abs(load(name).eps_r - eps_r) <= 1e-6 * eps_r:
+        cal = load(name)
+        if cal.stripline != stripline:
+            continue
+        if stripline or abs(cal.eps_r - eps_r) <= 1e-6 * eps_r:
             return name
     return None
 
 
 def nearest(eps_r: float) -> str | None:
-    """The bundled calibration closest in ε_r to ``eps_r`` within :data:`EPS_SPREAD`, if any."""
+    """The bundled microstrip calibration closest in ε_r to ``eps_r`` within
+    :data:`EPS_SPREAD`, if any."""
     best = None
     for name in bundled_names():
+        if load(name).stripline:
+            continue
         d = abs(load(name).eps_r / eps_r - 1.0)
         if d <= EPS_SPREAD and (best is None or d < best[0]):
             best = (d, name)
@@ -213,7 +229,10 @@ def _bicubic(cal: Calibration, table: NDArray, lx: NDArray, ly: NDArray) -> NDAr
 
 
 def check_eps_r(cal: Calibration, eps_r: ArrayLike) -> None:
-    """ValueError unless every ``eps_r`` is within :data:`EPS_SPREAD` of the calibration's."""
+    """ValueError unless every ``eps_r`` is within :data:`EPS_SPREAD` of the calibration's (a
+    stripline calibration serves every ε_r)."""
+    if cal.stripline:
+        return
     e = np.asarray(eps_r, float)
     worst = float(np.max(np.abs(e / cal.eps_r - 1.0)))
     if worst > EPS_SPREAD:
@@ -261,7 +280,9 @@ def gap(
             f"gap model {cal.label}: W/h {float(np.exp(np.min(np.real(lw)))):.3g}.."
             f"{float(np.exp(np.max(np.real(lw)))):.3g}, s/h {float(np.exp(np.min(np.real(ls)))):.3g}.."
             f"{float(np.exp(np.max(np.real(ls)))):.3g} leave the calibrated range (W/h {lo_w:g}..{hi_w:g}, "
-            f"s/h {lo_s:g}..{hi_s:g}); carried on by the Kirschning-Jansen-Koster trend"
+            f"s/h {lo_s:g}..{hi_s:g}); carried on by the "
+            + ("quasi-static stripline gap's" if cal.stripline else "Kirschning-Jansen-Koster")
+            + " trend"
         )
         trend = _trend(cal, lw, ls3, lw_c, ls_c, h)
         series = series * trend[0][: sv.size]
@@ -269,7 +290,8 @@ def gap(
     n = sv.size
     if eps_r is not None:
         ratio = float(np.asarray(eps_r)) / cal.eps_r
-        series, shunt = series * ratio**0.8, shunt * ratio**0.9
+        a, b = _eps_exponents(cal)
+        series, shunt = series * ratio**a, shunt * ratio**b
     return discontinuities.GapCapacitances(
         series.reshape(shape), shunt[:n].reshape(shape), shunt[n:].reshape(shape)
     )
@@ -299,18 +321,28 @@ def _gap_batched_substrate(
         1.0,
     )
     ratio = eb / cal.eps_r
+    a, b = _eps_exponents(cal)
     return discontinuities.GapCapacitances(
-        unit.c_series * hb * ratio**0.8,
-        unit.c_shunt_in * hb * ratio**0.9,
-        unit.c_shunt_out * hb * ratio**0.9,
+        unit.c_series * hb * ratio**a,
+        unit.c_shunt_in * hb * ratio**b,
+        unit.c_shunt_out * hb * ratio**b,
     )
+
+
+def _eps_exponents(cal: Calibration) -> tuple[float, float]:
+    """How (series, shunt) capacitance scale with ε_r: exactly as ε_r in stripline's
+    homogeneous dielectric; on microstrip by Garg–Bahl's odd- and even-mode exponents."""
+    return (1.0, 1.0) if cal.stripline else (0.8, 0.9)
 
 
 def _trend(
     cal: Calibration, lw: NDArray, ls: NDArray, lw_c: NDArray, ls_c: NDArray, h: float
 ) -> tuple[NDArray, NDArray]:
     """Kirschning–Jansen–Koster's (series, shunt) ratio between the requested and the clamped
-    symmetric geometries."""
+    symmetric geometries (on stripline the quasi-static stripline gap's, with reference planes
+    moved to the strip ends)."""
+    if cal.stripline:
+        return _stripline_trend(lw, ls, lw_c, ls_c)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", validity.ModelRangeWarning)
         with validity.unchecked():
@@ -318,6 +350,25 @@ def _trend(
             a = discontinuities.kirschning_jansen_koster_gap(w, w, np.exp(ls) * h, h, cal.eps_r)
             b = discontinuities.kirschning_jansen_koster_gap(wc, wc, np.exp(ls_c) * h, h, cal.eps_r)
     return a.c_series / b.c_series, a.c_shunt_in / b.c_shunt_in
+
+
+def _stripline_trend(
+    lw: NDArray, ls: NDArray, lw_c: NDArray, ls_c: NDArray
+) -> tuple[NDArray, NDArray]:
+    """The quasi-static stripline gap's (series, shunt) ratio between the requested and the
+    clamped geometries, b = 1, in air (its shunt capacitance taken to the strip ends)."""
+    from refine.physics.stripline import cohn_z0
+
+    def pair(lw_: NDArray, ls_: NDArray) -> tuple[NDArray, NDArray]:
+        w, s = np.exp(np.real(lw_)), np.exp(ls_)
+        with validity.unchecked():
+            z0 = cohn_z0(w, 1.0)
+            g = discontinuities.stripline_gap(s, 1.0, 1.0, z0)
+        c_line = 1.0 / (z0 * C0)
+        return g.c_series, g.c_shunt_in + c_line * s / 2
+
+    a, b = pair(lw, ls), pair(lw_c, ls_c)
+    return a[0] / b[0], a[1] / b[1]
 
 
 def open_end_extension(
@@ -332,17 +383,25 @@ def open_end_extension(
         hb = np.broadcast_to(np.asarray(h, float), shape)
         eb = np.broadcast_to(np.asarray(e, float), shape)
         unit = open_end_extension(cal, np.broadcast_to(width, shape) / hb, 1.0)
+        if cal.stripline:
+            return unit * hb
         return unit * hb * _kjk_eps_ratio(cal, np.broadcast_to(width, shape) / hb, eb)
     h = float(np.asarray(h))
     w = np.asarray(width, float)
     e = cal.eps_r if eps_r is None else float(np.asarray(eps_r))
-    if e != cal.eps_r:
+    if e != cal.eps_r and not cal.stripline:
         return open_end_extension(cal, w, h) * _kjk_eps_ratio(cal, w / h, e)
     lw = np.log(w.ravel() / h)
     lw_c = np.clip(lw, cal.x[0], cal.x[-1])
     wx = _weights(cal.x, lw_c)
     dl = np.exp(wx @ cal.end - wx @ cal.line) * h
-    if np.any(lw != lw_c):
+    if np.any(lw != lw_c) and cal.stripline:
+        validity.warn(
+            f"open end {cal.label}: W/b {float(np.exp(lw.min())):.3g}..{float(np.exp(lw.max())):.3g} "
+            f"leaves the calibrated range ({cal.w_h_range[0]:g}..{cal.w_h_range[1]:g}); held at "
+            "its edge"
+        )
+    elif np.any(lw != lw_c):
         validity.warn(
             f"open end {cal.label}: W/h {float(np.exp(lw.min())):.3g}..{float(np.exp(lw.max())):.3g} "
             f"leaves the calibrated range ({cal.w_h_range[0]:g}..{cal.w_h_range[1]:g}); carried "

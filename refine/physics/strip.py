@@ -61,13 +61,14 @@ def gap_model_wh(model: str) -> tuple[float, float] | None:
 
 def check_gap_model(medium: StripMedium, model: str) -> str:
     """``model`` if it is a gap model of ``medium``'s kind; a ValueError naming both otherwise.
-    A calibration must be for microstrip of the medium's ε_r."""
+    A calibration must be for the medium's kind (and, on microstrip, of its ε_r)."""
     kind = medium_kind(medium)
     cal = calibration_of(model)
     if cal is None:
         return v.one_of(f"gap model for {kind}", model, GAP_MODELS[kind])
-    if kind != "microstrip":
-        raise ValueError(f"gap model {model!r}: calibrations are for microstrip, not {kind}")
+    cal_kind = "stripline" if cal.stripline else "microstrip"
+    if kind != cal_kind:
+        raise ValueError(f"gap model {model!r}: a calibration for {cal_kind}, not {kind}")
     calibrated.check_eps_r(cal, medium.substrate.eps_r)
     return model
 

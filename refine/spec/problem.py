@@ -36,10 +36,12 @@ Schema (keys marked * are required)::
                                               three feed widths, outside the model's range)
     [models]    gap = microstrip: "calibrated" (default where refine bundles a calibration for
                       the substrate's eps_r) | "garg-bahl" (default elsewhere) |
-                      "kirschning-jansen-koster"; stripline: "altschuler-oliner" (default);
+                      "kirschning-jansen-koster"; stripline: "calibrated" (default: the bundled
+                      stripline calibration serves every eps_r) | "altschuler-oliner";
                       not for "ideal"
-                calibration = a bundled calibration name or a file path (microstrip; implies
-                      gap = "calibrated"; default: the bundled one for the substrate's eps_r)
+                calibration = a bundled calibration name or a file path (implies gap =
+                      "calibrated"; default: the bundled one for the substrate's eps_r, or the
+                      stripline one)
                 uncertainty = "robust" (default: after meeting the mask, refine for the worst
                       corner of the model's stated uncertainty) | "judge" (judge the corners
                       only); either way "met" needs the mask met at every corner
@@ -329,21 +331,32 @@ UNCERTAINTY_USES = ("robust", "judge")  # [models] uncertainty
 TOPOLOGY_KINDS = ("end-coupled", "parallel-coupled")  # [coupling] topology
 
 
-def _calibration_model(r: _Reader, models: dict, eps_r: float, source: str) -> str:
+def _calibration_model(
+    r: _Reader, models: dict, eps_r: float, source: str, stripline: bool = False
+) -> str:
     """The gap-model name ``calibrated:<bundled name or absolute path>`` for ``[models]``: the
     named calibration (a bundled name, or a path relative to the problem file), or the bundled
-    one for the substrate's ε_r."""
+    one for the substrate's ε_r (on stripline: the bundled stripline one, which serves every
+    ε_r)."""
     bundled = ", ".join(
-        f"{n} (eps_r {calibrated.load(n).eps_r:g})" for n in calibrated.bundled_names()
+        f"{n} ("
+        + ("stripline" if calibrated.load(n).stripline else f"eps_r {calibrated.load(n).eps_r:g}")
+        + ")"
+        for n in calibrated.bundled_names()
     )
     ref = models.get("calibration")
     if ref is None:
-        found = calibrated.for_eps_r(eps_r)
+        found = calibrated.for_eps_r(eps_r, stripline)
         if found is None:
             raise r.fail(
                 "models.gap",
                 CALIBRATED,
-                f"no bundled calibration for eps_r = {eps_r:g} (bundled: {bundled or 'none'}); "
+                (
+                    "no bundled stripline calibration"
+                    if stripline
+                    else f"no bundled calibration for eps_r = {eps_r:g}"
+                )
+                + f" (bundled: {bundled or 'none'}); "
                 "name a file with models.calibration, made by "
                 "python -m refine.fullwave.static_calibration",
             )
@@ -359,7 +372,14 @@ def _calibration_model(r: _Reader, models: dict, eps_r: float, source: str) -> s
         cal = calibrated.load(ref)
     except ValueError as e:
         raise r.fail("models.calibration", models.get("calibration", ref), str(e)) from None
-    if abs(cal.eps_r - eps_r) > 1e-6 * eps_r:
+    if cal.stripline != stripline:
+        raise r.fail(
+            "models.calibration",
+            models.get("calibration", ref),
+            f"a calibration for {'stripline' if cal.stripline else 'microstrip'}, "
+            f"but medium.kind = {'stripline' if stripline else 'microstrip'}",
+        )
+    if not cal.stripline and abs(cal.eps_r - eps_r) > 1e-6 * eps_r:
         raise r.fail(
             "models.calibration",
             models.get("calibration", ref),
@@ -555,28 +575,21 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
             if key in models:
                 raise r.fail(f"models.{key}", models[key], "does not apply to medium kind 'ideal'")
         gap_model = "ideal"
-    elif kind == "microstrip":
+    else:
         choices = (*GAP_MODELS[kind], CALIBRATED)
         assert substrate is not None
-        bundled = calibrated.for_eps_r(substrate.eps_r) is not None
+        on_stripline = kind == "stripline"
+        bundled = calibrated.for_eps_r(substrate.eps_r, on_stripline) is not None
         default = CALIBRATED if "calibration" in models or bundled else GAP_MODELS[kind][0]
         gap_model = r.choice(models, "models", "gap", choices, default=default)
         if gap_model == CALIBRATED:
-            gap_model = _calibration_model(r, models, substrate.eps_r, source)
+            gap_model = _calibration_model(r, models, substrate.eps_r, source, on_stripline)
         elif "calibration" in models:
             raise r.fail(
                 "models.calibration",
                 models["calibration"],
                 f"applies only with models.gap = {CALIBRATED!r} (got {gap_model!r})",
             )
-    else:
-        if "calibration" in models:
-            raise r.fail(
-                "models.calibration",
-                models["calibration"],
-                f"calibrations are for microstrip, not {kind}",
-            )
-        gap_model = r.choice(models, "models", "gap", GAP_MODELS[kind], default=GAP_MODELS[kind][0])
 
     mask_t = r.table(
         data,
