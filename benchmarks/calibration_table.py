@@ -8,7 +8,9 @@
    error against it, and the open end's Δl/h against Kirschning–Jansen–Koster.
 2. Where a calibration's ε_r matches a geometry of the field solver's nine-gap fixture: the
    calibrated values (interpolated) against the field solver's mesh-extrapolated ones.
-3. The cost per point of each route.
+3. The stripline calibration, at a selection of its grid points, against the quasi-static
+   stripline gap and the wide-strip open end b ln 2/π.
+4. The cost per point of each route.
 
 ``python -m refine.fullwave.static_calibration --eps-r E --out F`` regenerates a calibration.
 """
@@ -29,6 +31,7 @@ from refine.physics.constants import EPS0
 from refine.physics.gap_fixture import FIXTURE, comparison, load_fixture
 from refine.physics.microstrip import Microstrip, hammerstad_jensen
 from refine.physics.strip import gap_capacitances
+from refine.physics.stripline import Stripline
 from refine.physics.substrate import Substrate
 
 ROWS_W_H = (0.45, 1.0, 2.2)
@@ -90,6 +93,43 @@ def end_rows(name: str) -> list[str]:
     return out
 
 
+def stripline_rows(name: str) -> tuple[list[str], list[str]]:
+    """Gap rows (W/b, s/b, Cg and Cp per ε0·εr·b with the quasi-static form's errors, its shunt
+    capacitance taken to the strip ends) and open-end rows (Δl/b against ln 2/π)."""
+    data = _raw(name)
+    med = Stripline(Substrate(1.0, H), loss=False)
+    gaps = {(g["w_h"], g["s_h"]): g for g in data["gaps"]}
+    rows = []
+    for w_b in ROWS_W_H:
+        for s_b in ROWS_S_H:
+            g = gaps.get((w_b, s_b))
+            if g is None:
+                continue
+            cs, cp = g["c_series"], g["c_shunt"]
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", validity.ModelRangeWarning)
+                z0 = med.z0(np.array(w_b * H))
+                c = discontinuities.stripline_gap(np.array(s_b * H), H, 1.0, z0)
+            c_line = 1.0 / (float(z0) * 299_792_458.0)
+            qs = float(c.c_series) / (EPS0 * H)
+            qp = (float(c.c_shunt_in) + c_line * s_b * H / 2) / (EPS0 * H)
+            rows.append(
+                f"| {w_b:g} | {s_b:g} | {cs['value']:.3f} ± {cs['uncertainty']:.3f} "
+                f"| {100 * (qs / cs['value'] - 1):+.0f} % "
+                f"| {cp['value']:.4f} ± {cp['uncertainty']:.4f} "
+                f"| {100 * (qp / cp['value'] - 1):+.0f} % |"
+            )
+    ends = []
+    wide = np.log(2) / np.pi
+    for e in data["open_ends"]:
+        dl = e["c_end"]["value"] / e["c_line"]["value"]
+        unc = e["c_end"]["uncertainty"] / e["c_line"]["value"]
+        ends.append(
+            f"| {e['w_h']:g} | {dl:.4f} ± {unc:.4f} | {wide:.4f} | {100 * (wide / dl - 1):+.1f} % |"
+        )
+    return rows, ends
+
+
 def fixture_rows() -> list[str]:
     fx = load_fixture()
     out = []
@@ -138,10 +178,12 @@ def cost_line() -> str:
 
 
 def tables() -> str:
-    names = calibrated.bundled_names()
+    every = calibrated.bundled_names()
+    names = [n for n in every if not calibrated.load(n).stripline]
+    striplines = [n for n in every if calibrated.load(n).stripline]
     out = [
         f"`python benchmarks/calibration_table.py --readme` wrote these tables from "
-        f"{', '.join(f'`{n}`' for n in names)}.",
+        f"{', '.join(f'`{n}`' for n in every)}.",
         "",
         "Gap capacitances per ε0·h from the electrostatic solve (extrapolated, ± its "
         "uncertainty) and each closed form's error against them:",
@@ -171,6 +213,24 @@ def tables() -> str:
             "| Cp calibrated (fF) | Cp field solver (fF) | difference |",
             "|---|---|---|---|---|---|---|",
             *fx,
+        ]
+    for n in striplines:
+        gap_lines, end_lines = stripline_rows(n)
+        out += [
+            "",
+            f"Stripline (`{n}`, one file for every ε_r): gap capacitances per ε0·ε_r·b and the "
+            "quasi-static stripline gap's error against them (its shunt capacitance taken to the "
+            "strip ends):",
+            "",
+            "| W/b | s/b | Cg/(ε0 εr b) | quasi-static Cg | Cp/(ε0 εr b) | quasi-static Cp |",
+            "|---|---|---|---|---|---|",
+            *gap_lines,
+            "",
+            "Stripline open end Δl/b against the wide-strip b ln 2/π:",
+            "",
+            "| W/b | Δl/b (electrostatic) | ln 2/π | its error |",
+            "|---|---|---|---|",
+            *end_lines,
         ]
     out += ["", cost_line()]
     return "\n".join(out)

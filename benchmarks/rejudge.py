@@ -1,11 +1,12 @@
-"""The bundled microstrip problems re-judged on the electrostatic calibration.
+"""The bundled strip problems re-judged on the electrostatic calibration.
 
     python benchmarks/rejudge.py            # print the table
     python benchmarks/rejudge.py --readme   # and rewrite the README block
 
-For every bundled microstrip problem whose ε_r has a bundled calibration: the design refined on
-a closed-form gap model (Garg–Bahl, the default before the calibrations, or the one the problem
-names), its worst mask margin there and under the calibration (the same layout), and then the
+For every bundled microstrip problem whose ε_r has a bundled calibration, and every stripline
+problem (one calibration serves them all): the design refined on a closed-form gap model
+(Garg–Bahl or the quasi-static stripline form, the defaults before the calibrations, or the one
+the problem names), its worst mask margin there and under the calibration (the same layout), and then the
 problem refined on the calibration itself (the default now): its status and margin. A design
 whose margin does not survive the change of gap model was "met" only inside its model's error.
 """
@@ -37,13 +38,14 @@ def rows() -> tuple[list[str], float]:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", validity.ModelRangeWarning)
             p = load_problem(path)
-            if p.medium != "microstrip" or p.substrate is None:
+            if p.medium not in ("microstrip", "stripline") or p.substrate is None:
                 continue
-            name = calibrated.for_eps_r(p.substrate.eps_r)
+            name = calibrated.for_eps_r(p.substrate.eps_r, p.medium == "stripline")
             if name is None:
                 continue
             label = f"{calibrated.PREFIX}{name}"
-            closed = p.gap_model if not p.gap_model.startswith(calibrated.PREFIX) else "garg-bahl"
+            before = "garg-bahl" if p.medium == "microstrip" else "altschuler-oliner"
+            closed = p.gap_model if not p.gap_model.startswith(calibrated.PREFIX) else before
             own = refine_problem(dataclasses.replace(p, gap_model=closed))
             if own.layout is None:
                 continue

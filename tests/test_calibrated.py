@@ -188,7 +188,16 @@ def test_bundled_calibration_covers_the_refiners_range(name):
     assert cal.w_h_range[0] <= 0.3 and cal.w_h_range[1] >= 3.0
     assert cal.s_h_range[0] <= 0.02  # the issue's thin-film end gaps, s/h down to 0.02
     assert cal.provenance["refine_version"] and cal.provenance["created"]
-    assert np.all(cal.series_unc < 0.02) and np.all(cal.shunt_unc < 0.02)
+    assert np.all(cal.shunt_unc < 0.02)
+    if not cal.stripline:
+        assert np.all(cal.series_unc < 0.02)
+    else:
+        # between two ground planes the strips decouple as exp(-pi s/b): at s/b = 1.6 the series
+        # capacitance is 1e-3 of the shunt and uncertain by up to 13 % (measured); up to s/b = 1,
+        # where coupling gaps lie, within 2 %
+        near = np.exp(cal.y) <= 1.0
+        assert np.all(cal.series_unc[:, near] < 0.02)
+        assert np.all(cal.series_unc < 0.15)
 
 
 @pytest.mark.slow
@@ -271,3 +280,82 @@ def test_bundled_calibrations_agree_with_the_field_solver_fixture():
         assert abs(r["c_series"] / float(c.c_series) - 1) <= 0.05, g
         checked += 1
     assert checked >= 7
+
+
+# --- stripline -----------------------------------------------------------------------------
+
+
+def stripline_problem(**models) -> dict:
+    """A small valid stripline problem (our own scenario: N=3, 5 % at 2 GHz, PTFE, b 1.6 mm)."""
+    d = microstrip_problem(eps_r=2.2)
+    d["response"]["center"] = "2 GHz"
+    d["medium"] = {"kind": "stripline", "eps_r": 2.2, "height": "1.6 mm"}
+    d["fab"] = {"min_gap": "50 um"}
+    if models:
+        d["models"] = models
+    return d
+
+
+def test_the_stripline_calibration_is_the_stripline_default():
+    sl = calibrated.for_eps_r(2.2, stripline=True)
+    assert sl is not None and calibrated.load(sl).stripline
+    assert calibrated.for_eps_r(1.0) is None  # never taken for microstrip
+    assert parse_problem(stripline_problem()).gap_model == f"calibrated:{sl}"
+    assert parse_problem(stripline_problem(gap="altschuler-oliner")).gap_model == (
+        "altschuler-oliner"
+    )
+    with pytest.raises(ProblemError, match=r"a calibration for microstrip, but medium\.kind"):
+        parse_problem(stripline_problem(calibration="static-er9.8"))
+    with pytest.raises(ProblemError, match=r"a calibration for stripline, but medium\.kind"):
+        parse_problem(microstrip_problem(eps_r=2.2, models={"calibration": sl}))
+
+
+def test_the_stripline_calibration_scales_exactly_with_eps_r():
+    # homogeneous dielectric: capacitances scale as ε_r, Δl not at all (common practice, no
+    # source)
+    cal = calibrated.load(calibrated.for_eps_r(2.2, stripline=True))
+    b, w, s = 1.6e-3, 1.3e-3, 0.1e-3
+    one = calibrated.gap(cal, w, w, s, b, 1.0)
+    ptfe = calibrated.gap(cal, w, w, s, b, 2.2)
+    assert float(ptfe.c_series) == pytest.approx(2.2 * float(one.c_series), rel=1e-12)
+    assert float(ptfe.c_shunt_in) == pytest.approx(2.2 * float(one.c_shunt_in), rel=1e-12)
+    assert float(calibrated.open_end_extension(cal, w, b, 2.2)) == pytest.approx(
+        float(calibrated.open_end_extension(cal, w, b, 1.0)), rel=1e-12
+    )
+
+
+@pytest.mark.slow
+def test_the_stripline_calibration_interpolates_within_its_uncertainty():
+    # between grid points (W/b 0.8, s/b 0.05) the look-up agrees with a direct solve
+    from refine.fullwave import electrostatic as es
+
+    cal = calibrated.load(calibrated.for_eps_r(2.2, stripline=True))
+    b = 1.6e-3
+    w, s = 0.8 * b, 0.05 * b
+    direct = es.converged_gap(2.2, b, w, s, stripline=True)
+    got = calibrated.gap(cal, w, w, s, b, 2.2)
+    u_s, u_p = calibrated.relative_uncertainty(cal, w, s, b)
+    assert float(got.c_series) == pytest.approx(direct["c_series"].value, rel=float(u_s))
+    assert float(got.c_shunt_in) == pytest.approx(direct["c_shunt"].value, rel=float(u_p))
+
+
+def test_the_stripline_closed_form_now_carries_its_error_as_uncertainty():
+    # Before the stripline calibration the quasi-static stripline gap had no uncertainty data
+    # (zero). Now its error against the calibration at the layout's own gaps is its uncertainty:
+    # measured 30-60 % in the series capacitance for strips of W/b 0.3-1 (it is a wide-strip
+    # form; tests/test_electrostatic_stripline.py).
+    from refine.circuit.response import model_uncertainty
+    from refine.optimise.seed import seed
+
+    p = parse_problem(stripline_problem(gap="altschuler-oliner"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        lay = seed(p).realisation.layout
+        unc = model_uncertainty(p, lay)
+    assert unc.series > 0.2 and unc.shunt > 0.0
+    assert "stripline calibration" in unc.source
+    cal = parse_problem(stripline_problem())
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        own = model_uncertainty(cal, lay)
+    assert own.series == pytest.approx(0.05) and "calibration" in own.source

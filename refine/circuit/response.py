@@ -150,13 +150,12 @@ def evaluate_electrical(
 
 
 def spread_models(medium: StripMedium) -> tuple[str, ...]:
-    """The gap models a layout is shown under: every closed form of its medium and, on
-    microstrip, the bundled electrostatic calibration for its ε_r if there is one."""
+    """The gap models a layout is shown under: every closed form of its medium and the bundled
+    electrostatic calibration for it (on microstrip for its ε_r) if there is one."""
     models = GAP_MODELS[medium_kind(medium)]
-    if isinstance(medium, Microstrip):
-        name = calibrated.for_eps_r(medium.substrate.eps_r)
-        if name is not None:
-            models = (*models, f"{calibrated.PREFIX}{name}")
+    name = calibrated.for_eps_r(medium.substrate.eps_r, isinstance(medium, Stripline))
+    if name is not None:
+        models = (*models, f"{calibrated.PREFIX}{name}")
     return models
 
 

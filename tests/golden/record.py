@@ -59,8 +59,14 @@ def outcome(path: Path) -> dict:
 
 
 def main() -> None:
+    """Record every problem, or with ``--only STEM ...`` those problems only, keeping the rest of
+    the file as it is."""
     paths = sorted((ROOT / "problems").glob("*.toml"))
     data = {}
+    if "--only" in sys.argv:
+        only = set(sys.argv[sys.argv.index("--only") + 1 :])
+        paths = [p for p in paths if p.stem in only]
+        data = json.loads(OUT.read_text())
     for p in paths:
         data[p.stem] = outcome(p)
         print(p.stem, data[p.stem]["status"], data[p.stem]["evaluations"], file=sys.stderr)
@@ -80,7 +86,10 @@ def circuits() -> dict[str, object]:
     from refine.circuit.response import layout_response, medium_for
 
     out: dict[str, object] = {}
+    only = set(sys.argv[sys.argv.index("--only") + 1 :]) if "--only" in sys.argv else None
     for path in sorted((ROOT / "problems").glob("*.toml")):
+        if only is not None and path.stem not in only:
+            continue
         problem = refine.load_problem(path)
         if problem.medium == "ideal":
             continue
@@ -104,4 +113,6 @@ def circuits() -> dict[str, object]:
 if __name__ == "__main__" and "--circuits" in sys.argv:
     import numpy as np
 
-    np.savez_compressed(ROOT / "tests" / "data" / "golden-circuits.npz", **circuits())
+    target = ROOT / "tests" / "data" / "golden-circuits.npz"
+    keep = dict(np.load(target)) if "--only" in sys.argv else {}
+    np.savez_compressed(target, **{**keep, **circuits()})
