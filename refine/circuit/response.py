@@ -26,7 +26,7 @@ from refine.circuit.builder import (
     per_design,
 )
 from refine.circuit.layout import Layout, ParallelLayout
-from refine.physics import calibrated, radiation
+from refine.physics import calibrated, discontinuities, radiation
 from refine.physics.constants import C0
 from refine.physics.gap_fixture import comparison, load_fixture
 from refine.physics.microstrip import Microstrip
@@ -321,8 +321,6 @@ def stripline_closed_form_error(
     """The quasi-static stripline gap's largest relative (series, shunt) error against the
     calibration ``name`` at symmetric gaps of these widths and spacings (shunt capacitance taken
     to the strip ends: the closed form's centre-referenced value plus the line's s/2)."""
-    from refine.physics import discontinuities
-
     cal = calibrated.load(name)
     sub = medium.substrate
     w = np.asarray(widths, float)

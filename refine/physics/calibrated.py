@@ -51,6 +51,7 @@ from refine import validity
 from refine.physics import discontinuities
 from refine.physics.constants import C0, EPS0
 from refine.physics.microstrip import hammerstad_jensen
+from refine.physics.stripline import cohn_z0
 
 BUNDLED = Path(__file__).with_name("calibrations")
 PREFIX = "calibrated:"
@@ -357,7 +358,6 @@ def _stripline_trend(
 ) -> tuple[NDArray, NDArray]:
     """The quasi-static stripline gap's (series, shunt) ratio between the requested and the
     clamped geometries, b = 1, in air (its shunt capacitance taken to the strip ends)."""
-    from refine.physics.stripline import cohn_z0
 
     def pair(lw_: NDArray, ls_: NDArray) -> tuple[NDArray, NDArray]:
         w, s = np.exp(np.real(lw_)), np.exp(ls_)
