@@ -537,6 +537,13 @@ def test_missing_engine_says_what_to_install(monkeypatch, tmp_path, capsys):
         engine.find_engine.cache_clear()
 
 
+@pytest.mark.parametrize("delays", [0.0, -1.0, float("nan")])
+def test_a_ringing_that_is_not_positive_is_refused_before_anything_runs(delays):
+    p = load_problem(TAP_PROBLEM)
+    with pytest.raises(ValueError, match="ring_delays"):
+        verify.check_layout(p, _tap_layout(), ring_delays=delays)
+
+
 def test_stripline_is_refused_with_a_clear_message(tmp_path):
     p = load_problem(ROOT / "problems/sl-ptfe-tap-1g6-n3-1pct.toml")
     with pytest.raises(verify.FieldCheckError, match="microstrip only"):

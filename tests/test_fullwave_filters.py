@@ -158,3 +158,136 @@ def test_the_old_boxs_walls_were_part_of_the_8_percent_filters_loss():
     assert abs(em - model) <= unc < 0.5
     em, unc, model = _em_and_unc(new, "worst_return_loss_db")
     assert em + unc < model
+
+
+# ------------------------------------------- the calibrated-model issue's bars (scoreboard)
+
+
+def _em_filters():
+    import sys
+
+    sys.path.insert(0, str(DATA.parent.parent / "benchmarks"))
+    import em_filters
+
+    return em_filters
+
+
+def _synthetic(centres, widths, margins, fbw=0.05, cells=(100e-6, 70.7e-6, 50e-6)) -> list[dict]:
+    """One filter's mesh sequence with the given field figures against a circuit model at
+    10 GHz with a 500 MHz 3 dB bandwidth (invented numbers, only to exercise the judge)."""
+    return [
+        {
+            "filter": "x",
+            "box": "half",
+            "mesh_index": k,
+            "edge_cell_m": cells[k],
+            "fbw": fbw,
+            "em": {"centre_hz": c, "bandwidth_hz": b, "worst_margin_db": m},
+            "model": {"centre_hz": 10e9, "bandwidth_hz": 500e6},
+        }
+        for k, (c, b, m) in enumerate(zip(centres, widths, margins, strict=True))
+    ]
+
+
+def test_the_scoreboard_judges_each_bar_beyond_the_mesh_uncertainty():
+    ef = _em_filters()
+    from refine.fullwave.uncertainty import MeshVerdict, verdict
+
+    key = ("x", "half")
+    # two meshes: the centre 0.02 % off the circuit model's (0.004 of a 5 % FBW) moving by
+    # 0.001 FBW: within 0.15; the bandwidth 20 % wide moving by 1 %: outside 10 %; the margin
+    # +0.5 dB moving by 2 dB: undecided
+    runs = _synthetic([10.001e9, 10.002e9], [590e6, 600e6], [-1.5, 0.5])
+    v = {k: verdict(f) for k, f in ef.bar_figures(runs, key).items()}
+    assert v == {
+        "centre": MeshVerdict.MET,
+        "bandwidth": MeshVerdict.NOT_MET,
+        "mask": MeshVerdict.UNDECIDED,
+    }
+    # one mesh: every bar undecided, whatever the distance
+    one = ef.bar_figures(runs[1:], key)
+    assert all(verdict(f) is MeshVerdict.UNDECIDED for f in one.values())
+    # a centre whose interval straddles the bar: undecided
+    runs = _synthetic([10.07e9, 10.08e9], [500e6, 500e6], [1.0, 1.0])  # 0.16 +- 0.02 FBW
+    assert verdict(ef.bar_figures(runs, key)["centre"]) is MeshVerdict.UNDECIDED
+
+
+def test_the_scoreboards_distance_uncertainty_is_the_signed_figures():
+    """A centre that crosses the circuit model's between meshes (-0.05 then +0.01 FBW) has the
+    signed figure's uncertainty, not the smaller one of its size."""
+    ef = _em_filters()
+    runs = _synthetic([9.975e9, 10.005e9], [500e6, 500e6], [1.0, 1.0])
+    fig = ef.bar_figures(runs, ("x", "half"))["centre"]
+    cells = [100e-6, 70.7e-6]
+    assert fig.uncertainty == pytest.approx(mesh_uncertainty(cells, [-0.05, 0.01]))
+    assert fig.uncertainty > 1.4 * mesh_uncertainty(cells, [0.05, 0.01])
+    assert ef.BAR_CENTRE_FBW - fig.value == pytest.approx(0.01)
+
+
+def test_the_readme_scoreboard_is_the_scripts():
+    ef = _em_filters()
+    readme = (DATA.parent.parent / "README.md").read_text()
+    block = readme.split("<!-- closed-gap:start -->", 1)[1].split("<!-- closed-gap:end -->")[0]
+    assert ef.scoreboard(DOC["runs"]) in block
+
+
+def test_the_stored_circuit_model_figures_are_todays_circuit_model():
+    """Each record stores the circuit model's figures of its day; the table compares the field
+    solver with them, so they must still be what refine's circuit model gives for the layout."""
+    import warnings
+
+    from refine.circuit.layout import ParallelLayout
+    from refine.circuit.response import evaluate_layout, evaluate_parallel
+    from refine.fullwave import compare, verify
+    from refine.spec.problem import load_problem
+    from refine.validity import ModelRangeWarning
+
+    ef = _em_filters()
+    for name in FILTERS:
+        problem = load_problem(ef.ROOT / "problems" / f"{name}.toml")
+        from em_cost import layout_of
+
+        lay = layout_of(name, problem, DOC["runs"])
+        f = verify.em_frequencies(problem)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ModelRangeWarning)
+            s = (
+                evaluate_parallel(problem, lay, f)
+                if isinstance(lay, ParallelLayout)
+                else evaluate_layout(problem, lay, f)
+            )
+        b = compare.band_figures(f, s[:, 0, 0], s[:, 1, 0], problem.mask)
+        for r in (r for r in DOC["runs"] if r["filter"] == name):
+            assert r["model"]["centre_hz"] == pytest.approx(b.centre, rel=1e-9), name
+            assert r["model"]["bandwidth_hz"] == pytest.approx(b.bandwidth, rel=1e-9), name
+            assert r["model"]["worst_return_loss_db"] == pytest.approx(
+                b.worst_return_loss, abs=1e-6
+            ), name
+
+
+def test_a_record_that_rings_less_than_the_default_stays_where_the_ringdown_study_held():
+    """A filter may simulate less ringing than the field check's default
+    (benchmarks/em_filters.py RING_DELAYS), never less than the shortest cut from which on the
+    ring-down study (tests/data/fullwave-ringdown.json) found every continued cut of every
+    filter within 0.5 % of the bandwidth in centre and 3 dB bandwidth and 0.1 dB in return loss
+    of the whole record; and its fit checks itself like any continued record."""
+    from test_fullwave_ringdown import RUNS as STUDY
+    from test_fullwave_ringdown import _changes
+
+    from refine.fullwave import ringdown
+
+    def holds(g: float) -> bool:
+        for r in STUDY.values():
+            for c in (c for c in r["cuts"] if c["group_delays"] >= g):
+                d = _changes(r, c, "continued")
+                if abs(d["centre"]) >= 0.005 or abs(d["bandwidth"]) >= 0.005 or abs(d["rl"]) >= 0.1:
+                    return False
+        return True
+
+    cuts = sorted({c["group_delays"] for r in STUDY.values() for c in r["cuts"]})
+    shortest = next(g for g in cuts if holds(g))
+    assert shortest <= 1.5  # what the x-band filter's record simulates
+    for r in DOC["runs"]:
+        if r.get("ring_delays") is not None:
+            assert r["ring_delays"] >= shortest and r["ringdown_continued"]
+            assert r["ringdown_fit_check"] < ringdown.CHECK_LIMIT

@@ -168,6 +168,7 @@ def check_layout(
     progress: engine.Progress | None = None,
     meshes: list[geometry.Resolution] | None = None,
     continue_ringdown: bool = True,
+    ring_delays: float | None = None,
 ) -> FieldCheck:
     """Field-solve a layout on its problem's substrate and compare with the circuit model;
     ``progress`` receives a line before each engine run and while it runs.
@@ -176,7 +177,11 @@ def check_layout(
     circuit model keeps its losses). ``meshes`` overrides the preset ``mesh`` names (a campaign
     that runs one mesh at a time). continue_ringdown: continue each record's ring-down past its
     end (:mod:`refine.fullwave.ringdown`): the engine stops on its energy criterion while a
-    narrowband filter's port signals still ring."""
+    narrowband filter's port signals still ring. ring_delays: the ringing simulated after the
+    pulse, in the circuit model's largest passband group delays (default
+    :data:`CONTINUED_RING_DELAYS` continued, :data:`RING_DELAYS` not)."""
+    if ring_delays is not None:
+        v.positive("ring_delays", ring_delays)
     if problem.medium != "microstrip":
         raise FieldCheckError(
             f"medium.kind = {problem.medium!r}: the field check handles microstrip only "
@@ -188,9 +193,9 @@ def check_layout(
         if isinstance(layout, ParallelLayout)
         else evaluate_layout(problem, layout, f)
     )
-    ring = ringing_time(
-        s_model[:, 1, 0], f, CONTINUED_RING_DELAYS if continue_ringdown else RING_DELAYS
-    )
+    if ring_delays is None:
+        ring_delays = CONTINUED_RING_DELAYS if continue_ringdown else RING_DELAYS
+    ring = ringing_time(s_model[:, 1, 0], f, ring_delays)
     sub = problem.strip_substrate
     s_sheet = None
     if sub.metal_thickness > 0:
