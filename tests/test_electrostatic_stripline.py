@@ -98,3 +98,19 @@ def test_series_capacitance_tends_to_the_wide_strip_closed_form():
     assert ratios[0] < ratios[1] < ratios[2] < 1.0
     assert ratios[1] == pytest.approx(0.70, abs=0.04)
     assert ratios[2] > 0.88
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("s_b", [0.05, 0.5])
+def test_series_capacitance_per_width_of_wide_strips_is_the_two_dimensional_gaps(s_b):
+    # A gap across a strip much wider than b is, away from the strip's two edges, the
+    # two-dimensional gap between two half-planes midway between the ground planes, whose
+    # series capacitance per width is (2 ε0 εr/π) ln coth(π s/2b) (Altschuler & Oliner 1960, the
+    # wide-strip limit of their gap; from memory, docs/references.md §7.5). The edges' share
+    # cancels in the difference between two wide strips. Measured: 0.989 of it at s/b 0.05 and
+    # 0.988 at 0.5 (density 2.25; 0.993-0.997 at 3.4), where at density 1 the same difference is
+    # 6-14 % off at s/b 0.5: the calibration's extrapolation over three densities is needed.
+    s = s_b * B
+    two_d = 2 * EPS0 / math.pi * math.log(1 / math.tanh(math.pi * s / (2 * B)))
+    c = [es.gap(1.0, B, w_b * B, s, 2.25, stripline=True).c_series for w_b in (3.0, 5.0)]
+    assert (c[1] - c[0]) / (2 * B) == pytest.approx(two_d, rel=0.02)
