@@ -148,6 +148,31 @@ def continued(earlier: list[dict]) -> bool:
     return bool(earlier[0].get("ringdown_continued", False)) if earlier else True
 
 
+def s_parameters(f: np.ndarray, s: np.ndarray) -> dict:
+    """A two-port's S-parameters as the data file stores them: frequencies (Hz) and the real
+    and imaginary parts of S11, S21, S12, S22, each to seven significant digits."""
+
+    def part(x: np.ndarray) -> list[float]:
+        return [float(f"{v:.7g}") for v in x]
+
+    out: dict = {"f_hz": part(f)}
+    for i, j in ((0, 0), (1, 0), (0, 1), (1, 1)):
+        out[f"s{i + 1}{j + 1}"] = {"re": part(s[:, i, j].real), "im": part(s[:, i, j].imag)}
+    return out
+
+
+def stored_s(rec: dict) -> tuple[np.ndarray, np.ndarray] | None:
+    """(f, S) of a record that stores its field solve's S-parameters (None before the key)."""
+    d = rec.get("s_em")
+    if d is None:
+        return None
+    s = np.zeros((len(d["f_hz"]), 2, 2), complex)
+    for i, j in ((0, 0), (1, 0), (0, 1), (1, 1)):
+        e = d[f"s{i + 1}{j + 1}"]
+        s[:, i, j] = np.asarray(e["re"]) + 1j * np.asarray(e["im"])
+    return np.asarray(d["f_hz"], float), s
+
+
 def _record(
     name, k, res, status, layout: dict, problem, c, t0: float, box: str, earlier: list[dict]
 ) -> dict:
@@ -185,6 +210,9 @@ def _record(
             "midband_loss_db": _midband_loss(c.f, c.s_model, problem.f0),
             "worst_margin_db": cmp_.model_mask.worst_margin,
         },
+        # the field solver's S-parameters themselves, so that later model work (a tee, a
+        # correction) can be fitted to this solve without running it again
+        "s_em": s_parameters(c.f, c.s_em),
         "cells": c.solves[-1].mesh.cells,
         "seconds": time.perf_counter() - t0,
         "engine": c.solves[-1].engine,

@@ -291,3 +291,34 @@ def test_a_record_that_rings_less_than_the_default_stays_where_the_ringdown_stud
         if r.get("ring_delays") is not None:
             assert r["ring_delays"] >= shortest and r["ringdown_continued"]
             assert r["ringdown_fit_check"] < ringdown.CHECK_LIMIT
+
+
+def test_stored_s_parameters_round_trip_to_seven_digits():
+    import numpy as np
+
+    ef = _em_filters()
+    rng = np.random.default_rng(7)
+    f = np.linspace(9e9, 11e9, 41)
+    s = rng.normal(size=(41, 2, 2)) + 1j * rng.normal(size=(41, 2, 2))
+    f2, s2 = ef.stored_s({"s_em": json.loads(json.dumps(ef.s_parameters(f, s)))})
+    assert np.array_equal(f2, f)
+    assert np.max(np.abs(s2 - s) / np.abs(s)) < 1e-6
+    assert ef.stored_s({}) is None  # records from before the key
+
+
+def test_a_records_stored_s_parameters_give_its_stored_figures():
+    """Records that keep the field solver's S-parameters: the band figures recomputed from them
+    (refine.fullwave.compare.band_figures on the problem's mask) are the record's."""
+    from refine.fullwave import compare
+    from refine.spec.problem import load_problem
+
+    ef = _em_filters()
+    for r in DOC["runs"]:
+        fs = ef.stored_s(r)
+        if fs is None:
+            continue
+        problem = load_problem(ef.ROOT / "problems" / f"{r['filter']}.toml")
+        b = compare.band_figures(fs[0], fs[1][:, 0, 0], fs[1][:, 1, 0], problem.mask)
+        assert b.centre == pytest.approx(r["em"]["centre_hz"], rel=1e-6)
+        assert b.bandwidth == pytest.approx(r["em"]["bandwidth_hz"], rel=1e-5)
+        assert b.worst_return_loss == pytest.approx(r["em"]["worst_return_loss_db"], abs=1e-4)
