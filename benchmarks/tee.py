@@ -114,10 +114,6 @@ def rows() -> list[dict]:
     return out
 
 
-def _pm(x: float | None, fmt: str) -> str:
-    return "" if x is None else f" ± {format(x, fmt)}"
-
-
 def table(data: list[dict]) -> str:
     lines = [
         "| filter (field solver: box, meshes) | centre (GHz): circuit / with planar tee / field | "
@@ -132,10 +128,10 @@ def table(data: list[dict]) -> str:
         rl, drl = fl["worst_return_loss_db"]
         lines.append(
             f"| {r['filter']} ({r['box']}, {r['meshes']}) | {c.centre / 1e9:.3f} / "
-            f"{t.centre / 1e9:.3f} / {fc / 1e9:.3f}{_pm(None if dfc is None else dfc / 1e9, '.3f')} | "
+            f"{t.centre / 1e9:.3f} / {fc / 1e9:.3f}{em_filters._pm(dfc, 1e-9, '.3f')} | "
             f"{c.bandwidth / 1e6:.0f} / {t.bandwidth / 1e6:.0f} / {bw / 1e6:.0f}"
-            f"{_pm(None if dbw is None else dbw / 1e6, '.0f')} | {c.worst_return_loss:.1f} / "
-            f"{t.worst_return_loss:.1f} / {rl:.1f}{_pm(drl, '.1f')} |"
+            f"{em_filters._pm(dbw, 1e-6, '.0f')} | {c.worst_return_loss:.1f} / "
+            f"{t.worst_return_loss:.1f} / {rl:.1f}{em_filters._pm(drl, 1, '.1f')} |"
         )
     return "\n".join(lines)
 
