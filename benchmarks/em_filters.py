@@ -30,7 +30,7 @@ from pathlib import Path
 import numpy as np
 
 from refine.circuit.layout import ParallelLayout
-from refine.fullwave import geometry, verify
+from refine.fullwave import geometry, ringdown, verify
 from refine.fullwave.uncertainty import Figure, MeshVerdict, mesh_uncertainty, verdict
 from refine.optimise.parallel import refine_parallel
 from refine.optimise.refiner import refine_problem
@@ -285,6 +285,16 @@ def _pm(x: float | None, scale: float, fmt: str) -> str:
     return "" if x is None else f" ± {format(x * scale, fmt)}"
 
 
+def _fit_caution(runs: list[dict], key: tuple[str, str]) -> str:
+    """A caution for a sequence whose ring-down continuation checked itself above the limit
+    (refine.fullwave.ringdown.CHECK_LIMIT), with the worst check."""
+    checks = [r.get("ringdown_fit_check") for r in runs if sequence(r) == key]
+    worst = max((c for c in checks if c is not None), default=None)
+    if worst is None or worst < ringdown.CHECK_LIMIT:
+        return ""
+    return f" (ring-down fit check {worst:.1e}, above the {ringdown.CHECK_LIMIT:g} caution)"
+
+
 def table(runs: list[dict]) -> str:
     rows = [
         "| filter (status on the circuit model; box) | centre shift | in units of the FBW | 3 dB "
@@ -309,7 +319,8 @@ def table(runs: list[dict]) -> str:
             f"{bw / m['bandwidth_hz']:.3f}{_pm(dbw, 1 / m['bandwidth_hz'], '.3f')} | "
             f"{rl:.1f}{_pm(drl, 1, '.1f')} dB ({m['worst_return_loss_db']:.1f}) | "
             f"{il:.2f}{_pm(dil, 1, '.2f')} dB ({m['midband_loss_db']:.2f}) | "
-            f"{s['meshes']}{' (no uncertainty yet)' if s['meshes'] == 1 else ''}, "
+            f"{s['meshes']}{' (no uncertainty yet)' if s['meshes'] == 1 else ''}"
+            f"{_fit_caution(runs, key)}, "
             f"{s['seconds'] / 60:.0f} min |"
         )
     return "\n".join(rows)
