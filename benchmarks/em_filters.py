@@ -4,6 +4,8 @@
     python benchmarks/em_filters.py --table         # the table from the data file only
     python benchmarks/em_filters.py --only NAME     # run one filter's missing meshes
     python benchmarks/em_filters.py --readme        # the table as the README block em-filters
+    python benchmarks/em_filters.py --only NAME --meshes 2   # its first two meshes only
+    python benchmarks/em_filters.py --only NAME --fill-s     # re-solve records kept without S
 
 Each filter of :data:`FILTERS` (bundled problems) is refined by refine's default (the calibrated
 circuit model with robust refinement) and its layout field-solved on three meshes, every cell
@@ -239,6 +241,52 @@ def _run_parallel(name: str, problem, k: int, threads: int, earlier: list[dict],
     return _record(name, k, res, status, parallel_layout_dict(lay), problem, c, t0, box, seq)
 
 
+#: the most a re-solved record's figures may move for its S-parameters to be stored with it (a
+#: re-solve of the same layout, mesh and engine is deterministic; anything more means the set-up
+#: has changed since, and the S-parameters would not be the record's)
+REPRODUCE_TOLERANCE = 1e-6
+
+
+def figure_change(old: dict, new: dict) -> float:
+    """The largest change between two records' field-solver figures: relative for the centre
+    and bandwidth, in dB/100 for return loss, midband loss and margin (so that 1e-6 means a
+    part per million or 1e-4 dB)."""
+    rel = [abs(new["em"][k] / old["em"][k] - 1) for k in ("centre_hz", "bandwidth_hz")]
+    db = [
+        abs(new["em"][k] - old["em"][k]) / 100
+        for k in ("worst_return_loss_db", "midband_loss_db", "worst_margin_db")
+    ]
+    return max(rel + db)
+
+
+def fill_s(runs: list[dict], name: str, threads: int, box: str) -> None:
+    """Re-solve each of ``name``'s records in ``box`` kept without S-parameters (from before the
+    key) and store its S-parameters when the re-solve reproduces the record's figures within
+    :data:`REPRODUCE_TOLERANCE`; the record says when and how closely."""
+    for i, rec in enumerate(runs):
+        if sequence(rec) != (name, box) or "s_em" in rec:
+            continue
+        k = rec["mesh_index"]
+        print(f"{name}, {box}, mesh {k + 1}: re-solving for its S-parameters ...", flush=True)
+        # its sequence's set-up (ring-down, ringing) comes from its first record, as it did
+        new = run_one(name, k, threads, runs, box)
+        change = figure_change(rec, new)
+        print(f"  figures reproduced to {change:.1e} ({new['seconds']:.0f} s)", flush=True)
+        if change > REPRODUCE_TOLERANCE:
+            print(f"  not stored: beyond {REPRODUCE_TOLERANCE:g}", flush=True)
+            continue
+        runs[i] = {
+            **rec,
+            "s_em": new["s_em"],
+            "s_em_resolved": {
+                "date": new["date"],
+                "figure_change": change,
+                "engine": new["engine"],
+            },
+        }
+        save(runs)
+
+
 def load() -> list[dict]:
     return campaign_data.load_runs(DATA)
 
@@ -430,13 +478,28 @@ def main(argv: list[str] | None = None) -> int:
         "--box", choices=list(campaign_data.BOXES), default=campaign_data.DEFAULT_BOX,
         help=f"the box to solve in (default: {campaign_data.DEFAULT_BOX!r}, the field check's)",
     )  # fmt: skip
+    ap.add_argument(
+        "--meshes", type=int, default=MESHES,
+        help=f"run each filter's meshes up to this one (1 to {MESHES}; default {MESHES})",
+    )  # fmt: skip
+    ap.add_argument(
+        "--fill-s", action="store_true",
+        help="re-solve the --only filter's records kept without S-parameters, then stop",
+    )  # fmt: skip
     args = ap.parse_args(argv)
     if args.only is not None and args.only not in FILTERS:
         ap.error(f"--only {args.only!r}: not one of {', '.join(FILTERS)}")
+    if not 1 <= args.meshes <= MESHES:
+        ap.error(f"--meshes {args.meshes}: allowed 1 to {MESHES}")
+    if args.fill_s and args.only is None:
+        ap.error("--fill-s needs --only NAME")
     runs = load()
+    if args.fill_s:
+        fill_s(runs, args.only, args.threads, args.box)
+        return 0
     if not (args.table or args.readme):
         done = {(*sequence(r), r["mesh_index"]) for r in runs}
-        for k in range(MESHES):  # every filter's coarser meshes first: a table sooner
+        for k in range(args.meshes):  # every filter's coarser meshes first: a table sooner
             for name in FILTERS:
                 if (name, args.box, k) in done or (args.only is not None and name != args.only):
                     continue

@@ -80,18 +80,32 @@ def solve_gap(
     half box above the strips' centre line, and the open box's walls
     (:class:`refine.fullwave.geometry.Resolution`); the fixture's records were solved in the
     whole box with first-order walls."""
-    sub = Substrate(g.eps_r, g.height)
     res = geometry.Resolution(
         f"edge {edge_cell * 1e6:g} um", edge_cell, mirror=mirror, open_walls=open_walls
     )
+    return solve_gap_on(g, res, workdir)
+
+
+def solve_gap_on(
+    g: GapGeometry,
+    res: geometry.Resolution,
+    workdir: str | Path | None = None,
+    threads: int = 0,
+    progress: engine.Progress | None = None,
+) -> GapSolve:
+    """:func:`solve_gap` on a given mesh preset (a filter's own meshes, say): the quasi-static
+    Cg and Cp of one gap, lossless, over the extraction band."""
+    sub = Substrate(g.eps_r, g.height)
     lo, hi = extraction_band(g.height)
     f = np.linspace(lo, hi, 21)
     st = geometry.gap_structure(g.width, g.gap, geometry.feed_length(sub, g.width, hi, res))
-    r = solve.solve(st, sub, f, 50.0, res, workdir=workdir, lossy=False)
+    r = solve.solve(
+        st, sub, f, 50.0, res, workdir=workdir, lossy=False, threads=threads, progress=progress
+    )
     pc = waves.pi_capacitances(r.abcd, f)
     cp = 0.5 * (pc.c_shunt_in + pc.c_shunt_out)
     return GapSolve(
-        edge_cell, quasi_static(f, pc.c_series), quasi_static(f, cp), r.mesh.cells, r.seconds
+        res.edge_cell, quasi_static(f, pc.c_series), quasi_static(f, cp), r.mesh.cells, r.seconds
     )
 
 
