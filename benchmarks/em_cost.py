@@ -25,51 +25,22 @@ import argparse
 import json
 import statistics
 import sys
-import warnings
 from dataclasses import replace
 from pathlib import Path
 
 from refine.circuit.layout import Layout, ParallelLayout
 from refine.circuit.response import evaluate_layout, evaluate_parallel
 from refine.fullwave import engine, geometry, solve, verify
-from refine.optimise.parallel import refine_parallel
-from refine.optimise.refiner import refine_problem
 from refine.spec.problem import Problem, load_problem
-from refine.validity import ModelRangeWarning
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import campaign_data
-from em_filters import DATA, FILTERS
+from em_filters import DATA, FILTERS, layout_of
 from readme_block import replace_block
 
 ROOT = Path(__file__).resolve().parent.parent
 #: the gap-coupled filter of the field-check issue's cost target, then the validation set
 COST_FILTERS = ("microstrip-x-band-alumina-n3", *FILTERS)
-
-
-def layout_of(name: str, problem: Problem, runs: list[dict]) -> Layout | ParallelLayout:
-    """The layout the validation set solved, else refine's default refinement."""
-    mine = [r for r in runs if r["filter"] == name]
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ModelRangeWarning)
-        if problem.topology == "parallel-coupled":
-            if mine:
-                d = mine[0]["layout"]
-                return ParallelLayout(
-                    d["feed_width"], d["widths"], d["spacings"], d["lengths"], d["feed_stub"]
-                )
-            return refine_parallel(problem).layout
-        lay = refine_problem(problem).strip_layouts[0]
-    if mine:
-        d = mine[0]["layout"]
-        return replace(
-            lay,
-            gaps=tuple(d["gaps"]),
-            lengths=tuple(d["lengths"]),
-            widths=tuple(d["widths"]),
-            taps=None if d["taps"] is None else tuple(d["taps"]),
-        )
-    return lay
 
 
 def ladder(

@@ -5,12 +5,15 @@ reproduce it, mesh by mesh.
     python benchmarks/em_extract.py --readme   # the table as the README block em-extract
 
 For every record of the filter-level validation set (benchmarks/em_filters.py) that stores the
-field solver's S-parameters, the implicit-space-mapping extraction of refine.fullwave.spacemap
+field solver's S-parameters, the implicit-space-mapping extraction (refine.fullwave.correction)
 (bounded least squares on |S11| and |S21| over the passband and 1.5 bandwidths either side) finds
 the preassigned parameters the circuit model lacks: a factor on each gap's series capacitance,
 an offset on each resonator's electrical length (open ends, dispersion, the tee), an offset on
-each tap, and a factor on the line attenuation; mirror copies tied. The table sets the figures of
-the corrected circuit model beside the field solver's and the uncorrected model's, so that it
+each tap, and a factor on the line attenuation; mirror copies tied. Like the extraction, the
+circuit model here has the field model's zero-thickness strips (refine.fullwave.correction.
+sheet_problem), whatever metal thickness the problem gives: like for like, the correction is
+what the field solver finds the circuit model missing. The table sets the figures of the
+corrected circuit model beside the field solver's and the uncorrected model's, so that it
 shows whether the correction explains the field response, and it gives the share of the
 incident power the filter dissipates or radiates at the design centre, 1 − |S11|² − |S21|².
 That share falls as the match worsens (less power enters the resonators), so the field solver's
@@ -30,32 +33,22 @@ import argparse
 import sys
 import time
 import warnings
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
 from refine.circuit.layout import Layout
-from refine.fullwave import compare, spacemap
+from refine.fullwave import compare, correction
 from refine.spec.problem import Problem, load_problem
 from refine.validity import ModelRangeWarning
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import campaign_data
 import em_filters
-from em_cost import layout_of
+from em_filters import layout_of
 from readme_block import replace_block
 
 ROOT = Path(__file__).resolve().parent.parent
-
-
-@dataclass(frozen=True)
-class StoredSolve:
-    """A stored field solve in the shape the extraction reads (layout, frequencies, S)."""
-
-    layout: Layout
-    f: np.ndarray
-    s_em: np.ndarray
 
 
 def lost_power(f: np.ndarray, s: np.ndarray, f0: float) -> float:
@@ -63,18 +56,6 @@ def lost_power(f: np.ndarray, s: np.ndarray, f0: float) -> float:
     incident power a two-port dissipates or radiates there (it depends on the match)."""
     p = 1.0 - np.abs(s[:, 0, 0]) ** 2 - np.abs(s[:, 1, 0]) ** 2
     return float(np.interp(f0, f, p))
-
-
-def at_bound(corr: spacemap.ModelCorrection, layout: Layout) -> set[str]:
-    """The correction's fields whose extracted value sits on its bound (within 1e-6 of it)."""
-    groups = spacemap._q_groups(layout, corr.gap_offsets is not None and any(corr.gap_offsets))
-    q = spacemap._correction_to_q(groups, corr)
-    out = set()
-    for (field, _), qi in zip(groups, q, strict=True):
-        lo, hi = spacemap._Q_BOUNDS[field]
-        if min(qi - lo, hi - qi) < 1e-6:
-            out.add(field)
-    return out
 
 
 def extract_record(problem: Problem, layout: Layout, rec: dict) -> dict:
@@ -85,11 +66,14 @@ def extract_record(problem: Problem, layout: Layout, rec: dict) -> dict:
     t0 = time.perf_counter()
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ModelRangeWarning)
-        corr, misfit = spacemap.extract_correction(problem, [StoredSolve(layout, f, s_em)])
-        s_model = spacemap.corrected_response(
-            problem, layout, spacemap.ModelCorrection.none(layout), f
+        corr, misfit = correction.extract_correction(
+            problem, [correction.StoredSolve(layout, f, s_em)]
         )
-        s_corr = spacemap.corrected_response(problem, layout, corr, f)
+        sheet = correction.sheet_problem(problem)  # the field model's zero-thickness strips
+        s_model = correction.corrected_response(
+            sheet, layout, correction.ModelCorrection.none(layout), f
+        )
+        s_corr = correction.corrected_response(sheet, layout, corr, f)
     figs = {}
     for key, s in (("field", s_em), ("circuit", s_model), ("corrected", s_corr)):
         b = compare.band_figures(f, s[:, 0, 0], s[:, 1, 0], problem.mask)
@@ -105,7 +89,7 @@ def extract_record(problem: Problem, layout: Layout, rec: dict) -> dict:
         "mesh_index": rec["mesh_index"],
         "edge_cell_m": rec["edge_cell_m"],
         "correction": corr,
-        "bound": at_bound(corr, layout),
+        "bound": correction.bounded_fields(corr, layout),
         "misfit": misfit,
         "figures": figs,
         "seconds": time.perf_counter() - t0,
@@ -156,7 +140,7 @@ def table(data: list[dict]) -> str:
         "|---|---|---|---|---|---|---|---|---|---|",
     ]
     for r in data:
-        c: spacemap.ModelCorrection = r["correction"]
+        c: correction.ModelCorrection = r["correction"]
         fg = r["figures"]
 
         gaps = ", ".join(f"{g:.3f}" for g in _half(c.gap_factors))

@@ -23,21 +23,25 @@ from __future__ import annotations
 
 import argparse
 import datetime
+import functools
+import json
 import sys
 import time
 import warnings
+from collections.abc import Callable
 from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 
-from refine.circuit.layout import ParallelLayout
-from refine.fullwave import geometry, ringdown, verify
+from refine.circuit.layout import Layout, ParallelLayout
+from refine.circuit.response import evaluate_layout, evaluate_parallel
+from refine.fullwave import compare, correction, geometry, ringdown, verify
 from refine.fullwave.uncertainty import Figure, MeshVerdict, mesh_uncertainty, verdict
 from refine.optimise.parallel import refine_parallel
 from refine.optimise.refiner import refine_problem
 from refine.outputs.export import parallel_layout_dict
-from refine.spec.problem import load_problem
+from refine.spec.problem import Problem, load_problem
 from refine.validity import ModelRangeWarning
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
@@ -115,6 +119,31 @@ def run_one(
     return _record(name, k, res, status, layout, problem, c, t0, box, seq)
 
 
+def layout_of(name: str, problem: Problem, runs: list[dict]) -> Layout | ParallelLayout:
+    """The layout the validation set solved, else refine's default refinement."""
+    mine = [r for r in runs if r["filter"] == name]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        if problem.topology == "parallel-coupled":
+            if mine:
+                d = mine[0]["layout"]
+                return ParallelLayout(
+                    d["feed_width"], d["widths"], d["spacings"], d["lengths"], d["feed_stub"]
+                )
+            return refine_parallel(problem).layout
+        lay = refine_problem(problem).strip_layouts[0]
+    if mine:
+        d = mine[0]["layout"]
+        return replace(
+            lay,
+            gaps=tuple(d["gaps"]),
+            lengths=tuple(d["lengths"]),
+            widths=tuple(d["widths"]),
+            taps=None if d["taps"] is None else tuple(d["taps"]),
+        )
+    return lay
+
+
 def in_box(
     res: geometry.Resolution, earlier: list[dict], box: str
 ) -> tuple[geometry.Resolution, list[dict]]:
@@ -173,6 +202,74 @@ def stored_s(rec: dict) -> tuple[np.ndarray, np.ndarray] | None:
         e = d[f"s{i + 1}{j + 1}"]
         s[:, i, j] = np.asarray(e["re"]) + 1j * np.asarray(e["im"])
     return np.asarray(d["f_hz"], float), s
+
+
+def _figures(problem: Problem, f: np.ndarray, s: np.ndarray) -> dict:
+    b = compare.band_figures(f, s[:, 0, 0], s[:, 1, 0], problem.mask)
+    return {
+        "centre_hz": b.centre,
+        "bandwidth_hz": b.bandwidth,
+        "worst_return_loss_db": b.worst_return_loss,
+        "midband_loss_db": _midband_loss(f, s, problem.f0),
+        "worst_margin_db": compare.compare(f, s, s, problem.mask).model_mask.worst_margin,
+    }
+
+
+@functools.cache
+def _layout_cached(name: str, layout_json: str) -> Layout | ParallelLayout:
+    problem = load_problem(ROOT / "problems" / f"{name}.toml")
+    return layout_of(name, problem, [{"filter": name, "layout": json.loads(layout_json)}])
+
+
+def record_layout(rec: dict) -> Layout | ParallelLayout:
+    """The layout a record solved (refine's refinement of its problem for the rest)."""
+    return _layout_cached(rec["filter"], json.dumps(rec["layout"], sort_keys=True))
+
+
+@functools.cache
+def _sheet_cached(name: str, layout_json: str) -> dict:
+    problem = load_problem(ROOT / "problems" / f"{name}.toml")
+    lay = _layout_cached(name, layout_json)
+    sheet = correction.sheet_problem(problem)
+    f = verify.em_frequencies(problem)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        s = (
+            evaluate_parallel(sheet, lay, f)
+            if isinstance(lay, ParallelLayout)
+            else evaluate_layout(sheet, lay, f)
+        )
+    return _figures(problem, f, s)
+
+
+def sheet_figures(rec: dict) -> dict:
+    """The circuit model's figures for a record's layout with the field model's zero-thickness
+    strips (refine.fullwave.correction.sheet_problem): like for like with the field solver. The
+    record's ``model`` figures have the problem's metal thickness, which the field model lacks
+    and which by itself moves the circuit model's response (10 um took the tapped alumina
+    filters' worst in-band return loss from about 10 to 15 dB)."""
+    return _sheet_cached(rec["filter"], json.dumps(rec["layout"], sort_keys=True))
+
+
+def margin_at_thickness(rec: dict) -> float | None:
+    """A record's field solve carried to the problem's metal thickness
+    (refine.fullwave.correction.margin_at_thickness: the worst margin of the circuit model with
+    the problem's thickness under the correction extracted from this solve against the circuit
+    model with sheets); the field margin itself on a problem without a thickness and on a
+    parallel-coupled layout (its coupled-line model has zero-thickness strips, so carrying it
+    changes nothing: refine.physics.coupled); None for a record kept without its
+    S-parameters."""
+    problem = load_problem(ROOT / "problems" / f"{rec['filter']}.toml")
+    lay = record_layout(rec)
+    if problem.strip_substrate.metal_thickness == 0 or not isinstance(lay, Layout):
+        return rec["em"]["worst_margin_db"]
+    got = stored_s(rec)
+    if got is None:
+        return None
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        m, _, _ = correction.margin_at_thickness(problem, [correction.StoredSolve(lay, *got)])
+    return m
 
 
 def _record(
@@ -318,6 +415,8 @@ def summary(runs: list[dict], key: tuple[str, str]) -> dict | None:
     out: dict = {
         "fbw": mine[0]["fbw"],
         "model": mine[-1]["model"],
+        "sheet": sheet_figures(mine[-1]),
+        "thickness_um": _thickness_um(mine[-1]["filter"]),
         "status": mine[0]["status"],
         "meshes": len(mine),
         "box": campaign_data.box_name(mine[0]),  # what ran
@@ -343,11 +442,19 @@ def _fit_caution(runs: list[dict], key: tuple[str, str]) -> str:
     return f" (ring-down fit check {worst:.1e}, above the {ringdown.CHECK_LIMIT:g} caution)"
 
 
+@functools.cache
+def _thickness_um(name: str) -> float:
+    return load_problem(ROOT / "problems" / f"{name}.toml").strip_substrate.metal_thickness * 1e6
+
+
 def table(runs: list[dict]) -> str:
+    """Per mesh sequence, the finest mesh's figures with their mesh uncertainty, against the
+    circuit model with the field model's zero-thickness strips (like for like: centre, 3 dB
+    bandwidth, return loss, loss) and, for return loss and loss, with the problem's metal."""
     rows = [
         "| filter (status on the circuit model; box) | centre shift | in units of the FBW | 3 dB "
-        "bandwidth ratio | worst in-band RL, field (circuit) | midband loss, field (circuit) | "
-        "meshes, engine time |",
+        "bandwidth ratio | worst in-band RL, field (circuit with sheets; with the metal) | "
+        "midband loss, field (circuit with sheets; with the metal) | meshes, engine time |",
         "|---|---|---|---|---|---|---|",
     ]
     for key in sequences(runs):
@@ -355,7 +462,7 @@ def table(runs: list[dict]) -> str:
         if s is None:
             continue
         name = key[0]
-        m = s["model"]
+        m, t = s["sheet"], s["model"]  # like for like: the circuit model with sheets
         fc, dfc = s["centre_hz"]
         shift = fc / m["centre_hz"] - 1
         bw, dbw = s["bandwidth_hz"]
@@ -365,8 +472,10 @@ def table(runs: list[dict]) -> str:
             f"| {name} ({s['status']}; {s['box']}) | {100 * shift:+.2f}{_pm(dfc, 100 / m['centre_hz'], '.2f')} % "
             f"| {shift / s['fbw']:+.2f}{_pm(dfc, 1 / (m['centre_hz'] * s['fbw']), '.2f')} | "
             f"{bw / m['bandwidth_hz']:.3f}{_pm(dbw, 1 / m['bandwidth_hz'], '.3f')} | "
-            f"{rl:.1f}{_pm(drl, 1, '.1f')} dB ({m['worst_return_loss_db']:.1f}) | "
-            f"{il:.2f}{_pm(dil, 1, '.2f')} dB ({m['midband_loss_db']:.2f}) | "
+            f"{rl:.1f}{_pm(drl, 1, '.1f')} dB ({m['worst_return_loss_db']:.1f}; "
+            f"{t['worst_return_loss_db']:.1f} at {s['thickness_um']:g} µm) | "
+            f"{il:.2f}{_pm(dil, 1, '.2f')} dB ({m['midband_loss_db']:.2f}; "
+            f"{t['midband_loss_db']:.2f}) | "
             f"{s['meshes']}{' (no uncertainty yet)' if s['meshes'] == 1 else ''}"
             f"{_fit_caution(runs, key)}, "
             f"{s['seconds'] / 60:.0f} min |"
@@ -389,27 +498,48 @@ WORDS = {
 }
 
 
-def bar_figures(runs: list[dict], key: tuple[str, str]) -> dict[str, Figure]:
+def bar_figures(
+    runs: list[dict],
+    key: tuple[str, str],
+    like: Callable[[dict], dict] | None = None,
+    carry: Callable[[dict], float | None] | None = None,
+) -> dict[str, Figure | None]:
     """One sequence's margins to the bars, per mesh, with their mesh uncertainty (None with one
     mesh): ``centre`` (in units of the FBW: the bar less the centre's distance from the circuit
-    model's), ``bandwidth`` (the bar less the 3 dB bandwidth's relative distance) and ``mask``
-    (the field solver's worst mask margin, dB). A distance's uncertainty is its signed
-    figure's (taking the size of a figure cannot widen its interval). Each is judged by
-    :func:`refine.fullwave.uncertainty.verdict`: beyond its uncertainty or not."""
+    model's), ``bandwidth`` (the bar less the 3 dB bandwidth's relative distance), both against
+    the circuit model with the field model's zero-thickness strips (:func:`sheet_figures`: like
+    for like), and ``mask``: the field solve carried to the problem's metal thickness
+    (:func:`margin_at_thickness`, dB) on the meshes whose records keep their S-parameters, None
+    where none does. A distance's uncertainty is its signed figure's (taking the size of a
+    figure cannot widen its interval). Each is judged by
+    :func:`refine.fullwave.uncertainty.verdict`: beyond its uncertainty or not. ``like`` and
+    ``carry`` replace :func:`sheet_figures` and :func:`margin_at_thickness` (invented records in
+    tests)."""
+    like = sheet_figures if like is None else like
+    carry = margin_at_thickness if carry is None else carry
     mine = sorted((r for r in runs if sequence(r) == key), key=lambda r: r["mesh_index"])
-    cells = [r["edge_cell_m"] for r in mine]
 
-    def figure(name: str, unit: str, signed: list[float], bar: float | None) -> Figure:
+    def figure(name: str, unit: str, recs: list[dict], signed: list[float], bar: float | None):
+        cells = [r["edge_cell_m"] for r in recs]
         unc = mesh_uncertainty(cells, signed) if len(signed) > 1 else None
         values = signed if bar is None else [bar - abs(x) for x in signed]
         return Figure(name, unit, tuple(values), unc)
 
-    centre = [(r["em"]["centre_hz"] / r["model"]["centre_hz"] - 1) / r["fbw"] for r in mine]
-    bandwidth = [r["em"]["bandwidth_hz"] / r["model"]["bandwidth_hz"] - 1 for r in mine]
+    sheet = [like(r) for r in mine]
+    centre = [
+        (r["em"]["centre_hz"] / m["centre_hz"] - 1) / r["fbw"]
+        for r, m in zip(mine, sheet, strict=True)
+    ]
+    bandwidth = [
+        r["em"]["bandwidth_hz"] / m["bandwidth_hz"] - 1 for r, m in zip(mine, sheet, strict=True)
+    ]
+    carried = [(r, carry(r)) for r in mine]
+    kept = [(r, m) for r, m in carried if m is not None]
+    mask = figure("mask", "dB", [r for r, _ in kept], [m for _, m in kept], None) if kept else None
     return {
-        "centre": figure("centre", "FBW", centre, BAR_CENTRE_FBW),
-        "bandwidth": figure("bandwidth", "", bandwidth, BAR_BANDWIDTH),
-        "mask": figure("mask", "dB", [r["em"]["worst_margin_db"] for r in mine], None),
+        "centre": figure("centre", "FBW", mine, centre, BAR_CENTRE_FBW),
+        "bandwidth": figure("bandwidth", "", mine, bandwidth, BAR_BANDWIDTH),
+        "mask": mask,
     }
 
 
@@ -421,37 +551,46 @@ def _bar_cell(f: Figure, v: MeshVerdict, bar: float, scale: float, unit: str, fm
 
 def scoreboard(runs: list[dict]) -> str:
     """The calibrated-model issue's bars on every sequence, the finest mesh of each: how far
-    the field solver's centre and 3 dB bandwidth lie from the circuit model's, and whether the
-    refined design meets its mask on the field solver, each as within / outside the bar beyond
-    the mesh uncertainty, or undecided; then a count per bar over the filters (a filter's
-    latest box)."""
+    the field solver's centre and 3 dB bandwidth lie from the circuit model's (like for like:
+    both with zero-thickness strips), and whether the refined design meets its mask on the
+    field solver carried to the problem's metal thickness, each as within / outside the bar
+    beyond the mesh uncertainty, or undecided; then a count per bar over the filters (a
+    filter's latest box)."""
     rows = [
         f"| filter (box) | meshes | centre, distance from the circuit model's (bar "
         f"{BAR_CENTRE_FBW:g} of the FBW) | 3 dB bandwidth, distance (bar {100 * BAR_BANDWIDTH:g} %) "
-        "| worst mask margin on the field solver (dB) | status on the circuit model |",
+        "| worst mask margin, field solver (dB): with sheets; carried to the problem's metal | "
+        "status on the circuit model |",
         "|---|---|---|---|---|---|",
     ]
-    latest: dict[str, dict[str, MeshVerdict]] = {}
+    latest: dict[str, dict[str, MeshVerdict | None]] = {}
     for key in sequences(runs):
         fig = bar_figures(runs, key)
-        mine = [r for r in runs if sequence(r) == key]
-        verdicts = {k: verdict(f) for k, f in fig.items()}
+        mine = sorted((r for r in runs if sequence(r) == key), key=lambda r: r["mesh_index"])
+        verdicts = {k: (None if f is None else verdict(f)) for k, f in fig.items()}
         latest[key[0]] = verdicts  # sequences() lists a filter's old box first
-
-        m = fig["mask"]
-        pm = "" if m.uncertainty is None else f" ± {m.uncertainty:.2f}"
-        met = {MeshVerdict.MET: "met", MeshVerdict.NOT_MET: "not met"}.get(
-            verdicts["mask"], "undecided"
-        )
+        centre, bandwidth, m = fig["centre"], fig["bandwidth"], fig["mask"]
+        assert centre is not None and bandwidth is not None
+        raw = [r["em"]["worst_margin_db"] for r in mine]
+        cells = [r["edge_cell_m"] for r in mine]
+        raw_u = mesh_uncertainty(cells, raw) if len(raw) > 1 else None
+        sheets = f"{raw[-1]:+.2f}{_pm(raw_u, 1, '.2f')}"
+        if m is None:
+            carried = "not carried (no stored S-parameters)"
+        else:
+            met = {MeshVerdict.MET: "met", MeshVerdict.NOT_MET: "not met"}.get(
+                verdicts["mask"], "undecided"
+            )
+            carried = f"{m.value:+.2f}{_pm(m.uncertainty, 1, '.2f')} ({len(m.per_mesh)} mesh"
+            carried += f"{'es' if len(m.per_mesh) > 1 else ''}): {met}"
         rows.append(
             f"| {key[0]} ({campaign_data.box_name(mine[0])}) | {len(mine)} | "
-            f"{_bar_cell(fig['centre'], verdicts['centre'], BAR_CENTRE_FBW, 1, '', '.2f')} | "
-            f"{_bar_cell(fig['bandwidth'], verdicts['bandwidth'], BAR_BANDWIDTH, 100, ' %', '.1f')}"
-            f" | {m.value:+.2f}{pm}: {met} | "
-            f"{mine[0]['status']} |"
+            f"{_bar_cell(centre, verdicts['centre'], BAR_CENTRE_FBW, 1, '', '.2f')} | "
+            f"{_bar_cell(bandwidth, verdicts['bandwidth'], BAR_BANDWIDTH, 100, ' %', '.1f')}"
+            f" | {sheets}; {carried} | {mine[0]['status']} |"
         )
 
-    def count(k: str, v: MeshVerdict) -> int:
+    def count(k: str, v: MeshVerdict | None) -> int:
         return sum(1 for x in latest.values() if x[k] is v)
 
     n = len(latest)
@@ -461,9 +600,10 @@ def scoreboard(runs: list[dict]) -> str:
         f"mesh uncertainty for {count('centre', MeshVerdict.MET)}, outside it for "
         f"{count('centre', MeshVerdict.NOT_MET)}; 3 dB bandwidth within for "
         f"{count('bandwidth', MeshVerdict.MET)}, outside for "
-        f"{count('bandwidth', MeshVerdict.NOT_MET)}; the mask met on the field solver for "
-        f"{count('mask', MeshVerdict.MET)}, not met for {count('mask', MeshVerdict.NOT_MET)} "
-        f"(the bar: met for {BAR_MET} of {BAR_FILTERS}). The rest are undecided at their meshes.",
+        f"{count('bandwidth', MeshVerdict.NOT_MET)}; the mask met on the field solver carried to "
+        f"the problem's metal for {count('mask', MeshVerdict.MET)}, not met for "
+        f"{count('mask', MeshVerdict.NOT_MET)}, not carried for {count('mask', None)} (the bar: "
+        f"met for {BAR_MET} of {BAR_FILTERS}). The rest are undecided at their meshes.",
     ]
     return "\n".join(rows + lines)
 

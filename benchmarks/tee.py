@@ -36,7 +36,7 @@ from refine.validity import ModelRangeWarning
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import em_filters
-from em_cost import layout_of
+from em_filters import layout_of
 from readme_block import replace_block
 
 ROOT = Path(__file__).resolve().parent.parent

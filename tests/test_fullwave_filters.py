@@ -9,8 +9,9 @@ comparisons only sequences of at least two meshes, so each figure has a mesh unc
 pin what the data show.
 
 - End-coupled filters with tapped feeds: the field solver's worst in-band return loss is below
-  the circuit model's by more than its mesh uncertainty on every one checked so far (the
-  circuit model overstates the match; the feed tee is the suspect).
+  the circuit model's with the problem's metal by more than its mesh uncertainty on every one
+  checked so far, and nearer the circuit model's with zero-thickness strips, like the field
+  model's own: most of that gap is the metal thickness the field model lacks.
 - The parallel-coupled filter: the circuit model's centre and worst in-band return loss lie
   within the field solver's mesh uncertainty, its 3 dB bandwidth within 1 %, while the field solver's
   midband loss exceeds the circuit model's by more than it (radiation from the open ends and the
@@ -93,9 +94,23 @@ def test_both_topologies_are_in_the_campaign():
 
 
 @pytest.mark.parametrize("seq", END_COUPLED)
-def test_the_field_solver_finds_the_match_worse_than_the_circuit_model(seq):
+def test_the_field_solver_finds_the_match_worse_than_the_circuit_model_with_its_metal(seq):
+    """The records' circuit-model figures have the problem's metal thickness, which the field
+    model's zero-thickness sheets lack."""
     em, unc, model = _em_and_unc(seq, "worst_return_loss_db")
     assert em + unc < model
+
+
+@pytest.mark.parametrize("seq", END_COUPLED)
+def test_most_of_that_is_the_metal_thickness_the_field_model_lacks(seq):
+    """On the circuit model the problem's metal alone (10 um on alumina, 17.5 um on the
+    laminate) raises the tapped filters' worst in-band return loss by 3.9-9.7 dB; the field
+    solver's sits nearer the circuit model with sheets, like its own strips, than with the metal
+    (benchmarks/em_filters.py sheet_figures)."""
+    em, _, thick = _em_and_unc(seq, "worst_return_loss_db")
+    sheet = _em_filters().sheet_figures(_meshes(seq)[-1])["worst_return_loss_db"]
+    assert thick - sheet > 3.5
+    assert abs(em - sheet) < abs(em - thick)
 
 
 @pytest.mark.parametrize("seq", PARALLEL)
@@ -189,6 +204,13 @@ def _synthetic(centres, widths, margins, fbw=0.05, cells=(100e-6, 70.7e-6, 50e-6
     ]
 
 
+def _bars(ef, runs: list[dict], key: tuple[str, str]) -> dict:
+    """The bars on invented records: judged against their own stored circuit-model figures and
+    field margins (the script takes the circuit model with sheets and carries each solve to the
+    problem's metal, which invented records have not got)."""
+    return ef.bar_figures(runs, key, lambda r: r["model"], lambda r: r["em"]["worst_margin_db"])
+
+
 def test_the_scoreboard_judges_each_bar_beyond_the_mesh_uncertainty():
     ef = _em_filters()
     from refine.fullwave.uncertainty import MeshVerdict, verdict
@@ -198,18 +220,18 @@ def test_the_scoreboard_judges_each_bar_beyond_the_mesh_uncertainty():
     # 0.001 FBW: within 0.15; the bandwidth 20 % wide moving by 1 %: outside 10 %; the margin
     # +0.5 dB moving by 2 dB: undecided
     runs = _synthetic([10.001e9, 10.002e9], [590e6, 600e6], [-1.5, 0.5])
-    v = {k: verdict(f) for k, f in ef.bar_figures(runs, key).items()}
+    v = {k: verdict(f) for k, f in _bars(ef, runs, key).items()}
     assert v == {
         "centre": MeshVerdict.MET,
         "bandwidth": MeshVerdict.NOT_MET,
         "mask": MeshVerdict.UNDECIDED,
     }
     # one mesh: every bar undecided, whatever the distance
-    one = ef.bar_figures(runs[1:], key)
+    one = _bars(ef, runs[1:], key)
     assert all(verdict(f) is MeshVerdict.UNDECIDED for f in one.values())
     # a centre whose interval straddles the bar: undecided
     runs = _synthetic([10.07e9, 10.08e9], [500e6, 500e6], [1.0, 1.0])  # 0.16 +- 0.02 FBW
-    assert verdict(ef.bar_figures(runs, key)["centre"]) is MeshVerdict.UNDECIDED
+    assert verdict(_bars(ef, runs, key)["centre"]) is MeshVerdict.UNDECIDED
 
 
 def test_the_scoreboards_distance_uncertainty_is_the_signed_figures():
@@ -217,7 +239,7 @@ def test_the_scoreboards_distance_uncertainty_is_the_signed_figures():
     signed figure's uncertainty, not the smaller one of its size."""
     ef = _em_filters()
     runs = _synthetic([9.975e9, 10.005e9], [500e6, 500e6], [1.0, 1.0])
-    fig = ef.bar_figures(runs, ("x", "half"))["centre"]
+    fig = _bars(ef, runs, ("x", "half"))["centre"]
     cells = [100e-6, 70.7e-6]
     assert fig.uncertainty == pytest.approx(mesh_uncertainty(cells, [-0.05, 0.01]))
     assert fig.uncertainty > 1.4 * mesh_uncertainty(cells, [0.05, 0.01])
@@ -245,7 +267,7 @@ def test_the_stored_circuit_model_figures_are_todays_circuit_model():
     ef = _em_filters()
     for name in FILTERS:
         problem = load_problem(ef.ROOT / "problems" / f"{name}.toml")
-        from em_cost import layout_of
+        from em_filters import layout_of
 
         lay = layout_of(name, problem, DOC["runs"])
         f = verify.em_frequencies(problem)

@@ -105,7 +105,7 @@ def test_the_planar_tee_moves_the_8_percent_filter_where_the_field_solver_does_n
     sys.path.insert(0, str(DATA.parent.parent / "benchmarks"))
     import em_filters
     import tee
-    from em_cost import layout_of
+    from em_filters import layout_of
 
     from refine.fullwave import compare, verify
     from refine.spec.problem import load_problem

@@ -60,6 +60,11 @@ def check_dict(c: FieldCheck) -> dict:
         "mesh_verdict": c.verdict.name.lower().replace("_", " "),
         # what the metal thickness (not in the field model) moves the margin on the circuit model
         "thickness_margin_shift_db": c.thickness_shift,
+        # the worst mask margin of each mesh's field solve carried to the problem's metal
+        # thickness, which the verdict judges (None: no thickness, or a parallel-coupled layout)
+        "margin_at_thickness_db": None
+        if c.carried is None
+        else {"per_mesh": list(c.carried.per_mesh), "uncertainty": c.carried.uncertainty},
         "mesh_figures": [
             {
                 "figure": fig.name,
@@ -92,7 +97,14 @@ def thickness_words(c: FieldCheck) -> str:
         f"model it moves the centre by {100 * (model.centre / sheet.centre - 1):+.2f} %, the "
         f"worst in-band return loss from {sheet.worst_return_loss:.2f} to "
         f"{model.worst_return_loss:.2f} dB and the worst mask margin by "
-        f"{c.thickness_shift:+.2f} dB, which the verdict counts as uncertainty."
+        f"{c.thickness_shift:+.2f} dB; "
+        + (
+            "the verdict judges each field solve carried to the thickness (the correction it "
+            "implies for the circuit model with sheets, applied with the thickness): "
+            f"{c.carried.value:+.2f} dB."
+            if c.carried is not None
+            else "the verdict counts that as uncertainty."
+        )
     )
 
 

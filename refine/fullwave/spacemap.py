@@ -32,12 +32,20 @@ noisy extractions both made the next move worse than the unit step.
 
 Gaps, resonator lengths and tap positions are what moves (mirror-tied when the layout is
 symmetric); widths stay as refined.
+
+**Metal thickness.** The field model's strips are zero-thickness sheets; the circuit model's
+have the problem's thickness. The implicit method extracts its correction against the circuit
+model with zero thickness and re-refines the circuit model with the problem's thickness and
+that correction; it ranks and stops its rounds on each field solve carried to the problem's
+thickness (refine.fullwave.correction, where the extraction lives). The aggressive map compares
+each field solve with the problem's own circuit model, thickness included: it designs for the
+field model's sheets, which only a problem without a thickness makes right.
 """
 
 from __future__ import annotations
 
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -47,14 +55,19 @@ from numpy.typing import NDArray
 from refine.circuit.builder import Adjustments
 from refine.circuit.layout import Layout
 from refine.circuit.model import StripFilterModel, strip_model_for
-from refine.circuit.response import evaluate_layout, strip_medium_for, verification_grid
+from refine.circuit.response import strip_medium_for, verification_grid
 from refine.fullwave import verify
+from refine.fullwave.correction import (
+    ModelCorrection,
+    extract_correction,
+    fit_band,
+    margin_at_thickness,
+)
 from refine.fullwave.uncertainty import MeshVerdict
 from refine.optimise.minimax import Stopping, minimax
-from refine.optimise.space import DesignSpace, mirror_ties, snap_layout, step_space
+from refine.optimise.space import DesignSpace, snap_layout, step_space
 from refine.outputs import artwork, export
 from refine.outputs.files import locked_folder
-from refine.spec.coupling import Coupling
 from refine.spec.problem import Problem
 
 FILES = ("fullwave-layout.json", "fullwave-layout.dxf", "fullwave-rounds.json")
@@ -76,19 +89,13 @@ def _mapped(model: StripFilterModel, layout: Layout) -> DesignSpace:
     return step_space(model, layout, 3.0, 0.9, None)
 
 
-def _fit_band(problem: Problem, f: NDArray) -> NDArray[np.bool_]:
-    m = problem.mask
-    bw = m.passband_stop - m.passband_start
-    return (f >= m.passband_start - 1.5 * bw) & (f <= m.passband_stop + 1.5 * bw)
-
-
 def extract(
     problem: Problem, check: verify.FieldCheck, start: Layout, others: tuple[Layout, ...] = ()
 ) -> Layout:
     """The layout whose circuit-model response best matches the field-solver response: a
     bounded least-squares fit from ``start`` and from each of ``others`` (the best one wins),
     within exp(±1.5) in each gap and ±25 % in each length and tap."""
-    sel = _fit_band(problem, check.f)
+    sel = fit_band(problem, check.f)
     f = check.f[sel]
     model = _model(problem, start, f)
     sp = step_space(model, start, 1.5, 0.25, None)
@@ -113,160 +120,8 @@ def extract(
 
 # --------------------------------------------------------------------------------------------
 # Implicit space mapping: preassigned model parameters extracted from the field solves
+# (refine.fullwave.correction)
 # --------------------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True)
-class ModelCorrection:
-    """Corrections to the circuit model, extracted from field solves (the preassigned
-    parameters of implicit space mapping).
-
-    gap_factors : multiply each gap's series capacitance; gap_offsets : metres taken off each
-    drawn gap before the gap model sees it (with the factor, this lets the correction follow
-    how fast the field solver's coupling changes with the gap, which a factor alone misses);
-    length_offsets : metres added to each resonator's electrical length (open ends,
-    dispersion, the tee); tap_offsets : metres added to each tap position (where the tee
-    really joins; None for gap coupling); loss_factor : multiplies every line's attenuation
-    (radiation and the field solver's own metal loss are not in the circuit model).
-    """
-
-    gap_factors: tuple[float, ...]
-    length_offsets: tuple[float, ...]
-    tap_offsets: tuple[float, float] | None = None
-    loss_factor: tuple[float] = (1.0,)
-    gap_offsets: tuple[float, ...] | None = None
-
-    def adjustments(self) -> Adjustments:
-        """The correction as the circuit builder's :class:`Adjustments`."""
-        return Adjustments(
-            self.gap_factors,
-            self.gap_offsets,
-            self.length_offsets,
-            self.tap_offsets,
-            self.loss_factor[0],
-        )
-
-    @classmethod
-    def none(cls, layout: Layout) -> ModelCorrection:
-        tap = layout.external is Coupling.TAP
-        return cls(
-            (1.0,) * len(layout.gaps),
-            (0.0,) * layout.order,
-            (0.0, 0.0) if tap else None,
-            (1.0,),
-            (0.0,) * len(layout.gaps),
-        )
-
-
-def corrected_response(
-    problem: Problem, layout: Layout, corr: ModelCorrection, f: NDArray
-) -> NDArray[np.complex128]:
-    """S-matrix ``(nf, 2, 2)`` of the circuit model with a correction applied."""
-    return evaluate_layout(problem, layout, f, corr.adjustments())
-
-
-_Q_SCALE = {
-    "gap_factors": 1.0,
-    "gap_offsets": 1e-5,
-    "length_offsets": 1e-4,
-    "tap_offsets": 1e-4,
-    "loss_factor": 1.0,
-}
-_Q_LOG = ("gap_factors", "loss_factor")  # extracted as logs
-_Q_BOUNDS = {
-    "gap_factors": (-0.7, 0.7),  # log of the factor: 0.5 to 2
-    "gap_offsets": (-6.0, 6.0),  # +-60 um
-    "length_offsets": (-5.0, 5.0),  # +-0.5 mm
-    "tap_offsets": (-5.0, 5.0),
-    "loss_factor": (-0.1, 4.0),  # log: 0.9 to 55
-}
-
-
-def _q_groups(layout: Layout, with_gap_offsets: bool) -> list[tuple[str, tuple[int, ...]]]:
-    """(field, tied indices) of every extracted correction parameter, mirror copies sharing one
-    entry when the layout is symmetric."""
-    fields = [("gap_factors", len(layout.gaps))]
-    if with_gap_offsets:
-        fields.append(("gap_offsets", len(layout.gaps)))
-    fields.append(("length_offsets", layout.order))
-    if layout.external is Coupling.TAP:
-        fields.append(("tap_offsets", 2))
-    fields.append(("loss_factor", 1))
-    groups: list[tuple[str, tuple[int, ...]]] = []
-    for name, n in fields:
-        ties = {i: j for i, j in mirror_ties(n, 0)} if layout.is_mirror else {}
-        mirrored = set(ties.values())
-        for i in range(n):
-            if i not in mirrored:
-                groups.append((name, (i, ties[i]) if i in ties else (i,)))
-    return groups
-
-
-def _q_to_correction(layout: Layout, groups, q: NDArray) -> ModelCorrection:
-    base = ModelCorrection.none(layout)
-    vals = {
-        f: list(getattr(base, f))
-        for f in ("gap_factors", "gap_offsets", "length_offsets", "loss_factor")
-    }
-    if layout.external is Coupling.TAP:
-        vals["tap_offsets"] = [0.0, 0.0]
-    for (field, idx), qi in zip(groups, q, strict=True):
-        val = float(np.exp(qi)) if field in _Q_LOG else float(qi) * _Q_SCALE[field]
-        for i in idx:
-            vals[field][i] = val
-    return ModelCorrection(**{k: tuple(v) for k, v in vals.items()})
-
-
-def _correction_to_q(groups, corr: ModelCorrection) -> NDArray:
-    out = []
-    for field, idx in groups:
-        x = getattr(corr, field)[idx[0]]
-        out.append(np.log(x) if field in _Q_LOG else x / _Q_SCALE[field])
-    return np.array(out)
-
-
-def extract_correction(
-    problem: Problem, checks: Sequence[verify.FieldCheck], start: ModelCorrection | None = None
-) -> tuple[ModelCorrection, float]:
-    """The one correction that makes the circuit model reproduce every field solve so far
-    (multipoint extraction: bounded least squares on |S11| and |S21| around the passband, all
-    solves at once), and the RMS misfit left. With one solve only the gap factors are fitted;
-    from two solves with different gaps, the gap offsets as well."""
-    lay = checks[-1].layout
-    if not isinstance(lay, Layout):
-        raise TypeError("space mapping corrects end-coupled layouts only")
-    distinct = len({c.layout.gaps for c in checks if isinstance(c.layout, Layout)}) >= 2
-    groups = _q_groups(lay, distinct)
-    data: list[tuple[Layout, NDArray, NDArray]] = []
-    for c in checks:
-        assert isinstance(c.layout, Layout)
-        sel = _fit_band(problem, c.f)
-        target = np.concatenate([np.abs(c.s_em[sel, 0, 0]), np.abs(c.s_em[sel, 1, 0])])
-        data.append((c.layout, c.f[sel], target))
-
-    def resid(q: NDArray) -> NDArray:
-        corr = _q_to_correction(lay, groups, q)
-        out = []
-        for layout, f, target in data:
-            s = corrected_response(problem, layout, corr, f)
-            out.append(np.concatenate([np.abs(s[:, 0, 0]), np.abs(s[:, 1, 0])]) - target)
-        return np.concatenate(out)
-
-    lo = np.array([_Q_BOUNDS[g][0] for g, _ in groups])
-    hi = np.array([_Q_BOUNDS[g][1] for g, _ in groups])
-    starts = [np.zeros(len(groups))]
-    if start is not None:
-        starts.append(np.clip(_correction_to_q(groups, start), lo + 1e-9, hi - 1e-9))
-    best = None
-    for q0 in starts:
-        from scipy.optimize import least_squares  # loaded on first use (start-up time)
-
-        sol = least_squares(resid, q0, bounds=(lo, hi), x_scale=0.1, diff_step=1e-4)
-        if best is None or sol.cost < best.cost:
-            best = sol
-    assert best is not None
-    rms = float(np.sqrt(np.mean(best.fun**2)))
-    return _q_to_correction(lay, groups, best.x), rms
 
 
 # the most one round of implicit space mapping moves: 0.3 in log gap (35 %), 2 % in length and
@@ -311,14 +166,21 @@ class Correction:
     misfits: tuple[float, ...]  # implicit: RMS |S| misfit left after each extraction
     notes: tuple[str, ...]
     seconds: float
+    #: each round's field solve carried to the problem's metal thickness (dB,
+    #: :func:`margin_at_thickness`; the field margin itself on a problem without a thickness)
+    margins_at_thickness: tuple[float, ...] = ()
 
     @property
     def best(self) -> int:
-        """Index of the round whose field-solver response has the largest worst margin (the
-        last round is not always the best when the map is poor)."""
-        return max(
-            range(len(self.checks)), key=lambda k: self.checks[k].comparison.em_mask.worst_margin
-        )
+        """Index of the round whose field-solver response has the largest worst margin, carried
+        to the problem's metal thickness (the last round is not always the best when the map is
+        poor)."""
+        return max(range(len(self.checks)), key=lambda k: self._ranked(k))
+
+    def _ranked(self, k: int) -> float:
+        if self.margins_at_thickness:
+            return self.margins_at_thickness[k]
+        return self.checks[k].comparison.em_mask.worst_margin
 
     @property
     def met(self) -> bool:
@@ -333,8 +195,9 @@ class Correction:
         lines = []
         for k, c in enumerate(self.checks, start=1):
             lines.append(
-                f"field solve {k}: worst mask margin {c.comparison.em_mask.worst_margin:+.2f} dB "
-                f"(circuit model {c.comparison.model_mask.worst_margin:+.2f} dB), "
+                f"field solve {k}: worst mask margin {c.comparison.em_mask.worst_margin:+.2f} dB"
+                + _at_thickness(c, self._ranked(k - 1))
+                + f" (circuit model {c.comparison.model_mask.worst_margin:+.2f} dB), "
                 f"{c.seconds:.0f} s"
             )
         for k, m in enumerate(self.misfits, start=1):
@@ -346,6 +209,12 @@ class Correction:
             f"{best.verdict_sentence()}"
         )
         return "\n".join(lines + [f"  note: {n}" for n in self.notes])
+
+
+def _at_thickness(c: verify.FieldCheck, margin: float) -> str:
+    """ ", +x.xx dB at the problem's metal thickness" where the problem has one."""
+    t = c.problem.strip_substrate.metal_thickness * 1e6
+    return "" if t == 0 else f", {margin:+.2f} dB at the problem's {t:g} um metal thickness"
 
 
 METHODS = ("implicit", "aggressive")
@@ -383,21 +252,28 @@ def correct(
     maps: list[Layout] = []
     misfits: list[float] = []
     notes: list[str] = []
+    at_t: list[float] = []
     for k in range(max_runs):
         wd = Path(workdir) / f"round-{k + 1}" if workdir is not None else None
         c = verify.check_layout(problem, cur, mesh, wd, progress=progress)
         checks.append(c)
+        m_t, corr_t, misfit_t = margin_at_thickness(problem, checks, corr)
+        at_t.append(m_t)
         say(
-            f"field solve {k + 1}: worst mask margin {c.comparison.em_mask.worst_margin:+.2f} dB, "
-            f"{c.comparison.summary_line()}"
+            f"field solve {k + 1}: worst mask margin {c.comparison.em_mask.worst_margin:+.2f} dB"
+            f"{_at_thickness(c, m_t)}, {c.comparison.summary_line()}"
         )
         # a round decides only beyond its mesh uncertainty; one mesh cannot bound its error,
-        # so there the mask met on that mesh ends the rounds (an explicitly undecided result)
-        done = c.verdict is MeshVerdict.MET or (len(c.solves) <= 1 and c.comparison.em_mask.passed)
+        # so there the mask met on that mesh (at the problem's metal thickness) ends the rounds
+        # (an explicitly undecided result)
+        done = c.verdict is MeshVerdict.MET or (len(c.solves) <= 1 and m_t >= 0)
         if done or k == max_runs - 1:
             break
         if method == "implicit":
-            corr, misfit = extract_correction(problem, checks, corr)
+            if corr_t is None or misfit_t is None:
+                corr, misfit = extract_correction(problem, checks, corr)
+            else:
+                corr, misfit = corr_t, misfit_t
             corrections.append(corr)
             misfits.append(misfit)
             cur_new = rerefine(problem, cur, corr)
@@ -419,6 +295,7 @@ def correct(
         tuple(misfits),
         tuple(notes),
         time.perf_counter() - t0,
+        tuple(at_t),
     )
 
 
@@ -436,10 +313,11 @@ def _write_corrected(sm: Correction, out: Path) -> list[Path]:
         {
             "layout": export.layout_dict(ly),
             "field_solver_worst_margin_db": c.comparison.em_mask.worst_margin,
+            "field_solver_margin_at_thickness_db": sm._ranked(k),
             "circuit_model_worst_margin_db": c.comparison.model_mask.worst_margin,
             "engine_seconds": c.seconds,
         }
-        for ly, c in zip(sm.layouts, sm.checks, strict=False)
+        for k, (ly, c) in enumerate(zip(sm.layouts, sm.checks, strict=False))
     ]
     return [
         export.write_json(out / names[0], export.layout_dict(lay)),

@@ -22,6 +22,7 @@ from refine import _validate as v
 from refine.circuit.layout import Layout, ParallelLayout
 from refine.circuit.response import evaluate_parallel
 from refine.fullwave import compare, engine, geometry, solve, uncertainty, waves
+from refine.fullwave.correction import StoredSolve, carried_margin, sheet_problem
 from refine.outputs.files import evaluate_layout
 from refine.spec.problem import Problem
 
@@ -84,6 +85,10 @@ class FieldCheck:
     #: the circuit model's response with zero metal thickness (the field model's sheets), when
     #: the problem gives a thickness; None otherwise
     s_model_sheet: NDArray[np.complex128] | None = None
+    #: the worst mask margin of each mesh's field solve carried to the problem's metal thickness
+    #: (refine.fullwave.correction.carried_margin), with its mesh uncertainty; None where the
+    #: problem has no thickness or the layout is parallel-coupled (whose circuit model has none)
+    carried: uncertainty.Figure | None = None
 
     @property
     def thickness_shift(self) -> float | None:
@@ -97,8 +102,12 @@ class FieldCheck:
         return self.comparison.model_mask.worst_margin - sheet.model_mask.worst_margin
 
     def judged_margin(self) -> uncertainty.Figure:
-        """The worst mask margin the verdict rests on: the finest mesh's, its uncertainty the
-        mesh's plus the magnitude of :attr:`thickness_shift` (when there are two meshes)."""
+        """The worst mask margin the verdict rests on: the field solves carried to the
+        problem's metal thickness (:attr:`carried`) where there is one; else the finest mesh's
+        margin, its uncertainty the mesh's plus the magnitude of :attr:`thickness_shift` (when
+        there are two meshes)."""
+        if self.carried is not None:
+            return self.carried
         fig = self.figure("worst mask margin")
         shift = self.thickness_shift
         if shift is None or fig.uncertainty is None:
@@ -130,8 +139,16 @@ class FieldCheck:
         cell = self.solves[-1].resolution.edge_cell if self.solves else 50e-6
         text = uncertainty.sentence(self.judged_margin(), cell)
         shift = self.thickness_shift
-        if shift is not None:
-            t = self.problem.strip_substrate.metal_thickness * 1e6
+        t = self.problem.strip_substrate.metal_thickness * 1e6
+        if self.carried is not None:
+            text += (
+                f" (carried to the problem's {t:g} um metal thickness, which the field model's "
+                "zero-thickness sheets lack: the correction each field solve implies for the "
+                "circuit model with sheets, applied to the circuit model with the thickness; "
+                f"on its sheets the field solver's margin is "
+                f"{self.comparison.em_mask.worst_margin:+.2f} dB)"
+            )
+        elif shift is not None:
             text += (
                 f" (the uncertainty includes {abs(shift):.2f} dB, what the {t:g} um metal "
                 "thickness moves the margin on the circuit model: the field model's strips are "
@@ -199,7 +216,7 @@ def check_layout(
     sub = problem.strip_substrate
     s_sheet = None
     if sub.metal_thickness > 0:
-        sheet = replace(problem, substrate=replace(sub, metal_thickness=0.0))
+        sheet = sheet_problem(problem)
         s_sheet = (
             evaluate_parallel(sheet, layout, f)
             if isinstance(layout, ParallelLayout)
@@ -242,8 +259,39 @@ def check_layout(
                 cells, [c.em.worst_return_loss for c in figs]
             ).value,
         }
+    carried = carried_figure(problem, layout, f, solves)
     return FieldCheck(
-        problem, layout, mesh, f, s_em, s_model, comp, tuple(solves), extra, figures, s_sheet
+        problem,
+        layout,
+        mesh,
+        f,
+        s_em,
+        s_model,
+        comp,
+        tuple(solves),
+        extra,
+        figures,
+        s_sheet,
+        carried,
+    )
+
+
+def carried_figure(
+    problem: Problem,
+    layout: Layout | ParallelLayout,
+    f: NDArray[np.float64],
+    solves: tuple[solve.FieldSolve, ...] | list[solve.FieldSolve],
+) -> uncertainty.Figure | None:
+    """Each mesh's worst mask margin carried to the problem's metal thickness
+    (refine.fullwave.correction.carried_margin), with the finest mesh's uncertainty from them;
+    None where the problem has no thickness or the layout is parallel-coupled."""
+    if problem.strip_substrate.metal_thickness == 0 or not isinstance(layout, Layout):
+        return None
+    values = [carried_margin(problem, StoredSolve(layout, f, s.s)) for s in solves]
+    kept = tuple(float(x) for x in values if x is not None)
+    cells = [s.resolution.edge_cell for s in solves]
+    return uncertainty.Figure(
+        "worst mask margin", "dB", kept, uncertainty.mesh_uncertainty(cells, list(kept))
     )
 
 
