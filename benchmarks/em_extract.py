@@ -58,6 +58,17 @@ def lost_power(f: np.ndarray, s: np.ndarray, f0: float) -> float:
     return float(np.interp(f0, f, p))
 
 
+def band_and_loss(problem: Problem, f: np.ndarray, s: np.ndarray) -> dict:
+    """Centre, 3 dB bandwidth, worst in-band return loss and the power lost at f0."""
+    b = compare.band_figures(f, s[:, 0, 0], s[:, 1, 0], problem.mask)
+    return {
+        "centre_hz": b.centre,
+        "bandwidth_hz": b.bandwidth,
+        "worst_return_loss_db": b.worst_return_loss,
+        "lost_power": lost_power(f, s, problem.f0),
+    }
+
+
 def extract_record(problem: Problem, layout: Layout, rec: dict) -> dict:
     """The correction one stored solve implies, its misfit, and the figures it reproduces."""
     got = em_filters.stored_s(rec)
@@ -74,15 +85,10 @@ def extract_record(problem: Problem, layout: Layout, rec: dict) -> dict:
             sheet, layout, correction.ModelCorrection.none(layout), f
         )
         s_corr = correction.corrected_response(sheet, layout, corr, f)
-    figs = {}
-    for key, s in (("field", s_em), ("circuit", s_model), ("corrected", s_corr)):
-        b = compare.band_figures(f, s[:, 0, 0], s[:, 1, 0], problem.mask)
-        figs[key] = {
-            "centre_hz": b.centre,
-            "bandwidth_hz": b.bandwidth,
-            "worst_return_loss_db": b.worst_return_loss,
-            "lost_power": lost_power(f, s, problem.f0),
-        }
+    figs = {
+        key: band_and_loss(problem, f, s)
+        for key, s in (("field", s_em), ("circuit", s_model), ("corrected", s_corr))
+    }
     return {
         "filter": rec["filter"],
         "box": campaign_data.box_name(rec),

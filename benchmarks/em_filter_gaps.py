@@ -37,7 +37,7 @@ import numpy as np
 
 from refine.circuit.layout import Layout
 from refine.circuit.response import strip_medium_for
-from refine.fullwave import calibration, compare, correction, engine, verify, waves
+from refine.fullwave import calibration, correction, engine, verify, waves
 from refine.physics import strip
 from refine.physics.constants import C0
 from refine.physics.gap_fixture import GapGeometry
@@ -47,7 +47,7 @@ from refine.validity import ModelRangeWarning
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import campaign_data
 import em_filters
-from em_extract import lost_power
+from em_extract import band_and_loss
 from em_filters import layout_of
 from readme_block import replace_block
 
@@ -260,14 +260,7 @@ def explain_rows(gap_runs: list[dict], name: str = FILTER) -> list[dict]:
             "correction": corr,
         }
         for key, s in (("field", s_em), ("circuit", plain), ("with the mesh's gaps", meshed)):
-            b = compare.band_figures(f, s[:, 0, 0], s[:, 1, 0], problem.mask)
-            row[key] = {
-                "centre_hz": b.centre,
-                "bandwidth_hz": b.bandwidth,
-                "worst_return_loss_db": b.worst_return_loss,
-                "lost_power": lost_power(f, s, problem.f0),
-                "misfit": misfit(problem, f, s, s_em),
-            }
+            row[key] = {**band_and_loss(problem, f, s), "misfit": misfit(problem, f, s, s_em)}
         out.append(row)
     return out
 

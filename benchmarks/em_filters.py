@@ -230,16 +230,17 @@ def record_layout(rec: dict) -> Layout | ParallelLayout:
 def _sheet_cached(name: str, layout_json: str) -> dict:
     problem = load_problem(ROOT / "problems" / f"{name}.toml")
     lay = _layout_cached(name, layout_json)
-    sheet = correction.sheet_problem(problem)
     f = verify.em_frequencies(problem)
+    return _figures(problem, f, circuit_response(correction.sheet_problem(problem), lay, f))
+
+
+def circuit_response(problem: Problem, lay: Layout | ParallelLayout, f: np.ndarray) -> np.ndarray:
+    """The circuit model's S-matrix of either topology's layout (range warnings silenced)."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ModelRangeWarning)
-        s = (
-            evaluate_parallel(sheet, lay, f)
-            if isinstance(lay, ParallelLayout)
-            else evaluate_layout(sheet, lay, f)
-        )
-    return _figures(problem, f, s)
+        if isinstance(lay, ParallelLayout):
+            return evaluate_parallel(problem, lay, f)
+        return evaluate_layout(problem, lay, f)
 
 
 def sheet_figures(rec: dict) -> dict:

@@ -256,13 +256,9 @@ def test_the_readme_scoreboard_is_the_scripts():
 def test_the_stored_circuit_model_figures_are_todays_circuit_model():
     """Each record stores the circuit model's figures of its day; the table compares the field
     solver with them, so they must still be what refine's circuit model gives for the layout."""
-    import warnings
 
-    from refine.circuit.layout import ParallelLayout
-    from refine.circuit.response import evaluate_layout, evaluate_parallel
     from refine.fullwave import compare, verify
     from refine.spec.problem import load_problem
-    from refine.validity import ModelRangeWarning
 
     ef = _em_filters()
     for name in FILTERS:
@@ -271,13 +267,7 @@ def test_the_stored_circuit_model_figures_are_todays_circuit_model():
 
         lay = layout_of(name, problem, DOC["runs"])
         f = verify.em_frequencies(problem)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", ModelRangeWarning)
-            s = (
-                evaluate_parallel(problem, lay, f)
-                if isinstance(lay, ParallelLayout)
-                else evaluate_layout(problem, lay, f)
-            )
+        s = ef.circuit_response(problem, lay, f)
         b = compare.band_figures(f, s[:, 0, 0], s[:, 1, 0], problem.mask)
         for r in (r for r in DOC["runs"] if r["filter"] == name):
             assert r["model"]["centre_hz"] == pytest.approx(b.centre, rel=1e-9), name
