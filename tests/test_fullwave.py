@@ -32,6 +32,7 @@ from refine.fullwave import (
     handover,
     mesh,
     spacemap,
+    uncertainty,
     verify,
     waves,
 )
@@ -576,7 +577,12 @@ def test_space_mapping_meets_the_mask_on_a_stand_in_fine_model(monkeypatch, meth
         s_c = evaluate_layout(problem, layout, f)
         s_sheet = evaluate_layout(correction.sheet_problem(problem), layout, f)
         comp = compare.compare(f, s_f, s_c, problem.mask)
-        return verify.FieldCheck(problem, layout, mesh, f, s_f, s_c, comp, (), None, (), s_sheet)
+        # carried to the problem's metal as check_layout carries each mesh's solve
+        m = correction.carried_margin(problem, correction.StoredSolve(layout, f, s_f))
+        carried = uncertainty.Figure("worst mask margin", "dB", (m,), None)
+        return verify.FieldCheck(
+            problem, layout, mesh, f, s_f, s_c, comp, (), None, (), s_sheet, carried
+        )
 
     monkeypatch.setattr(verify, "check_layout", fake_check)
     first = fake_check(p, r.layout)
@@ -593,6 +599,8 @@ def test_space_mapping_meets_the_mask_on_a_stand_in_fine_model(monkeypatch, meth
     s = evaluate_layout(thick_fine, sm.layouts[sm.best], f)
     truth = compare.compare(f, s, s, p.mask).em_mask.worst_margin
     assert sm.margins_at_thickness[sm.best] == pytest.approx(truth, abs=0.05)
+    # ranked on the number each round's verdict reports
+    assert sm.margins_at_thickness[sm.best] == sm.checks[sm.best].judged_margin().value
     assert truth >= (0.0 if method == "implicit" else -1.0)
     if method == "implicit":  # the extracted correction is mostly a length change
         corr = sm.extracted[0]

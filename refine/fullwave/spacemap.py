@@ -61,7 +61,6 @@ from refine.fullwave.correction import (
     ModelCorrection,
     extract_correction,
     fit_band,
-    margin_at_thickness,
 )
 from refine.fullwave.uncertainty import MeshVerdict
 from refine.optimise.minimax import Stopping, minimax
@@ -166,8 +165,9 @@ class Correction:
     misfits: tuple[float, ...]  # implicit: RMS |S| misfit left after each extraction
     notes: tuple[str, ...]
     seconds: float
-    #: each round's field solve carried to the problem's metal thickness (dB,
-    #: :func:`margin_at_thickness`; the field margin itself on a problem without a thickness)
+    #: each round's verdict margin (dB): its field solve carried to the problem's metal
+    #: thickness (refine.fullwave.verify.FieldCheck.carried), the field margin itself on a
+    #: problem without a thickness
     margins_at_thickness: tuple[float, ...] = ()
 
     @property
@@ -257,7 +257,10 @@ def correct(
         wd = Path(workdir) / f"round-{k + 1}" if workdir is not None else None
         c = verify.check_layout(problem, cur, mesh, wd, progress=progress)
         checks.append(c)
-        m_t, corr_t, misfit_t = margin_at_thickness(problem, checks, corr)
+        # the round's own verdict margin: its field solve carried to the problem's metal
+        # thickness where there is one (refine.fullwave.verify.FieldCheck.carried), so that the
+        # rounds are ranked and stopped on the number their verdicts report
+        m_t = c.judged_margin().value
         at_t.append(m_t)
         say(
             f"field solve {k + 1}: worst mask margin {c.comparison.em_mask.worst_margin:+.2f} dB"
@@ -270,10 +273,7 @@ def correct(
         if done or k == max_runs - 1:
             break
         if method == "implicit":
-            if corr_t is None or misfit_t is None:
-                corr, misfit = extract_correction(problem, checks, corr)
-            else:
-                corr, misfit = corr_t, misfit_t
+            corr, misfit = extract_correction(problem, checks, corr)
             corrections.append(corr)
             misfits.append(misfit)
             cur_new = rerefine(problem, cur, corr)
