@@ -38,7 +38,7 @@ from pathlib import Path
 import numpy as np
 
 from refine.circuit.layout import Layout
-from refine.fullwave import compare, correction
+from refine.fullwave import correction
 from refine.spec.problem import Problem, load_problem
 from refine.validity import ModelRangeWarning
 
@@ -60,13 +60,7 @@ def lost_power(f: np.ndarray, s: np.ndarray, f0: float) -> float:
 
 def band_and_loss(problem: Problem, f: np.ndarray, s: np.ndarray) -> dict:
     """Centre, 3 dB bandwidth, worst in-band return loss and the power lost at f0."""
-    b = compare.band_figures(f, s[:, 0, 0], s[:, 1, 0], problem.mask)
-    return {
-        "centre_hz": b.centre,
-        "bandwidth_hz": b.bandwidth,
-        "worst_return_loss_db": b.worst_return_loss,
-        "lost_power": lost_power(f, s, problem.f0),
-    }
+    return {**em_filters.band(problem, f, s), "lost_power": lost_power(f, s, problem.f0)}
 
 
 def extract_record(problem: Problem, layout: Layout, rec: dict) -> dict:

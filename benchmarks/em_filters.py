@@ -204,12 +204,20 @@ def stored_s(rec: dict) -> tuple[np.ndarray, np.ndarray] | None:
     return np.asarray(d["f_hz"], float), s
 
 
-def _figures(problem: Problem, f: np.ndarray, s: np.ndarray) -> dict:
+def band(problem: Problem, f: np.ndarray, s: np.ndarray) -> dict:
+    """Centre, 3 dB bandwidth and worst in-band return loss of a two-port on the problem's mask
+    (refine.fullwave.compare.band_figures), under the data file's keys."""
     b = compare.band_figures(f, s[:, 0, 0], s[:, 1, 0], problem.mask)
     return {
         "centre_hz": b.centre,
         "bandwidth_hz": b.bandwidth,
         "worst_return_loss_db": b.worst_return_loss,
+    }
+
+
+def _figures(problem: Problem, f: np.ndarray, s: np.ndarray) -> dict:
+    return {
+        **band(problem, f, s),
         "midband_loss_db": _midband_loss(f, s, problem.f0),
         "worst_margin_db": compare.compare(f, s, s, problem.mask).model_mask.worst_margin,
     }
