@@ -365,10 +365,13 @@ def figure_change(old: dict, new: dict) -> float:
     return max(rel + db)
 
 
-def fill_s(runs: list[dict], name: str, threads: int, box: str) -> None:
+def fill_s(runs: list[dict], name: str, threads: int, box: str, replace: bool = False) -> None:
     """Re-solve each of ``name``'s records in ``box`` kept without S-parameters (from before the
     key) and store its S-parameters when the re-solve reproduces the record's figures within
-    :data:`REPRODUCE_TOLERANCE`; the record says when and how closely."""
+    :data:`REPRODUCE_TOLERANCE`; the record says when and how closely. With ``replace``, a
+    re-solve that does not reproduce (the set-up, such as the ringing time the circuit model
+    sets, has changed since) replaces the record whole, and the new record names the one it
+    replaced and how far their figures differ."""
     for i, rec in enumerate(runs):
         if sequence(rec) != (name, box) or "s_em" in rec:
             continue
@@ -378,6 +381,14 @@ def fill_s(runs: list[dict], name: str, threads: int, box: str) -> None:
         new = run_one(name, k, threads, runs, box)
         change = figure_change(rec, new)
         print(f"  figures reproduced to {change:.1e} ({new['seconds']:.0f} s)", flush=True)
+        if change > REPRODUCE_TOLERANCE and replace:
+            print(f"  beyond {REPRODUCE_TOLERANCE:g}: the re-solve replaces the record", flush=True)
+            runs[i] = {
+                **new,
+                "replaces": {"date": rec["date"], "figure_change": change, "em": rec["em"]},
+            }
+            save(runs)
+            continue
         if change > REPRODUCE_TOLERANCE:
             print(f"  not stored: beyond {REPRODUCE_TOLERANCE:g}", flush=True)
             continue
@@ -635,6 +646,10 @@ def main(argv: list[str] | None = None) -> int:
         "--fill-s", action="store_true",
         help="re-solve the --only filter's records kept without S-parameters, then stop",
     )  # fmt: skip
+    ap.add_argument(
+        "--replace-changed", action="store_true",
+        help="with --fill-s: a re-solve whose figures moved replaces its record whole",
+    )  # fmt: skip
     args = ap.parse_args(argv)
     if args.only is not None and args.only not in FILTERS:
         ap.error(f"--only {args.only!r}: not one of {', '.join(FILTERS)}")
@@ -642,9 +657,11 @@ def main(argv: list[str] | None = None) -> int:
         ap.error(f"--meshes {args.meshes}: allowed 1 to {MESHES}")
     if args.fill_s and args.only is None:
         ap.error("--fill-s needs --only NAME")
+    if args.replace_changed and not args.fill_s:
+        ap.error("--replace-changed needs --fill-s")
     runs = load()
     if args.fill_s:
-        fill_s(runs, args.only, args.threads, args.box)
+        fill_s(runs, args.only, args.threads, args.box, args.replace_changed)
         return 0
     if not (args.table or args.readme):
         done = {(*sequence(r), r["mesh_index"]) for r in runs}

@@ -213,6 +213,16 @@ def build_parser() -> argparse.ArgumentParser:
         "%(default)s",
     )
     p.add_argument(
+        "--metal",
+        choices=["sheet", "thick"],
+        default="sheet",
+        help="the field model's strips: zero-thickness lossy sheets, judged carried to the "
+        "problem's metal through the circuit model; or thick: solid perfect conductors as "
+        "thick as the problem's metal, judged as they are (slower: a cell through the metal; a "
+        "cross-check that shows only part of the metal's effect at the meshes a check "
+        "affords, see the README); default: %(default)s",
+    )
+    p.add_argument(
         "--correct",
         action="store_true",
         help="EM-corrected refinement: map the field-solver response back onto the circuit "

@@ -907,11 +907,24 @@ def _cmd_fullwave(args: argparse.Namespace) -> int:
         raise UsageError(
             f"{args.layout}: the field check needs a physical layout, not an electrical one"
         )
+    if args.metal == "thick" and args.correct:
+        raise UsageError(
+            "--metal thick with --correct: EM-corrected refinement extracts its corrections "
+            "against the circuit model with sheets; use --metal sheet"
+        )
+    if args.metal == "thick" and problem.strip_substrate.metal_thickness == 0:
+        raise UsageError(
+            f"--metal thick: {args.problem} gives no metal thickness ([substrate] "
+            "metal_thickness = 0)"
+        )
     out = Path(args.out) if args.out is not None else Path(args.layout).parent
     names = handover.FILES + (spacemap.FILES if args.correct else ())
     outputs.prepare_folder(out, args.force, names)  # refuse before any work
     eng = _field_engine()
-    print(f"field solver: {eng.version} under {eng.python}; mesh {args.mesh}", flush=True)
+    print(
+        f"field solver: {eng.version} under {eng.python}; mesh {args.mesh}; metal {args.metal}",
+        flush=True,
+    )
     print(
         "solving: a thru line for the port calibration, then the layout (minutes) ...", flush=True
     )
@@ -929,7 +942,7 @@ def _cmd_fullwave(args: argparse.Namespace) -> int:
         written = handover.write_check(check, out, args.force)
         written += spacemap.write_corrected(sm, out, args.force)
     else:
-        check = verify.check_layout(problem, lay, args.mesh, progress=_say)
+        check = verify.check_layout(problem, lay, args.mesh, progress=_say, metal=args.metal)
         written = handover.write_check(check, out, args.force)
     print(f"{check.runs} engine runs, {check.seconds:.0f} s")
     print(_table(["figure", "field solver", "circuit model"], check.comparison.rows()))

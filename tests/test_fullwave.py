@@ -703,7 +703,9 @@ def _stand_in(monkeypatch):
 
     monkeypatch.setattr(engine, "find_engine", lambda: engine.Engine("python3", "openEMS test"))
 
-    def fake_check(problem, layout, mesh="pair", workdir=None, threads=0, progress=None):
+    def fake_check(
+        problem, layout, mesh="pair", workdir=None, threads=0, progress=None, metal=None
+    ):
         # two "meshes": eps_r 10.102 on the coarse one, 10.1 on the fine one (a small mesh
         # uncertainty, so that the verdicts are decided)
         f = verify.em_frequencies(problem)

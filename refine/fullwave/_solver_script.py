@@ -32,6 +32,43 @@ def um(x):
     return [float(v) / UNIT for v in x]
 
 
+def enclose_conductor(csx, port, spec, t):
+    """Replace a microstrip port's current probes, which the engine draws in the strip's bottom
+    plane (their loop then cuts a solid strip and misses the current on its top and sides), by
+    probes at the same positions whose loop encloses the whole conductor, from its bottom face
+    (z = h) to its top (z = h + t), one dual line beyond each. The port's strip plane, voltage probes (strip bottom to
+    ground) and excitation (in the substrate) are right as the engine draws them."""
+    ny = {"x": 0, "y": 1, "z": 2}[spec["direction"]]
+    lines = np.asarray(csx.GetGrid().GetLines(ny), float)
+    start = np.asarray(um(spec["start"]), float)
+    stop = np.asarray(um(spec["stop"]), float)
+    # the engine's own placement (ports.MSLPort): three voltage probes on the lines around the
+    # measurement plane, two current probes midway between them
+    idx = int(np.argmin(np.abs(lines - (start[ny] + port.direction * port.measplane_shift))))
+    idx = min(max(idx, 1), len(lines) - 2)
+    u_pos = lines[[idx - 1, idx, idx + 1]]
+    if port.direction < 0:
+        u_pos = u_pos[::-1]
+    # the loop's bottom and top run on the dual lines just below the bottom face and just above
+    # the top face, where the engine's own loop runs below and above a sheet; given exactly, so
+    # that the engine's snapping to the dual mesh cannot pick the one inside the metal
+    zs = np.asarray(csx.GetGrid().GetLines(2), float)
+    i_bottom = int(np.argmin(np.abs(zs - start[2])))
+    i_top = int(np.argmin(np.abs(zs - (start[2] + t / UNIT))))
+    z_lo = 0.5 * (zs[i_bottom - 1] + zs[i_bottom])
+    z_hi = 0.5 * (zs[i_top] + zs[i_top + 1])
+    names = []
+    for k, pos in enumerate(u_pos[:2] + np.diff(u_pos) / 2.0):
+        a, b = start.copy(), stop.copy()
+        a[ny] = b[ny] = pos
+        a[2], b[2] = z_lo, z_hi
+        name = f"port_it_solid_{spec['number']}{'AB'[k]}"
+        probe = csx.AddProbe(name, p_type=1, weight=port.direction, norm_dir=ny)
+        probe.AddBox(a, b)
+        names.append(name)
+    port.I_filenames = names
+
+
 def main(job_path, out_path):
     with open(job_path) as fh:
         job = json.load(fh)
@@ -59,6 +96,7 @@ def main(job_path, out_path):
     diel.AddBox(um([xs[0], ys[0], 0.0]), um([xs[-1], ys[-1], sub["height"]]), priority=0)
 
     metal = job["metal"]
+    solid = float(metal.get("solid", 0.0))  # > 0: solid strips this thick (perfect conductor)
     if metal.get("conductivity"):
         cu = csx.AddConductingSheet(
             "copper", conductivity=float(metal["conductivity"]), thickness=float(metal["thickness"])
@@ -67,7 +105,7 @@ def main(job_path, out_path):
         cu = csx.AddMetal("copper")
     h = float(sub["height"])
     for x0, y0, x1, y1 in job["strips"]:
-        cu.AddBox(um([x0, y0, h]), um([x1, y1, h]), priority=10)
+        cu.AddBox(um([x0, y0, h]), um([x1, y1, h + solid]), priority=10)
 
     ports = []
     for p in job["ports"]:
@@ -86,6 +124,8 @@ def main(job_path, out_path):
                 **kw,
             )
         )
+        if solid and metal.get("enclose", True):  # False: the engine's probes (a diagnostic)
+            enclose_conductor(csx, ports[-1], p, solid)
 
     # optional: the raw E and H fields on a few neighbouring cross-sections, from mesh line x0
     # to mesh line x1, transformed at a few frequencies (refine.fullwave.cross_plane)

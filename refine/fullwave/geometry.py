@@ -2,7 +2,11 @@
 
 The copper comes from :func:`refine.outputs.export.copper`, the same rectangles the DXF and SVG
 drawings are made of, so the field solver sees exactly the drawing that is handed over. Strips
-are zero-thickness sheets on the substrate top (z = h); the ground is the PEC floor of the box.
+are zero-thickness sheets on the substrate top (z = h) by default (lossy sheets with the problem's
+conductivity and thickness); with the "thick" metal model (:data:`METAL_MODELS`) they are solid
+perfect conductors from z = h to h + t, the problem's metal thickness, with mesh lines on both
+faces (one cell through the metal: common practice, no source) and the port current probes
+around the whole conductor. The ground is the PEC floor of the box.
 
 Ports are microstrip ports on the feeds: the wave is launched ``feed_shift`` in from the box edge
 (past the absorbing layer), voltages and currents are probed at a measurement plane a distance
@@ -60,6 +64,14 @@ EDGE_RULES = ("on-edge", "thirds")
 #: +70 %, and on the laminate have not caught up even at 24 h.
 OPEN_WALLS = ("first-order", "pml")
 
+#: The strips' metal. "sheet": zero-thickness sheets, lossy with the problem's conductivity and
+#: thickness through the engine's conducting-sheet model (what every stored solve before this
+#: key used); "thick": solid perfect conductors as thick as the problem's metal (the geometry
+#: the circuit model's thickness correction describes; lossless metal, because the skin depth,
+#: 0.66 um in copper at 10 GHz, is far below any cell here). benchmarks/em_thick_metal.py
+#: measures the one against the other.
+METAL_MODELS = ("sheet", "thick")
+
 
 @dataclass(frozen=True)
 class Resolution:
@@ -68,7 +80,7 @@ class Resolution:
     largest growth between neighbouring cells; side_margin, air_above: the box beyond the copper
     on its open sides and above the substrate, in substrate heights; edge_rule: where the mesh
     lines sit at a metal edge (:data:`EDGE_RULES`); open_walls: the absorbing walls of an open
-    enclosure (:data:`OPEN_WALLS`)."""
+    enclosure (:data:`OPEN_WALLS`); metal: the strips' model (:data:`METAL_MODELS`)."""
 
     name: str
     edge_cell: float
@@ -79,6 +91,7 @@ class Resolution:
     edge_rule: str = "on-edge"
     open_walls: str = "pml"
     mirror: bool = True
+    metal: str = "sheet"
 
     def __post_init__(self) -> None:
         v.positive("mesh edge_cell", self.edge_cell)
@@ -89,6 +102,7 @@ class Resolution:
                 f"mesh edge_rule must be one of {', '.join(EDGE_RULES)}, got {self.edge_rule!r}"
             )
         v.one_of("mesh open_walls", self.open_walls, OPEN_WALLS)
+        v.one_of("mesh metal", self.metal, METAL_MODELS)
 
     def halved(self, times: int = 1) -> Resolution:
         return replace(self, name=f"{self.name}/{2**times}", edge_cell=self.edge_cell / 2**times)
@@ -290,6 +304,8 @@ class Mesh:
     mirror: float | None = None
     #: the open enclosure's walls the box was padded for (:data:`OPEN_WALLS`)
     open_walls: str = "pml"
+    #: the thickness of solid strips (the "thick" metal model), 0 for sheets
+    metal_thickness: float = 0.0
 
     @property
     def span(self) -> float:
@@ -354,13 +370,19 @@ def build_mesh(st: Structure, substrate: Substrate, f_max: float, res: Resolutio
         tol = 1e-3 * float(np.min(np.diff(lines["y"])))
         upper = lines["y"][lines["y"] > mirror + tol]
         lines["y"] = np.concatenate(([2.0 * mirror - upper[0]], upper))
-    z_pts = [(0.0, min(h / 4.0, d_max)), (h, edge)]
+    t = substrate.metal_thickness if res.metal == "thick" else 0.0
+    if res.metal == "thick" and not t > 0:
+        raise ValueError("mesh metal 'thick' needs the substrate's metal_thickness > 0, got 0")
+    # solid strips: a line on both faces, the cell through the metal its thickness
+    z_pts = [(0.0, min(h / 4.0, d_max)), (h, min(edge, t) if t else edge)]
+    if t:
+        z_pts.append((h + t, t))
     lines["z"] = _padded(
         meshing.graded_lines(z_pts, 0.0, h + res.air_above * h, d_max, res.ratio), 0, pad
     )
-    # guarantee a line exactly at the substrate top
-    assert np.any(lines["z"] == h)
-    return Mesh(lines["x"], lines["y"], lines["z"], edge, d_max, mirror, res.open_walls)
+    # guarantee a line exactly at the substrate top (and the metal's)
+    assert np.any(lines["z"] == h) and (not t or np.any(lines["z"] == h + t))
+    return Mesh(lines["x"], lines["y"], lines["z"], edge, d_max, mirror, res.open_walls, t)
 
 
 def _padded(lines: NDArray, lo: int, hi: int) -> NDArray:
@@ -462,9 +484,18 @@ def job(
                 "meas_shift": fd.length - d_ref,
             }
         )
-    metal = {"conductivity": None, "thickness": 0.0}
-    if lossy and substrate.conductivity is not None and substrate.metal_thickness > 0:
-        metal = {"conductivity": substrate.conductivity, "thickness": substrate.metal_thickness}
+    metal = {"conductivity": None, "thickness": 0.0, "solid": mesh.metal_thickness}
+    if (
+        lossy
+        and not mesh.metal_thickness
+        and substrate.conductivity is not None
+        and substrate.metal_thickness > 0
+    ):
+        metal = {
+            "conductivity": substrate.conductivity,
+            "thickness": substrate.metal_thickness,
+            "solid": 0.0,
+        }
     return {
         "substrate": {
             "eps_r": substrate.eps_r,

@@ -58,6 +58,8 @@ def check_dict(c: FieldCheck) -> dict:
         },
         "extrapolated": c.extrapolated,
         "mesh_verdict": c.verdict.name.lower().replace("_", " "),
+        # the field model's strips: zero-thickness sheets, or solid as thick as the metal
+        "metal": "thick" if c.solid else "sheet",
         # what the metal thickness (not in the field model) moves the margin on the circuit model
         "thickness_margin_shift_db": c.thickness_shift,
         # the worst mask margin of each mesh's field solve carried to the problem's metal
@@ -87,6 +89,12 @@ ENCLOSURE_WORDS = {
 
 def thickness_words(c: FieldCheck) -> str:
     """What the field model's zero-thickness strips leave out, by the circuit model."""
+    if c.solid:
+        t = c.problem.strip_substrate.metal_thickness * 1e6
+        return (
+            f" The field model's strips are solid, {t:g} um thick as the problem's metal, and "
+            "perfectly conducting: like for like with the circuit model but for conductor loss."
+        )
     if c.s_model_sheet is None or c.thickness_shift is None:
         return ""
     sheet = compare(c.f, c.s_em, c.s_model_sheet, c.problem.mask).model

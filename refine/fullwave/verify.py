@@ -91,6 +91,13 @@ class FieldCheck:
     carried: uncertainty.Figure | None = None
 
     @property
+    def solid(self) -> bool:
+        """Whether the field model's strips were solid, as thick as the problem's metal
+        (geometry's "thick" metal model): then the field solver's margin is like for like with
+        the circuit model's and nothing is carried."""
+        return bool(self.solves) and all(s.resolution.metal == "thick" for s in self.solves)
+
+    @property
     def thickness_shift(self) -> float | None:
         """How much the problem's metal thickness moves the worst mask margin (dB) on the circuit
         model: margin with it minus margin without it. The field model's strips are
@@ -140,7 +147,12 @@ class FieldCheck:
         text = uncertainty.sentence(self.judged_margin(), cell)
         shift = self.thickness_shift
         t = self.problem.strip_substrate.metal_thickness * 1e6
-        if self.carried is not None:
+        if self.solid:
+            text += (
+                f" (the field model's strips are solid, {t:g} um thick as the problem's metal, "
+                "and perfectly conducting: the margin leaves out conductor loss)"
+            )
+        elif self.carried is not None:
             text += (
                 f" (carried to the problem's {t:g} um metal thickness, which the field model's "
                 "zero-thickness sheets lack: the correction each field solve implies for the "
@@ -186,6 +198,7 @@ def check_layout(
     meshes: list[geometry.Resolution] | None = None,
     continue_ringdown: bool = True,
     ring_delays: float | None = None,
+    metal: str | None = None,
 ) -> FieldCheck:
     """Field-solve a layout on its problem's substrate and compare with the circuit model;
     ``progress`` receives a line before each engine run and while it runs.
@@ -196,7 +209,10 @@ def check_layout(
     end (:mod:`refine.fullwave.ringdown`): the engine stops on its energy criterion while a
     narrowband filter's port signals still ring. ring_delays: the ringing simulated after the
     pulse, in the circuit model's largest passband group delays (default
-    :data:`CONTINUED_RING_DELAYS` continued, :data:`RING_DELAYS` not)."""
+    :data:`CONTINUED_RING_DELAYS` continued, :data:`RING_DELAYS` not). metal: the strips'
+    model on every mesh (refine.fullwave.geometry.METAL_MODELS; default: each mesh's own,
+    "sheet" for the presets); "thick" needs the problem's metal thickness, and then the field
+    solver's margin is judged as it is, like for like with the circuit model."""
     if ring_delays is not None:
         v.positive("ring_delays", ring_delays)
     if problem.medium != "microstrip":
@@ -223,8 +239,22 @@ def check_layout(
             else evaluate_layout(sheet, layout, f)
         )
     band = em_band(problem)
+    chosen = meshes if meshes is not None else resolutions(mesh, layout)
+    if metal is not None:
+        v.one_of("metal", metal, geometry.METAL_MODELS)
+        chosen = [replace(r, metal=metal) for r in chosen]
+    kinds = {r.metal for r in chosen}
+    if len(kinds) > 1:
+        raise FieldCheckError("the meshes of one field check must share one metal model")
+    if "thick" in kinds and sub.metal_thickness == 0:
+        raise FieldCheckError(
+            "metal 'thick': the problem gives no metal thickness ([substrate] metal_thickness "
+            "= 0); solid strips need one"
+        )
+    if "thick" in kinds:
+        s_sheet = None  # the circuit model with the metal is like for like with solid strips
     solves = []
-    for k, res in enumerate(meshes if meshes is not None else resolutions(mesh, layout)):
+    for k, res in enumerate(chosen):
         length = geometry.feed_length(sub, layout.feed_width, band[1], res)
         st = geometry.layout_structure(layout, sub, length)
         wd = Path(workdir) / f"mesh-{k}" if workdir is not None else None
@@ -259,7 +289,7 @@ def check_layout(
                 cells, [c.em.worst_return_loss for c in figs]
             ).value,
         }
-    carried = carried_figure(problem, layout, f, solves)
+    carried = None if "thick" in kinds else carried_figure(problem, layout, f, solves)
     return FieldCheck(
         problem,
         layout,
