@@ -302,7 +302,10 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--filter", help="solve this validation filter with solid strips")
     ap.add_argument("--mesh", type=int, default=1, help="its mesh (1: the coarsest; default 1)")
     ap.add_argument("--threads", type=int, default=0, help="engine threads (0: all cores)")
+    ap.add_argument("--only", help="run the lines of this substrate only (a name of SUBSTRATES)")
     args = ap.parse_args(argv)
+    if args.only is not None and args.only not in SUBSTRATES:
+        ap.error(f"--only {args.only!r}: not one of {', '.join(SUBSTRATES)}")
     if args.filter is not None:
         if args.filter not in em_filters.FILTERS:
             ap.error(f"--filter {args.filter!r}: not one of {', '.join(em_filters.FILTERS)}")
@@ -350,6 +353,8 @@ def main(argv: list[str] | None = None) -> int:
     if not args.table:
         for edge, _ in MESHES:
             for name in SUBSTRATES:
+                if args.only is not None and name != args.only:
+                    continue
                 for metal, probes in VARIANTS:
                     if _pick(runs, name, edge, metal, probes) is not None:
                         continue
