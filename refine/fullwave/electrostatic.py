@@ -509,6 +509,106 @@ def gap(
     return Gap(0.5 * (excess["odd"] - excess["even"]), excess["even"], c_line)
 
 
+@dataclass(frozen=True)
+class UnequalGap:
+    """Static π-network of a gap between strips of unequal width: series C_g and the shunt
+    capacitance on each side (F), and each line's capacitance per length (F/m)."""
+
+    c_series: float
+    c_shunt_1: float
+    c_shunt_2: float
+    c_line_1: float
+    c_line_2: float
+
+
+def _strip_pieces(
+    mesh: Mesh, start: float, where: Surroundings
+) -> tuple[Panels, Panels, Panels, NDArray, float]:
+    """One semi-infinite strip from ``start`` along +x: its near and far panels, the tail
+    beyond (carrying the uniform line's charge), that charge, and the line's capacitance."""
+    length = near_length(mesh.width, mesh.height)
+    far = far_length(mesh.width, mesh.height, where.stripline)
+    across = mesh.across()
+    near = Panels(start + mesh.along(length), across)
+    rest = Panels(start + mesh.beyond(length, far), across)
+    tail = Panels(start + np.array([far, 2 * far]), across)
+    sigma_line = line_charge(across, where.eps_r, where.height, where.stripline)
+    return near, rest, tail, sigma_line, 2 * float(sigma_line @ np.diff(across))
+
+
+def unequal_gap(
+    eps_r: float,
+    height: float,
+    width_1: float,
+    width_2: float,
+    gap: float,
+    density: float = 1.0,
+) -> UnequalGap:
+    """Series and shunt capacitances of a gap ``gap`` between a strip of width W1 (on x > 0)
+    and one of width W2 (on x < 0), both centred on one line, on a grounded slab (reference
+    planes at the strip ends). Without the gap's own mirror symmetry, both strips are solved
+    (the centreline's symmetry still halves each), once with strip 1 at 1 V and strip 2 at 0 V
+    and once the other way: the excess charges form the Maxwell capacitance matrix, and
+    C_g = −C_12, C_p,i = C_ii − C_g. Equal widths give :func:`gap`'s values (tested)."""
+    where = _surroundings(eps_r, height, width_1, False)
+    v.positive("width", width_2)
+    v.real_in_range("gap/height", gap / height, 0.005, 10.0)
+    # each strip's images: itself and its mirror across the centreline; strip 2 runs along -x
+    images = {
+        1: ((1.0, 0.0, 1.0, 1.0), (1.0, 0.0, -1.0, 1.0)),
+        2: ((-1.0, 0.0, 1.0, 1.0), (-1.0, 0.0, -1.0, 1.0)),
+    }
+    pieces = {
+        k: _strip_pieces(Mesh(w, where.unit, gap, density), 0.5 * gap, where)
+        for k, w in ((1, width_1), (2, width_2))
+    }
+    fields = {}
+    for k, (near, rest, _, _, _) in pieces.items():
+        xn, yn = near.centres()
+        xr, yr = rest.centres()
+        sx = 1.0 if k == 1 else -1.0
+        fields[k] = (sx * np.concatenate([xn, xr]), np.concatenate([yn, yr]))
+    field = (
+        np.concatenate([fields[1][0], fields[2][0]]),
+        np.concatenate([fields[1][1], fields[2][1]]),
+    )
+    blocks, tails = [], []
+    for k, (near, rest, tail, sigma_line, _) in pieces.items():
+        blocks.append(potential_matrix(field, near, images[k], where))
+        blocks.append(potential_matrix(field, rest, images[k], where, long_panels=True))
+        tails.append(potential_matrix(field, tail, images[k], where, long_panels=True) @ sigma_line)
+    p = np.hstack(blocks)
+    n1 = fields[1][0].size
+    on = {1: np.r_[np.ones(n1), np.zeros(field[0].size - n1)]}
+    on[2] = 1.0 - on[1]
+    area = {k: np.concatenate([_areas(pc[0]), _areas(pc[1])]) for k, pc in pieces.items()}
+    split = area[1].size
+    c_line = {k: pieces[k][4] for k in pieces}
+    far = {k: far_length(w, where.unit) for k, w in ((1, width_1), (2, width_2))}
+    maxwell = np.zeros((2, 2))
+    for j in (1, 2):  # strip j at 1 V, the other at 0 V
+        rhs = on[j] - tails[j - 1]
+        sigma = np.linalg.solve(p, rhs)
+        parts = {1: sigma[:split], 2: sigma[split:]}
+        for i in (1, 2):
+            q = 2 * float(parts[i] @ area[i])
+            maxwell[i - 1, j - 1] = q - (c_line[i] * far[i] if i == j else 0.0)
+    c_g = -0.5 * (maxwell[0, 1] + maxwell[1, 0])
+    return UnequalGap(c_g, maxwell[0, 0] - c_g, maxwell[1, 1] - c_g, c_line[1], c_line[2])
+
+
+def converged_unequal_gap(
+    eps_r: float, height: float, width_1: float, width_2: float, gap_: float
+) -> dict[str, Converged]:
+    """:func:`unequal_gap` extrapolated over three panel densities: keys ``c_series``,
+    ``c_shunt_1``, ``c_shunt_2``."""
+    solves = [unequal_gap(eps_r, height, width_1, width_2, gap_, d) for d in DENSITIES]
+    return {
+        k: _extrapolate([getattr(s, k) for s in solves])
+        for k in ("c_series", "c_shunt_1", "c_shunt_2")
+    }
+
+
 DENSITIES = (1.0, 1.5, 2.25)  # three panel densities, refined by a constant factor
 # Relative change of the excess capacitances when the near strip is made 4x longer (measured in
 # tests/test_electrostatic.py: at most 0.4 %); the floor of every value's uncertainty.

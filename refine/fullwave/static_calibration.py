@@ -20,6 +20,12 @@ file, solved at ε_r = 1 and stored divided by ε0·b (read: by ε0·ε_r·b), s
 every b; its grid is over W/b and s/b.
 
     python -m refine.fullwave.static_calibration --stripline --out refine/physics/calibrations/static-stripline.json
+
+Gaps between strips of unequal width (``--unequal``): the electrostatic solve of the unequal gap
+against the symmetric gaps the circuit model's rule takes, over the narrow strip's W/h, the
+width ratio and s/h, added to an existing microstrip calibration file:
+
+    python -m refine.fullwave.static_calibration --eps-r 9.8 --unequal --out refine/physics/calibrations/static-er9.8.json
 """
 
 from __future__ import annotations
@@ -168,6 +174,116 @@ def calibrate(
     return out
 
 
+#: The unequal-gap grid (our own): the narrow strip's W/h, the wide strip's width over it, and
+#: s/h. It covers the validation filters' unequal gaps (narrow W/h 0.58-1.1, ratios to 2.9, s/h
+#: 0.17-0.52) with room either side; at ratio 1 the correction is zero by definition.
+UNEQUAL_W_H = (0.3, 0.65, 1.5)
+UNEQUAL_RATIO = (1.5, 2.2, 3.2)
+UNEQUAL_S_H = (0.025, 0.065, 0.16, 0.4, 1.0)
+
+
+def solve_unequal_point(eps_r: float, w_h: float, ratio: float, s_h: float) -> dict[str, Any]:
+    """One unequal-gap point as a plain row: the electrostatic solve of the gap between a strip
+    of W/h ``w_h`` and one ``ratio`` times wider, against the symmetric gaps the circuit
+    model's rule takes (series at the geometric-mean width, each shunt at its own side's
+    width), each converged over three panel densities. Stored: the series capacitance's ratio
+    to the rule's and each shunt capacitance's difference from the rule's, over ε0·h."""
+    t0 = time.perf_counter()
+    w_n, w_w, s = w_h * HEIGHT, ratio * w_h * HEIGHT, s_h * HEIGHT
+    u = es.converged_unequal_gap(eps_r, HEIGHT, w_w, w_n, s)  # strip 1 is the wide one
+    mean = es.converged_gap(eps_r, HEIGHT, (w_n * w_w) ** 0.5, s)
+    wide = es.converged_gap(eps_r, HEIGHT, w_w, s)
+    narrow = es.converged_gap(eps_r, HEIGHT, w_n, s)
+    scale = EPS0 * HEIGHT
+
+    def diff(a: es.Converged, b: es.Converged) -> dict[str, float]:
+        return {
+            "value": (a.value - b.value) / scale,
+            "uncertainty": (a.uncertainty + b.uncertainty) / scale,
+        }
+
+    ratio_unc = u["c_series"].uncertainty / u["c_series"].value
+    ratio_unc += mean["c_series"].uncertainty / mean["c_series"].value
+    return {
+        "w_h": w_h,
+        "ratio": ratio,
+        "s_h": s_h,
+        "series_ratio": {
+            "value": u["c_series"].value / mean["c_series"].value,
+            "uncertainty": ratio_unc,
+        },
+        "shunt_wide_shift": diff(u["c_shunt_1"], wide["c_shunt"]),
+        "shunt_narrow_shift": diff(u["c_shunt_2"], narrow["c_shunt"]),
+        "seconds": time.perf_counter() - t0,
+    }
+
+
+def unequal_points() -> list[tuple[float, float, float]]:
+    return [(w, r, s) for w in UNEQUAL_W_H for r in UNEQUAL_RATIO for s in UNEQUAL_S_H]
+
+
+def calibrate_unequal(
+    eps_r: float,
+    out: str | Path,
+    workers: int | None = 2,
+    client: Any = None,
+    progress: Callable[[int, int, dict], None] | None = None,
+) -> Path:
+    """Run (or resume) the unequal-gap campaign for ``eps_r`` and add its table, as the key
+    ``unequal_gaps``, to the existing calibration file ``out`` of the same ε_r (written
+    atomically once every point is in; rows collect in ``<out>.unequal.runs.jsonl``)."""
+    v.real_in_range("eps_r", eps_r, 1.0, 100.0)
+    out = Path(out)
+    data = json.loads(out.read_text(encoding="utf-8"))
+    if data.get("medium", "microstrip") != "microstrip" or data["eps_r"] != eps_r:
+        raise ValueError(
+            f"{out}: a calibration of eps_r = {data['eps_r']:g} ({data.get('medium', 'microstrip')}), "
+            f"not of microstrip eps_r = {eps_r:g}"
+        )
+    store = out.with_name(out.name + ".unequal.runs.jsonl")
+    repair_store(store)
+    done: dict[tuple, dict] = {}
+    if store.exists():
+        for line in store.read_text(encoding="utf-8").splitlines():
+            row = json.loads(line)
+            if row.get("eps_r") == eps_r:
+                done[(row["w_h"], row["ratio"], row["s_h"])] = row
+    todo = [p for p in unequal_points() if p not in done]
+    total = len(unequal_points())
+    for row in unordered(solve_unequal_point, [(eps_r, *p) for p in todo], workers, client):
+        row["eps_r"] = eps_r
+        append_row(store, row)
+        done[(row["w_h"], row["ratio"], row["s_h"])] = row
+        if progress is not None:
+            progress(len(done), total, row)
+    rows = [done[p] for p in unequal_points()]
+    data["unequal_gaps"] = {
+        "w_narrow_h": list(UNEQUAL_W_H),
+        "ratio": list(UNEQUAL_RATIO),
+        "s_h": list(UNEQUAL_S_H),
+        "meaning": "series_ratio: the unequal gap's series capacitance over the symmetric gap's "
+        "at the geometric-mean width; shunt_wide_shift, shunt_narrow_shift: each side's shunt "
+        "capacitance minus the symmetric gap's at that side's width, over eps0 * h",
+        "provenance": {
+            "method": "electrostatic boundary-element solve of the unequal gap "
+            "(refine.fullwave.electrostatic.unequal_gap) and of the symmetric gaps, three panel "
+            "densities and Richardson extrapolation each",
+            "refine_version": VERSION,
+            "created": datetime.date.today().isoformat(),
+            "command": f"python -m refine.fullwave.static_calibration --eps-r {eps_r:g} "
+            f"--unequal --out {out.name}",
+            "cpu_seconds": round(sum(r["seconds"] for r in rows), 1),
+        },
+        "points": [
+            {k: r[k] for k in r if k not in ("eps_r", "seconds")}
+            | {"seconds": round(r["seconds"], 1)}
+            for r in rows
+        ],
+    }
+    write_text_atomic(out, json.dumps(data, indent=1) + "\n")
+    return out
+
+
 def _strip(row: dict) -> dict:
     keep = {k: row[k] for k in row if k not in ("kind", "eps_r", "seconds")}
     if row["kind"] == "end":
@@ -189,6 +305,11 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--out", required=True, help="the data file to write (JSON)")
     ap.add_argument("--workers", type=int, default=2, help="local processes (default 2)")
     ap.add_argument("--scheduler", help="a Dask scheduler address instead of local processes")
+    ap.add_argument(
+        "--unequal",
+        action="store_true",
+        help="add the unequal-width gap table to the existing calibration file --out",
+    )
     a = ap.parse_args(argv)
     try:
         if not a.stripline:
@@ -207,6 +328,25 @@ def main(argv: list[str] | None = None) -> int:
             flush=True,
         )
 
+    if a.unequal:
+        if a.stripline:
+            print("error: --unequal: microstrip only (with --eps-r)", file=sys.stderr)
+            return 2
+
+        def said(k: int, n: int, row: dict) -> None:
+            print(
+                f"[{k}/{n}] unequal gap W/h {row['w_h']:g} x{row['ratio']:g} s/h "
+                f"{row['s_h']:g}: {row['seconds']:.1f} s",
+                flush=True,
+            )
+
+        try:
+            path = calibrate_unequal(a.eps_r, a.out, a.workers, client, progress=said)
+        except (OSError, ValueError, KeyError) as e:
+            print(f"error: --out {a.out}: {e}", file=sys.stderr)
+            return 2
+        print(f"wrote {path}")
+        return 0
     eps_r = 1.0 if a.stripline else a.eps_r
     path = calibrate(eps_r, a.out, a.workers, client, progress=say, stripline=a.stripline)
     print(f"wrote {path}")

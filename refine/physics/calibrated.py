@@ -12,9 +12,19 @@ grid (ratios of 1.4–1.65 between neighbours), where this is accurate to a frac
 values' own uncertainty (checked against solves between the grid points in
 tests/test_calibrated.py).
 
-**Unequal widths.** The calibration is of symmetric gaps. Between strips W1 ≠ W2 the series
+**Unequal widths.** The main table is of symmetric gaps. Between strips W1 ≠ W2 the series
 capacitance is taken at the geometric-mean width and each shunt capacitance at its own side's
-width (the same treatment as Garg–Bahl's in :mod:`refine.physics.strip`).
+width (the same rule as Garg–Bahl's in :mod:`refine.physics.strip`). That rule misplaces the
+shunt capacitance: the wide strip's end overhangs the narrow one and carries more of it, the
+narrow strip's less (benchmarks/unequal_gaps.py: tens of micrometres of resonator length at the
+validation filters' gaps). A calibration with an ``unequal_gaps`` table (written by
+``static_calibration --unequal``) corrects the rule by the electrostatic solve of the unequal
+gap itself: the series capacitance times its ratio to the rule's, each shunt capacitance plus
+its difference from the rule's, interpolated over (log narrow W/h, log width ratio, log s/h)
+by the same C¹ Hermite scheme, zero at equal widths by construction (a node at ratio 1). The
+correction is continuous where the widths cross but its slope is not (the wide side's shift
+and the narrow side's differ by about 20 % near equal widths). Outside its grid the
+correction is held at the grid's edge, with a warning.
 
 **Outside the calibrated grid** the value at the nearest grid edge is carried on by the
 Kirschning–Jansen–Koster closed form's trend (its ratio between the requested and the clamped
@@ -60,6 +70,45 @@ FORMAT = "refine-static-calibration/1"
 
 
 @dataclass(frozen=True, eq=False)
+class UnequalTable:
+    """The unequal-gap correction on its grid: ``x`` log narrow W/h, ``r`` log width ratio
+    (its first node 0, equal widths), ``y`` log s/h; ``series`` log of the series capacitance's
+    ratio to the rule's, ``wide`` and ``narrow`` each side's shunt shift over ε0·h; each
+    (nx, nr, ny), zero at r = 0."""
+
+    x: NDArray
+    r: NDArray
+    y: NDArray
+    series: NDArray
+    wide: NDArray
+    narrow: NDArray
+
+
+def _unequal_table(data: dict) -> UnequalTable | None:
+    t = data.get("unequal_gaps")
+    if t is None:
+        return None
+    pts = {(p["w_h"], p["ratio"], p["s_h"]): p for p in t["points"]}
+    shape = (len(t["w_narrow_h"]), len(t["ratio"]) + 1, len(t["s_h"]))
+    out = {k: np.zeros(shape) for k in ("series", "wide", "narrow")}
+    for i, w in enumerate(t["w_narrow_h"]):
+        for j, r in enumerate(t["ratio"], start=1):
+            for k, sh in enumerate(t["s_h"]):
+                p = pts[(w, r, sh)]
+                out["series"][i, j, k] = np.log(p["series_ratio"]["value"])
+                out["wide"][i, j, k] = p["shunt_wide_shift"]["value"]
+                out["narrow"][i, j, k] = p["shunt_narrow_shift"]["value"]
+    return UnequalTable(
+        np.log(np.asarray(t["w_narrow_h"], float)),
+        np.log(np.concatenate([[1.0], np.asarray(t["ratio"], float)])),
+        np.log(np.asarray(t["s_h"], float)),
+        out["series"],
+        out["wide"],
+        out["narrow"],
+    )
+
+
+@dataclass(frozen=True, eq=False)
 class Calibration:
     """One calibration, in log coordinates: ``x`` = log W/h, ``y`` = log s/h; ``series`` and
     ``shunt`` (nx, ny) and ``end``, ``line`` (nx,) hold log of the values over ε0·h (ε0 for the
@@ -78,6 +127,8 @@ class Calibration:
     end_unc: NDArray
     provenance: dict
     stripline: bool = False
+    #: the unequal-width correction (:class:`UnequalTable`), when the file has one
+    unequal: UnequalTable | None = None
 
     @property
     def w_h_range(self) -> tuple[float, float]:
@@ -150,6 +201,7 @@ def load(ref: str) -> Calibration:
         end_unc,
         data["provenance"],
         data.get("medium", "microstrip") == "stripline",
+        _unequal_table(data),
     )
 
 
@@ -289,6 +341,10 @@ def gap(
         series = series * trend[0][: sv.size]
         shunt = shunt * trend[1][sv.size :]
     n = sv.size
+    if cal.unequal is not None:
+        k_series, d_in, d_out = _unequal_correction(cal, cal.unequal, wi / h, wo / h, sv / h)
+        series = series * k_series
+        shunt = shunt + np.concatenate([d_in, d_out]) * scale
     if eps_r is not None:
         ratio = float(np.asarray(eps_r)) / cal.eps_r
         a, b = _eps_exponents(cal)
@@ -296,6 +352,43 @@ def gap(
     return discontinuities.GapCapacitances(
         series.reshape(shape), shunt[:n].reshape(shape), shunt[n:].reshape(shape)
     )
+
+
+def _unequal_correction(
+    cal: Calibration, t: UnequalTable, u_in: NDArray, u_out: NDArray, s_h: NDArray
+) -> tuple[NDArray, NDArray, NDArray]:
+    """(series factor, shunt shift at the input side, at the output side; the shifts over
+    ε0·h) of gaps between strips u_in = W_in/h and u_out = W_out/h, s/h ``s_h`` (may be
+    complex): the unequal table interpolated, zero shifts and factor 1 at equal widths."""
+    narrow = np.minimum(u_in, u_out)
+    lr = np.log(np.maximum(u_in, u_out) / narrow)
+    lx = np.log(narrow)
+    ly = np.log(s_h)
+    lx_c, lr_c, ly_c = _clamped(t.x, lx), _clamped(t.r, lr), _clamped(t.y, ly)
+    unequal = lr > 0
+    outside = unequal & (
+        (np.real(lx) != np.real(lx_c)) | (lr != lr_c) | (np.real(ly) != np.real(ly_c))
+    )
+    if np.any(outside):
+        validity.warn(
+            f"gap model {cal.label}: unequal widths (narrow W/h "
+            f"{float(np.exp(np.min(np.real(lx[outside])))):.3g}.."
+            f"{float(np.exp(np.max(np.real(lx[outside])))):.3g}, width ratio up to "
+            f"{float(np.exp(np.max(lr[outside]))):.3g}, s/h "
+            f"{float(np.exp(np.min(np.real(ly[outside])))):.3g}..) leave the unequal-gap grid "
+            f"(narrow W/h {np.exp(t.x[0]):g}..{np.exp(t.x[-1]):g}, ratio up to "
+            f"{np.exp(t.r[-1]):g}, s/h {np.exp(t.y[0]):g}..{np.exp(t.y[-1]):g}); its correction "
+            "is held at the grid's edge"
+        )
+    wx, wr, wy = _weights(t.x, lx_c), _weights(t.r, lr_c), _weights(t.y, ly_c)
+
+    def at(table: NDArray) -> NDArray:
+        return np.einsum("qi,qj,qk,ijk->q", wx, wr, wy, table)
+
+    factor = np.exp(at(t.series))
+    wide, thin = at(t.wide), at(t.narrow)
+    in_is_wide = u_in >= u_out
+    return factor, np.where(in_is_wide, wide, thin), np.where(in_is_wide, thin, wide)
 
 
 def _gap_batched_substrate(
