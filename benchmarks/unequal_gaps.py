@@ -14,17 +14,19 @@ sets the two side by side for every unequal gap of the filter-level validation s
 capacitance at an open end is line length ΔC / C', C' the line's capacitance per length).
 
 The second table asks what that explains: for every stored field solve of those filters, the
-implicit-space-mapping extraction (benchmarks/em_extract.py) is run on the circuit model as it
-is and on the circuit model with the electrostatic solve's unequal gaps put in place of the
-rule (as corrections on the rule: the series capacitance scaled, each shunt shifted, by what
-the electrostatic solve finds against its own symmetric gaps). If the rule is what the circuit
-model was missing, the length offsets the field solve needs shrink.
+implicit-space-mapping extraction (benchmarks/em_extract.py) is run on the circuit model with
+the rule alone, with the electrostatic solve of these very gaps put in place of the rule (as
+corrections on it: the series capacitance scaled, each shunt shifted, by what the solve finds
+against its own symmetric gaps), and as refine now has it (the calibration's unequal-gap
+table, refine.physics.calibrated). If the rule is what the circuit model was missing, the
+length offsets the field solve needs shrink.
 """
 
 from __future__ import annotations
 
 import argparse
 import contextlib
+import dataclasses
 import functools
 import math
 import sys
@@ -38,7 +40,7 @@ import numpy as np
 from refine.circuit import builder, model
 from refine.circuit.layout import Layout
 from refine.fullwave import electrostatic as es
-from refine.physics import discontinuities
+from refine.physics import discontinuities, strip
 from refine.physics.microstrip import Microstrip
 from refine.physics.substrate import Substrate
 from refine.spec.problem import load_problem
@@ -87,6 +89,22 @@ def line_capacitance(sub: Substrate, width: float, f0: float) -> float:
     """C' (F/m) of a strip: sqrt(ε_eff)/(c0 Z0) at f0, the zero-thickness line."""
     z0, ee = Microstrip(sub, loss=False).dispersive(width, np.array([f0]))
     return float(np.sqrt(ee[0]) / (299_792_458.0 * z0[0]))
+
+
+@contextlib.contextmanager
+def rule_only() -> Iterator[None]:
+    """The circuit model with its calibrations' unequal-gap tables set aside: the rule alone."""
+    original = strip.calibration_of
+
+    def without(name: str):
+        cal = original(name)
+        return None if cal is None else dataclasses.replace(cal, unequal=None)
+
+    try:
+        strip.calibration_of = without  # type: ignore[assignment]
+        yield
+    finally:
+        strip.calibration_of = original  # type: ignore[assignment]
 
 
 @contextlib.contextmanager
@@ -205,10 +223,13 @@ def extraction_table() -> str:
     for name, problem, layout, rec in _records():
         gaps = unequal_gaps(layout, layout.feed_width)
         for label, ctx in (
-            ("the rule", contextlib.nullcontext()),
-            ("solved unequal gaps", solved_unequal_gaps(problem, gaps)),
+            ("the rule", [rule_only()]),
+            ("the rule, these gaps solved", [rule_only(), solved_unequal_gaps(problem, gaps)]),
+            ("the calibration's unequal-gap table", []),
         ):
-            with ctx, warnings.catch_warnings():
+            with contextlib.ExitStack() as stack, warnings.catch_warnings():
+                for c in ctx:
+                    stack.enter_context(c)
                 warnings.simplefilter("ignore", ModelRangeWarning)
                 r = em_extract.extract_record(problem, layout, rec)
             c = r["correction"]

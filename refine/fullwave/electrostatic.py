@@ -424,11 +424,11 @@ class OpenEnd:
         return self.c_end / self.c_line
 
 
-def _excess(
-    mesh: Mesh, start: float, images: tuple[Image, ...], where: Surroundings
-) -> tuple[float, float]:
-    """(excess charge at 1 V of the near strip [start, start + L] over the uniform line, line
-    capacitance per length), the rest of the strip to infinity carrying the uniform charge."""
+def _strip_pieces(
+    mesh: Mesh, start: float, where: Surroundings
+) -> tuple[Panels, Panels, Panels, NDArray, float]:
+    """One semi-infinite strip from ``start`` along +x: its near and far panels, the tail
+    beyond (carrying the uniform line's charge), that charge, and the line's capacitance."""
     length = near_length(mesh.width, mesh.height)
     far = far_length(mesh.width, mesh.height, where.stripline)
     across = mesh.across()
@@ -436,7 +436,16 @@ def _excess(
     rest = Panels(start + mesh.beyond(length, far), across)
     tail = Panels(start + np.array([far, 2 * far]), across)
     sigma_line = line_charge(across, where.eps_r, where.height, where.stripline)
-    c_line = 2 * float(sigma_line @ np.diff(across))
+    return near, rest, tail, sigma_line, 2 * float(sigma_line @ np.diff(across))
+
+
+def _excess(
+    mesh: Mesh, start: float, images: tuple[Image, ...], where: Surroundings
+) -> tuple[float, float]:
+    """(excess charge at 1 V of the near strip [start, start + L] over the uniform line, line
+    capacitance per length), the rest of the strip to infinity carrying the uniform charge."""
+    near, rest, tail, sigma_line, c_line = _strip_pieces(mesh, start, where)
+    far = far_length(mesh.width, mesh.height, where.stripline)
     xn, yn = near.centres()
     xr, yr = rest.centres()
     field = (np.concatenate([xn, xr]), np.concatenate([yn, yr]))
@@ -519,21 +528,6 @@ class UnequalGap:
     c_shunt_2: float
     c_line_1: float
     c_line_2: float
-
-
-def _strip_pieces(
-    mesh: Mesh, start: float, where: Surroundings
-) -> tuple[Panels, Panels, Panels, NDArray, float]:
-    """One semi-infinite strip from ``start`` along +x: its near and far panels, the tail
-    beyond (carrying the uniform line's charge), that charge, and the line's capacitance."""
-    length = near_length(mesh.width, mesh.height)
-    far = far_length(mesh.width, mesh.height, where.stripline)
-    across = mesh.across()
-    near = Panels(start + mesh.along(length), across)
-    rest = Panels(start + mesh.beyond(length, far), across)
-    tail = Panels(start + np.array([far, 2 * far]), across)
-    sigma_line = line_charge(across, where.eps_r, where.height, where.stripline)
-    return near, rest, tail, sigma_line, 2 * float(sigma_line @ np.diff(across))
 
 
 def unequal_gap(
