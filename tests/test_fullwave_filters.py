@@ -160,17 +160,23 @@ def test_the_cost_table_builds_the_meshes_the_campaign_solved():
 
 def test_the_old_boxs_walls_were_part_of_the_8_percent_filters_loss():
     """The 8 % tapped filter in the old box (first-order walls at 6 h) lost more at midband
-    than the circuit model beyond the mesh uncertainty; solved again with matched layers, its
-    midband loss lies within the mesh uncertainty of the circuit model's (1.16 +- 0.22 dB
-    against 1.21 dB on two meshes), while the return loss still falls short beyond it."""
+    than the circuit model beyond the mesh uncertainty. Solved again with matched layers on the
+    same three meshes it loses 0.30-0.37 dB less at midband on every one of them (measured:
+    1.07/1.16/1.24 against 1.45/1.49/1.54 dB), and its finest mesh lies within its mesh
+    uncertainty of the circuit model's 1.21 dB (1.24 +- 0.70 dB: the loss still rises with each
+    refinement, so three meshes bound it only loosely), while the return loss still falls
+    short beyond it."""
     name = "ms-alumina-tap-10g-n3-8pct"
     old = (name, "first-order", False)
     new = (name, "pml", False)  # a tapped layout has no mirror line: whole box
-    assert len(_meshes(new)) >= 2
+    assert len(_meshes(new)) >= 3
     em, unc, model = _em_and_unc(old, "midband_loss_db")
     assert em - unc > model
+    for a, b in zip(_meshes(old), _meshes(new), strict=True):
+        drop = a["em"]["midband_loss_db"] - b["em"]["midband_loss_db"]
+        assert 0.25 < drop < 0.45, (a["mesh_index"], drop)
     em, unc, model = _em_and_unc(new, "midband_loss_db")
-    assert abs(em - model) <= unc < 0.5
+    assert abs(em - model) <= unc
     em, unc, model = _em_and_unc(new, "worst_return_loss_db")
     assert em + unc < model
 
