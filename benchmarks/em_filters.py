@@ -260,6 +260,20 @@ def sheet_figures(rec: dict) -> dict:
     return _sheet_cached(rec["filter"], json.dumps(rec["layout"], sort_keys=True))
 
 
+@functools.cache
+def _metal_cached(name: str, layout_json: str) -> dict:
+    problem = load_problem(ROOT / "problems" / f"{name}.toml")
+    lay = _layout_cached(name, layout_json)
+    f = verify.em_frequencies(problem)
+    return _figures(problem, f, circuit_response(problem, lay, f))
+
+
+def metal_figures(rec: dict) -> dict:
+    """Today's circuit model's figures for a record's layout with the problem's metal (the
+    record's own ``model`` figures are the circuit model's as it was when the solve ran)."""
+    return _metal_cached(rec["filter"], json.dumps(rec["layout"], sort_keys=True))
+
+
 def margin_at_thickness(rec: dict) -> float | None:
     """A record's field solve carried to the problem's metal thickness
     (refine.fullwave.correction.margin_at_thickness: the worst margin of the circuit model with
@@ -434,7 +448,7 @@ def summary(runs: list[dict], key: tuple[str, str]) -> dict | None:
     cells = [r["edge_cell_m"] for r in mine]
     out: dict = {
         "fbw": mine[0]["fbw"],
-        "model": mine[-1]["model"],
+        "model": metal_figures(mine[-1]),
         "sheet": sheet_figures(mine[-1]),
         "thickness_um": _thickness_um(mine[-1]["filter"]),
         "status": mine[0]["status"],

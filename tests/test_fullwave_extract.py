@@ -49,15 +49,18 @@ def test_the_readme_extraction_table_is_the_scripts(rows):
 def test_the_correction_explains_the_gap_coupled_filters_field_response(rows):
     (r,) = [r for r in rows if r["filter"] == XBAND and r["mesh_index"] == 0]
     fg = r["figures"]
-    # the uncorrected circuit model (with the field model's zero-thickness strips) misses the
-    # field solver's match by more than 8 dB ...
-    assert fg["circuit"]["worst_return_loss_db"] - fg["field"]["worst_return_loss_db"] > 8
+    # the uncorrected circuit model (with the field model's zero-thickness strips and the
+    # unequal-gap correction) misses the field solver's match by 1.2 dB (measured: 6.1 against
+    # 4.9 dB; with the symmetric-gap rule it missed by 8.7 dB) ...
+    assert 0 < fg["circuit"]["worst_return_loss_db"] - fg["field"]["worst_return_loss_db"] < 2
     # ... the corrected one comes within 1 dB of it, and its |S| within 0.05 RMS
     assert abs(fg["corrected"]["worst_return_loss_db"] - fg["field"]["worst_return_loss_db"]) < 1
     assert r["misfit"] < 0.05
-    # through mistuned end resonators (longer: they resonate low), the middle one nearly as drawn
+    # through resonators the field solve finds electrically longer (measured: ends +23 um,
+    # middle +32 um) and inner couplings 10 % weaker
     ends, middle = r["correction"].length_offsets[0], r["correction"].length_offsets[1]
-    assert 30e-6 < ends < 100e-6 and abs(middle) < 20e-6
+    assert 10e-6 < ends < 50e-6 and 10e-6 < middle < 50e-6
+    assert 0.85 < r["correction"].gap_factors[1] < 0.95
     # with that match, the circuit model's loss is the field solver's within 0.05 of the power
     assert abs(fg["corrected"]["lost_power"] - fg["field"]["lost_power"]) < 0.05
 

@@ -259,14 +259,18 @@ def test_the_readme_scoreboard_is_the_scripts():
     assert ef.scoreboard(DOC["runs"]) in block
 
 
-def test_the_stored_circuit_model_figures_are_todays_circuit_model():
-    """Each record stores the circuit model's figures of its day; the table compares the field
-    solver with them, so they must still be what refine's circuit model gives for the layout."""
+def test_the_table_compares_with_todays_circuit_model():
+    """Each record stores the circuit model's figures of its day (provenance); the table sets
+    the field solver beside today's circuit model (em_filters.metal_figures, sheet_figures).
+    Where the model has not changed for a layout the two agree; for the layouts with unequal
+    widths on eps_r 9.8 the unequal-gap correction moved them (the 10 % tapped filter's worst
+    in-band return loss with the metal 14.3 -> 8.8 dB, measured)."""
 
     from refine.fullwave import compare, verify
     from refine.spec.problem import load_problem
 
     ef = _em_filters()
+    moved = set()
     for name in FILTERS:
         problem = load_problem(ef.ROOT / "problems" / f"{name}.toml")
         from em_filters import layout_of
@@ -276,11 +280,12 @@ def test_the_stored_circuit_model_figures_are_todays_circuit_model():
         s = ef.circuit_response(problem, lay, f)
         b = compare.band_figures(f, s[:, 0, 0], s[:, 1, 0], problem.mask)
         for r in (r for r in DOC["runs"] if r["filter"] == name):
-            assert r["model"]["centre_hz"] == pytest.approx(b.centre, rel=1e-9), name
-            assert r["model"]["bandwidth_hz"] == pytest.approx(b.bandwidth, rel=1e-9), name
-            assert r["model"]["worst_return_loss_db"] == pytest.approx(
-                b.worst_return_loss, abs=1e-6
-            ), name
+            today = ef.metal_figures(r)
+            assert today["centre_hz"] == pytest.approx(b.centre, rel=1e-9), name
+            assert today["worst_return_loss_db"] == pytest.approx(b.worst_return_loss, abs=1e-6)
+            if abs(r["model"]["worst_return_loss_db"] - b.worst_return_loss) > 1e-6:
+                moved.add(name)
+    assert moved == {"ms-alumina-tap-10g-n3-10pct", "microstrip-x-band-alumina-n3"}
 
 
 def test_a_record_that_rings_less_than_the_default_stays_where_the_ringdown_study_held():

@@ -169,9 +169,11 @@ FILTER_DATA = ROOT / "tests" / "data" / "fullwave-thick-filters.json"
 def test_a_solid_strip_filter_solve_agrees_with_its_sheet_solve_carried_to_the_metal():
     """The 10 % tapped filter on mesh 1 with solid 10 um strips against the same mesh's sheet
     solve carried to the metal through the circuit model's correction (the field check's
-    default verdict): -6.59 against -5.94 dB (measured), both well short of the mask, while
-    the circuit model alone (lossless metal) says +0.07 dB. The solid strips move the centre up
-    0.76 % (the circuit model's metal: 0.45 %) and leave the return loss near the sheet's."""
+    default verdict): -6.59 against -5.94 dB (measured), both well short of the mask. The
+    circuit model alone (lossless metal) said +0.07 dB with the symmetric-gap rule; with the
+    unequal-gap correction it says -5.53 dB, within about 1 dB of both. The solid strips move
+    the centre up 0.76 % (the circuit model's metal: 0.45 %) and leave the return loss near the
+    sheet's."""
     m = _em_thick_metal()
     recs = json.loads(FILTER_DATA.read_text())["runs"]
     assert recs
@@ -182,4 +184,4 @@ def test_a_solid_strip_filter_solve_agrees_with_its_sheet_solve_carried_to_the_m
         assert carried is not None
         assert abs(solid - carried) < 1.0
         assert solid < -3.0 and carried < -3.0  # both: not met, by far
-        assert fig["model_lossless_metal_margin_db"] > solid + 3.0
+        assert abs(fig["model_lossless_metal_margin_db"] - solid) < 1.5

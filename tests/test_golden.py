@@ -8,6 +8,8 @@ deliberate model fixes (see that commit and CHANGELOG.md): Garg-Bahl's series ca
 positive where the fit fails for wide strips, Kirschning-Jansen-Koster's negative shunt
 capacitance held at 0, stripline wide-gap forms that keep their digits. Statuses did not change.
 Re-recorded again for the radiation of open microstrip (CHANGELOG.md).
+Re-recorded for the unequal-gap correction of the eps_r 9.8 calibration (tests/golden/record.py
+says which other paths moved with the platform's round-off).
 A deliberate change of behaviour re-records the file and says why in its commit.
 """
 

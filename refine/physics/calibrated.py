@@ -342,7 +342,7 @@ def gap(
         shunt = shunt * trend[1][sv.size :]
     n = sv.size
     if cal.unequal is not None:
-        k_series, d_in, d_out = _unequal_correction(cal, cal.unequal, wi / h, wo / h, sv / h)
+        k_series, d_in, d_out = unequal_correction(cal, cal.unequal, wi / h, wo / h, sv / h)
         series = series * k_series
         shunt = shunt + np.concatenate([d_in, d_out]) * scale
     if eps_r is not None:
@@ -354,7 +354,7 @@ def gap(
     )
 
 
-def _unequal_correction(
+def unequal_correction(
     cal: Calibration, t: UnequalTable, u_in: NDArray, u_out: NDArray, s_h: NDArray
 ) -> tuple[NDArray, NDArray, NDArray]:
     """(series factor, shunt shift at the input side, at the output side; the shifts over
