@@ -235,11 +235,15 @@ def record_layout(rec: dict) -> Layout | ParallelLayout:
 
 
 @functools.cache
-def _sheet_cached(name: str, layout_json: str) -> dict:
+def _model_figures(name: str, layout_json: str, sheets: bool) -> dict:
+    """Today's circuit model's figures for a layout, with zero-thickness strips (``sheets``)
+    or with the problem's metal."""
     problem = load_problem(ROOT / "problems" / f"{name}.toml")
     lay = _layout_cached(name, layout_json)
     f = verify.em_frequencies(problem)
-    return _figures(problem, f, circuit_response(correction.sheet_problem(problem), lay, f))
+    if sheets:
+        problem = correction.sheet_problem(problem)
+    return _figures(problem, f, circuit_response(problem, lay, f))
 
 
 def circuit_response(problem: Problem, lay: Layout | ParallelLayout, f: np.ndarray) -> np.ndarray:
@@ -257,21 +261,13 @@ def sheet_figures(rec: dict) -> dict:
     record's ``model`` figures have the problem's metal thickness, which the field model lacks
     and which by itself moves the circuit model's response (10 um took the tapped alumina
     filters' worst in-band return loss from about 10 to 15 dB)."""
-    return _sheet_cached(rec["filter"], json.dumps(rec["layout"], sort_keys=True))
-
-
-@functools.cache
-def _metal_cached(name: str, layout_json: str) -> dict:
-    problem = load_problem(ROOT / "problems" / f"{name}.toml")
-    lay = _layout_cached(name, layout_json)
-    f = verify.em_frequencies(problem)
-    return _figures(problem, f, circuit_response(problem, lay, f))
+    return _model_figures(rec["filter"], json.dumps(rec["layout"], sort_keys=True), True)
 
 
 def metal_figures(rec: dict) -> dict:
     """Today's circuit model's figures for a record's layout with the problem's metal (the
     record's own ``model`` figures are the circuit model's as it was when the solve ran)."""
-    return _metal_cached(rec["filter"], json.dumps(rec["layout"], sort_keys=True))
+    return _model_figures(rec["filter"], json.dumps(rec["layout"], sort_keys=True), False)
 
 
 def margin_at_thickness(rec: dict) -> float | None:
