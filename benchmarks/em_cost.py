@@ -40,7 +40,10 @@ from readme_block import replace_block
 
 ROOT = Path(__file__).resolve().parent.parent
 #: the gap-coupled filter of the field-check issue's cost target, then the validation set
-COST_FILTERS = ("microstrip-x-band-alumina-n3", *FILTERS)
+COST_FILTERS = (
+    "microstrip-x-band-alumina-n3",
+    *(f for f in FILTERS if f != "microstrip-x-band-alumina-n3"),
+)
 
 
 def ladder(

@@ -150,6 +150,7 @@ def test_the_cost_table_builds_the_meshes_the_campaign_solved():
 
     from refine.spec.problem import load_problem
 
+    assert len(set(em_cost.COST_FILTERS)) == len(em_cost.COST_FILTERS)  # one row per filter
     for name in FILTERS:
         problem = load_problem(em_cost.ROOT / "problems" / f"{name}.toml")
         lay = em_cost.layout_of(name, problem, DOC["runs"])
