@@ -86,10 +86,11 @@ def filter_meshes(problem: Problem, layout: Layout, box: str) -> list:
 
 def static_values(problem: Problem, g: GapGeometry) -> tuple[float, float]:
     """(Cg, Cp) the circuit model reads for a symmetric gap (the gap model the problem names:
-    by default the bundled calibration for its ε_r)."""
+    by default the bundled calibration for its ε_r) between zero-thickness strips, like the
+    field model's sheets."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ModelRangeWarning)
-        c = strip.gap_capacitances(
+        c = strip.sheet_gap_capacitances(
             strip_medium_for(problem), problem.gap_model, g.width, g.width, g.gap
         )
     return float(np.real(c.c_series)), float(np.real(c.c_shunt_in))

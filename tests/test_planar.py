@@ -96,8 +96,9 @@ def test_the_planar_tee_moves_the_8_percent_filter_where_the_field_solver_does_n
     """benchmarks/tee.py on the 8 % tapped alumina filter (the layout the field solver ran):
     the planar tee moves the circuit model's centre up by about 2 % and widens its 3 dB
     bandwidth by about 19 %, while the field solver's finest mesh (three meshes, old box) has the
-    centre -0.4 +- 1.2 % and the bandwidth within 2 % of the circuit model's; so the planar tee
-    is not taken into the circuit model (README)."""
+    centre -0.4 +- 1.2 % and the bandwidth within 3 % of the circuit model's (measured 2.7 %
+    since the gap faces' capacitance, 1.5 % before); so the planar tee is not taken into the
+    circuit model (README)."""
     import sys
 
     from conftest import DATA
@@ -120,5 +121,5 @@ def test_the_planar_tee_moves_the_8_percent_filter_where_the_field_solver_does_n
     assert t.centre / c.centre - 1 > 0.015 and t.bandwidth / c.bandwidth > 1.15
     field = em_filters.summary(runs, (name, em_filters.campaign_data.OLD_BOX))  # three meshes
     assert field is not None and field["meshes"] == 3
-    assert abs(field["bandwidth_hz"][0] / c.bandwidth - 1) < 0.02
+    assert abs(field["bandwidth_hz"][0] / c.bandwidth - 1) < 0.03
     assert abs(field["centre_hz"][0] / c.centre - 1) <= field["centre_hz"][1] / c.centre

@@ -88,21 +88,29 @@ def capacitance(
     thickness the grid is drawn for (default t), so that a sheet can be solved on a solid
     strip's grid."""
     x, z = _lines(width, height, t if grid_t is None else grid_t, cell, d_max)
-    nx, nz = x.size, z.size
-    dx, dz = np.diff(x), np.diff(z)
-    # cell permittivity (cells between lines): the slab below z = h
-    zc = 0.5 * (z[:-1] + z[1:])
-    eps_cell = np.where(zc < height, eps_r, 1.0)[None, :] * np.ones((nx - 1, 1))
-    idx = np.arange(nx * nz).reshape(nx, nz)
-    # fixed nodes: ground (z = 0), the far walls, the strip (1 V)
     half = 0.5 * width
     tol = 1e-9 * height
     in_strip = (x[:, None] <= half + tol) & (z[None, :] >= height - tol)
     in_strip &= z[None, :] <= height + t + tol
-    fixed = np.zeros((nx, nz), bool)
+    fixed = np.zeros((x.size, z.size), bool)
     fixed[:, 0] = fixed[-1, :] = fixed[:, -1] = True
     fixed |= in_strip
-    phi_fixed = np.where(in_strip, 1.0, 0.0)
+    return 2.0 * EPS0 * field_energy(x, z, eps_r, height, fixed, np.where(in_strip, 1.0, 0.0))
+
+
+def field_energy(
+    x: NDArray, z: NDArray, eps_r: float, height: float, fixed: NDArray, phi_fixed: NDArray
+) -> float:
+    """Σ ε_edge (Δφ)² a/ℓ over a tensor grid's edges (x, z lines; the slab ε_r below z =
+    height, air above): twice the field energy over ε0 of the potential that is ``phi_fixed``
+    on the ``fixed`` nodes (nx, nz) and solves Laplace's equation elsewhere. Nodes not fixed on
+    the grid's boundary see zero normal field (a symmetry plane)."""
+    nx, nz = x.size, z.size
+    dx, dz = np.diff(x), np.diff(z)
+    # cell permittivity (cells between lines): the slab below z = height
+    zc = 0.5 * (z[:-1] + z[1:])
+    eps_cell = np.where(zc < height, eps_r, 1.0)[None, :] * np.ones((nx - 1, 1))
+    idx = np.arange(nx * nz).reshape(nx, nz)
     # edge coefficients ε_edge · (dual length) / (edge length)
     # x-edges between (i, j) and (i+1, j): the cells above and below share the dual length
     eps_below = np.zeros((nx - 1, nz))
@@ -114,7 +122,7 @@ def capacitance(
     eps_below[:, 1:] = eps_cell
     eps_above[:, :-1] = eps_cell
     ax = (eps_below * h_below[None, :] + eps_above * h_above[None, :]) / dx[:, None]
-    # z-edges between (i, j) and (i, j+1): cells left and right (none left of x = 0: symmetry)
+    # z-edges between (i, j) and (i, j+1): cells left and right (none beyond x[0]: symmetry)
     w_left = np.zeros(nx)
     w_right = np.zeros(nx)
     w_left[1:] = 0.5 * dx
@@ -138,12 +146,11 @@ def capacitance(
         shape=(nx * nz, nx * nz),
     )
     free = ~fixed.ravel()
-    pf = phi_fixed.ravel()
+    pf = phi_fixed.ravel().astype(float)
     rhs = -k[free][:, ~free] @ pf[~free]
     phi = pf.copy()
     phi[free] = spla.spsolve(k[free][:, free].tocsc(), rhs)
-    energy2 = float(phi @ (k @ phi))  # Σ a (Δφ)², the half section
-    return 2.0 * EPS0 * energy2
+    return float(phi @ (k @ phi))
 
 
 def _grids(height: float, t: float) -> list[tuple[float, float]]:

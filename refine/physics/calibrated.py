@@ -246,7 +246,7 @@ def _slopes(nodes: bytes) -> NDArray:
     return slope
 
 
-def _weights(nodes: NDArray, q: NDArray) -> NDArray:
+def hermite_weights(nodes: NDArray, q: NDArray) -> NDArray:
     """(len(q), len(nodes)): the C¹ cubic Hermite interpolant with three-point slopes as weights
     on the node values; ``q`` may be complex (the cell is chosen by its real part) and must lie
     within the nodes."""
@@ -267,7 +267,7 @@ def _weights(nodes: NDArray, q: NDArray) -> NDArray:
     return out
 
 
-def _clamped(nodes: NDArray, q: NDArray) -> NDArray:
+def clamped(nodes: NDArray, q: NDArray) -> NDArray:
     return (
         np.clip(np.real(q), nodes[0], nodes[-1]) + 1j * np.imag(q)
         if np.iscomplexobj(q)
@@ -276,8 +276,8 @@ def _clamped(nodes: NDArray, q: NDArray) -> NDArray:
 
 
 def _bicubic(cal: Calibration, table: NDArray, lx: NDArray, ly: NDArray) -> NDArray:
-    wx = _weights(cal.x, lx)
-    wy = _weights(cal.y, ly)
+    wx = hermite_weights(cal.x, lx)
+    wy = hermite_weights(cal.y, ly)
     return np.einsum("qi,ij,qj->q", wx, table, wy)
 
 
@@ -320,8 +320,8 @@ def gap(
     ls = np.log(sv / h)
     lw = np.log(np.concatenate([w_mean, wi, wo]) / h)
     ls3 = np.concatenate([ls, ls, ls])
-    lw_c = _clamped(cal.x, lw)
-    ls_c = _clamped(cal.y, ls3)
+    lw_c = clamped(cal.x, lw)
+    ls_c = clamped(cal.y, ls3)
     scale = EPS0 * h
     series = np.exp(_bicubic(cal, cal.series, lw_c[: sv.size], ls_c[: sv.size])) * scale
     shunt = np.exp(_bicubic(cal, cal.shunt, lw_c[sv.size :], ls_c[sv.size :])) * scale
@@ -364,7 +364,7 @@ def unequal_correction(
     lr = np.log(np.maximum(u_in, u_out) / narrow)
     lx = np.log(narrow)
     ly = np.log(s_h)
-    lx_c, lr_c, ly_c = _clamped(t.x, lx), _clamped(t.r, lr), _clamped(t.y, ly)
+    lx_c, lr_c, ly_c = clamped(t.x, lx), clamped(t.r, lr), clamped(t.y, ly)
     unequal = lr > 0
     outside = unequal & (
         (np.real(lx) != np.real(lx_c)) | (lr != lr_c) | (np.real(ly) != np.real(ly_c))
@@ -380,7 +380,7 @@ def unequal_correction(
             f"{np.exp(t.r[-1]):g}, s/h {np.exp(t.y[0]):g}..{np.exp(t.y[-1]):g}); its correction "
             "is held at the grid's edge"
         )
-    wx, wr, wy = _weights(t.x, lx_c), _weights(t.r, lr_c), _weights(t.y, ly_c)
+    wx, wr, wy = hermite_weights(t.x, lx_c), hermite_weights(t.r, lr_c), hermite_weights(t.y, ly_c)
 
     def at(table: NDArray) -> NDArray:
         return np.einsum("qi,qj,qk,ijk->q", wx, wr, wy, table)
@@ -486,7 +486,7 @@ def open_end_extension(
         return open_end_extension(cal, w, h) * _kjk_eps_ratio(cal, w / h, e)
     lw = np.log(w.ravel() / h)
     lw_c = np.clip(lw, cal.x[0], cal.x[-1])
-    wx = _weights(cal.x, lw_c)
+    wx = hermite_weights(cal.x, lw_c)
     dl = np.exp(wx @ cal.end - wx @ cal.line) * h
     if np.any(lw != lw_c) and cal.stripline:
         validity.warn(

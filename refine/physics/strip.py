@@ -13,7 +13,8 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from refine import _validate as v
-from refine.physics import calibrated, discontinuities
+from refine.physics import calibrated, discontinuities, gap_thickness
+from refine.physics.constants import C0
 from refine.physics.microstrip import Microstrip, hammerstad_jensen
 from refine.physics.stripline import Stripline
 
@@ -76,7 +77,26 @@ def check_gap_model(medium: StripMedium, model: str) -> str:
 def gap_capacitances(
     medium: StripMedium, model: str, w_in: ArrayLike, w_out: ArrayLike, s: ArrayLike
 ) -> discontinuities.GapCapacitances:
-    """π-network capacitances of a gap of width ``s`` between strips ``w_in`` and ``w_out``.
+    """π-network capacitances of a gap of width ``s`` between strips ``w_in`` and ``w_out``:
+    the gap model's (zero-thickness strips), plus on microstrip what the substrate's metal
+    thickness adds (:mod:`refine.physics.gap_thickness`). ``s`` may be complex."""
+    sheets = sheet_gap_capacitances(medium, model, w_in, w_out, s)
+    sub = medium.substrate
+    if not isinstance(medium, Microstrip) or sub.metal_thickness <= 0:
+        return sheets
+    ds, di, do = gap_thickness.gap_increment(
+        w_in, w_out, s, sub.height, sub.metal_thickness, sub.eps_r
+    )
+    return discontinuities.GapCapacitances(
+        sheets.c_series + ds, sheets.c_shunt_in + di, sheets.c_shunt_out + do
+    )
+
+
+def sheet_gap_capacitances(
+    medium: StripMedium, model: str, w_in: ArrayLike, w_out: ArrayLike, s: ArrayLike
+) -> discontinuities.GapCapacitances:
+    """π-network capacitances of a gap of width ``s`` between strips ``w_in`` and ``w_out`` of
+    zero thickness, by the gap model ``model``.
 
     Garg–Bahl is a symmetric-gap model: for unequal widths its series capacitance is taken at
     the geometric-mean width and each shunt capacitance at its own side's width. For stripline
@@ -112,19 +132,28 @@ def open_end_extensions(
 ) -> NDArray[np.float64]:
     """Open-end length extension Δl (m) of strips of ``width`` (any array shape) on ``medium``:
     Kirschning–Jansen–Koster 1981 on microstrip (or the calibration that the gap model
-    ``model`` names), b ln 2/π on stripline."""
+    ``model`` names) plus what the metal's thickness adds (its end face's capacitance over the
+    line's capacitance per length, :mod:`refine.physics.gap_thickness`), b ln 2/π on
+    stripline."""
     sub = medium.substrate
     w = np.asarray(width, float)
+    if isinstance(medium, Stripline):
+        cal = calibration_of(model)
+        if cal is not None:
+            return calibrated.open_end_extension(cal, w, sub.height, sub.eps_r)
+        return np.broadcast_to(discontinuities.stripline_open_end(sub.height), w.shape)
+    t = sub.metal_thickness
+    u = w / sub.height
+    z0, ee, _ = hammerstad_jensen(u, sub.eps_r, t / sub.height)
     cal = calibration_of(model)
     if cal is not None:
-        return calibrated.open_end_extension(cal, w, sub.height, sub.eps_r)
-    if isinstance(medium, Stripline):
-        return np.broadcast_to(discontinuities.stripline_open_end(sub.height), w.shape)
-    u = w / sub.height
-    _, ee, _ = hammerstad_jensen(u, sub.eps_r, sub.metal_thickness / sub.height)
-    return np.asarray(
-        discontinuities.kirschning_jansen_koster_open_end(u, sub.eps_r, ee) * sub.height
-    )
+        dl = calibrated.open_end_extension(cal, w, sub.height, sub.eps_r)
+    else:
+        dl = discontinuities.kirschning_jansen_koster_open_end(u, sub.eps_r, ee) * sub.height
+    if t > 0:
+        c_line = np.sqrt(ee) / (C0 * z0)
+        dl = dl + gap_thickness.open_end_increment(w, sub.height, t, sub.eps_r) / c_line
+    return np.asarray(dl)
 
 
 def open_end_extension(medium: StripMedium, width: float, model: str = "") -> float:
