@@ -144,6 +144,20 @@ def layout_of(name: str, problem: Problem, runs: list[dict]) -> Layout | Paralle
     return lay
 
 
+def strip_layouts() -> list[tuple[str, Problem, Layout]]:
+    """(name, problem, layout) of every end-coupled strip filter of the validation set, as
+    :func:`layout_of` gives it (the parallel-coupled ones left out)."""
+    out = []
+    for name in FILTERS:
+        problem = load_problem(ROOT / "problems" / f"{name}.toml")
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ModelRangeWarning)
+            layout = layout_of(name, problem, load())
+        if isinstance(layout, Layout):
+            out.append((name, problem, layout))
+    return out
+
+
 def in_box(
     res: geometry.Resolution, earlier: list[dict], box: str
 ) -> tuple[geometry.Resolution, list[dict]]:

@@ -27,7 +27,6 @@ from refine.fullwave import thick_gap
 from refine.physics import calibrated, gap_thickness, strip
 from refine.physics.constants import C0, EPS0
 from refine.physics.microstrip import Microstrip
-from refine.spec.problem import load_problem
 from refine.validity import ModelRangeWarning
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
@@ -70,13 +69,7 @@ def filters_table() -> str:
         "metal | shunt C added, as length (in / out) | open end Δl added |",
         "|---|---|---|---|---|---|",
     ]
-    for name in em_filters.FILTERS:
-        problem = load_problem(ROOT / "problems" / f"{name}.toml")
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", ModelRangeWarning)
-            layout = em_filters.layout_of(name, problem, em_filters.load())
-        if not isinstance(layout, Layout):
-            continue
+    for name, problem, layout in em_filters.strip_layouts():
         sub = problem.strip_substrate
         t = sub.metal_thickness
         thick = Microstrip(sub, loss=False)

@@ -183,13 +183,7 @@ def gap_table() -> str:
         "|---|---|---|---|---|",
     ]
     seen = set()
-    for name in em_filters.FILTERS:
-        problem = load_problem(ROOT / "problems" / f"{name}.toml")
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", ModelRangeWarning)
-            layout = em_filters.layout_of(name, problem, em_filters.load())
-        if not isinstance(layout, Layout):
-            continue
+    for name, problem, layout in em_filters.strip_layouts():
         sub = problem.strip_substrate
         for a, b, s in unequal_gaps(layout, layout.feed_width):
             key = (name, round(min(a, b), 10), round(max(a, b), 10), round(s, 10))
