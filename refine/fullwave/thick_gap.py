@@ -132,10 +132,12 @@ class ThicknessIncrement:
     shunt_uncertainty: float
 
 
-def _check(eps_r: float, s_h: float, t_h: float) -> None:
+def _check(eps_r: float, s_h: float | None, t_h: float | None) -> None:
     v.real_in_range("eps_r", eps_r, 1.0, math.inf)
-    v.real_in_range("s/h", s_h, 0.005, 3.0)
-    v.real_in_range("t/h", t_h, 0.0, 0.1, lo_open=True)
+    if s_h is not None:
+        v.real_in_range("s/h", s_h, 0.005, 3.0)
+    if t_h is not None:
+        v.real_in_range("t/h", t_h, 0.0, 0.1, lo_open=True)
 
 
 def _increment(eps_r: float, half_gap_h: float, t_h: float) -> ThicknessIncrement:
@@ -164,7 +166,7 @@ def gap_increment(eps_r: float, s_h: float, t_h: float) -> ThicknessIncrement:
 def open_end_increment(eps_r: float, t_h: float) -> tuple[float, float]:
     """The thickness increment of an open end's excess capacitance per unit width over ε0, and
     its uncertainty."""
-    _check(eps_r, 1.0, t_h)
+    _check(eps_r, None, t_h)
     r = _increment(eps_r, OPEN_END_OFFSET, t_h)
     return r.shunt, r.shunt_uncertainty
 
@@ -276,7 +278,7 @@ def sheet_gap(eps_r: float, s_h: float) -> tuple[float, float]:
     """A gap between zero-thickness strips of unbounded width: its series and (each side's)
     shunt capacitance per unit width over ε0, extrapolated over three grids. The 2-D limit of
     the electrostatic calibrations' gaps, by which the section's premise is checked."""
-    _check(eps_r, s_h, 0.01)
+    _check(eps_r, s_h, None)
     half = 0.5 * s_h
     cell0 = _cell0(half, 1.0, 0.0)
     cells = [cell0 / k for k in (1, 2, 4)]

@@ -92,16 +92,23 @@ def _linear(nodes: NDArray, q: NDArray) -> tuple[NDArray, NDArray]:
     return k, (qc - nodes[k]) / (nodes[k + 1] - nodes[k])
 
 
-def _rows(grid: NDArray, le: NDArray, lt: NDArray) -> NDArray:
-    """(n, ns): the table's s/h rows, bilinear in (log ε_r, log t/h) for each element."""
+def _bilinear(grid: NDArray, le: NDArray, lt: NDArray) -> NDArray:
+    """(n, ...): ``grid`` (ne, nt, ...) bilinear in (log ε_r, log t/h) for each element, held at
+    the table's edges."""
     tab = table()
     ke, we = _linear(tab.e, le)
     kt, wt = _linear(tab.t, lt)
-    out = 0.0
+    tail = (1,) * (grid.ndim - 2)
+    out = np.zeros((le.size, *grid.shape[2:]))
     for de, fe in ((0, 1.0 - we), (1, we)):
         for dt, ft in ((0, 1.0 - wt), (1, wt)):
-            out = out + (fe * ft)[:, None] * grid[ke + de, kt + dt]
-    return np.asarray(out)
+            out += (fe * ft).reshape(-1, *tail) * grid[ke + de, kt + dt]
+    return out
+
+
+def _logs(h: NDArray, eps_r: NDArray, t: float) -> tuple[NDArray, NDArray]:
+    """(log ε_r, log t/h) per element."""
+    return np.log(eps_r.astype(float)), np.log(t) - np.log(h.astype(float))
 
 
 def _warn_outside(le: NDArray, lt: NDArray, ls: NDArray | None) -> None:
@@ -147,14 +154,12 @@ def gap_increment(
         z = np.zeros(shape)
         return z, z, z
     tab = table()
-    hv = hv.astype(float)
-    le = np.log(ev.astype(float))
-    lt = np.full(le.shape, np.log(t)) - np.log(hv)
-    ls = np.log(sv / hv)
+    le, lt = _logs(hv, ev, t)
+    ls = np.log(sv / hv.astype(float))
     _warn_outside(le, lt, ls)
     w = hermite_weights(tab.s, clamped(tab.s, ls))
-    series_ratio = np.exp(np.einsum("qi,qi->q", w, _rows(tab.series, le, lt)))
-    shunt = np.einsum("qi,qi->q", w, _rows(tab.shunt, le, lt))
+    series_ratio = np.exp(np.einsum("qi,qi->q", w, _bilinear(tab.series, le, lt)))
+    shunt = np.einsum("qi,qi->q", w, _bilinear(tab.shunt, le, lt))
     c_s = series_ratio * t / sv
     d_series = EPS0 * facing_width(wi.astype(float), wo.astype(float)) * c_s
     return (
@@ -180,17 +185,6 @@ def open_end_increment(w: ArrayLike, h: ArrayLike, t: float, eps_r: ArrayLike) -
     shape, (wv, hv, ev) = _flat(w, h, eps_r)
     if t <= 0:
         return np.zeros(shape)
-    tab = table()
-    hv = hv.astype(float)
-    le = np.log(ev.astype(float))
-    lt = np.full(le.shape, np.log(t)) - np.log(hv)
+    le, lt = _logs(hv, ev, t)
     _warn_outside(le, lt, None)
-    ke, we = _linear(tab.e, le)
-    kt, wt = _linear(tab.t, lt)
-    c_e = (
-        (1 - we) * (1 - wt) * tab.end[ke, kt]
-        + (1 - we) * wt * tab.end[ke, kt + 1]
-        + we * (1 - wt) * tab.end[ke + 1, kt]
-        + we * wt * tab.end[ke + 1, kt + 1]
-    )
-    return (EPS0 * wv * c_e).reshape(shape)
+    return (EPS0 * wv * _bilinear(table().end, le, lt)).reshape(shape)
