@@ -31,7 +31,7 @@ ROOT = Path(__file__).resolve().parent.parent
 def rows() -> tuple[list[str], float]:
     out = [
         "| problem | status | nominal margin (dB) | worst corner, judged only (dB) | "
-        "worst corner, robust refinement (dB) | ± series / shunt / radiation | evaluations |",
+        "worst corner, robust refinement (dB) | ± series / shunt / radiation / line ε_eff / line Z0 | evaluations |",
         "|---|---|---|---|---|---|---|",
     ]
     t0 = time.perf_counter()
@@ -45,7 +45,10 @@ def rows() -> tuple[list[str], float]:
             r = refine_problem(p)
         u = r.uncertainty
         assert u is not None and r.corner_margin is not None and judged.corner_margin is not None
-        spread = f"{100 * u.series:.0f} / {100 * u.shunt:.0f} / {100 * u.radiation:.0f} %"
+        spread = (
+            f"{100 * u.series:.0f} / {100 * u.shunt:.0f} / {100 * u.radiation:.0f} / "
+            f"{100 * u.eps_eff:.2g} / {100 * u.z0:.2g} %"
+        )
         out.append(
             f"| {path.stem} | {r.status.value} | {r.worst_margin:+.2f} | "
             f"{judged.corner_margin:+.2f} | {r.corner_margin:+.2f} | {spread} | "
@@ -64,7 +67,8 @@ def main(argv: list[str] | None = None) -> int:
     nominal = sum(1 for r in table[2:] if "| met on the nominal model only |" in r)
     text = (
         f"`python benchmarks/robustness.py --readme` wrote this table ({seconds:.0f} s): "
-        f"{met} strip designs met across the model's uncertainty, {nominal} met on the "
+        f"{met} strip design{'' if met == 1 else 's'} met across the model's uncertainty, "
+        f"{nominal} met on the "
         "nominal model only.\n\n" + "\n".join(table)
     )
     if args.readme:

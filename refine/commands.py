@@ -696,8 +696,7 @@ def _cmd_yield(args: argparse.Namespace) -> int:
         u = res.model
         print(
             f"model error sampled too (one draw per {tolerance.CHUNK} boards, uniform within "
-            f"gap series ±{100 * u.series:.0f} %, shunt ±{100 * u.shunt:.0f} %, radiation "
-            f"±{100 * u.radiation:.0f} %; --without-model-error leaves it out)"
+            f"{u.words()}; --without-model-error leaves it out)"
         )
     out.mkdir(parents=True, exist_ok=True)
     smp = tolerance.sample(lay, tol, res.samples, res.seed, problem.substrate, res.model)

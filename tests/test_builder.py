@@ -170,3 +170,27 @@ def test_per_design_adjustments_need_a_batch_and_alike_offsets():
         per_design([Adjustments(loss_factor=2.0), None])
     with pytest.raises(ValueError, match="different lengths"):
         per_design([Adjustments(c_series_factors=(1.0,)), one])
+
+
+def test_line_factors_scale_the_phase_constant_by_the_root_and_the_impedance_as_given():
+    """An uncertainty corner's line factors: ε_eff × k_e puts β × sqrt(k_e) on every line (the
+    attenuation is the loss factor's), z_c × k_z; per-design factors give each design of a
+    batch its own lines, the same as that design built alone."""
+    from refine.circuit.builder import Adjustments, line_properties, per_design
+
+    med = Microstrip(Substrate(9.8, 0.635e-3, 4e-6, 1e-4, 4.1e7))
+    f = np.linspace(8e9, 12e9, 5)
+    g0, z0 = line_properties(med, 0.6e-3, f)
+    g1, z1 = line_properties(med, 0.6e-3, f, Adjustments(eps_eff_factor=1.01, z0_factor=0.98))
+    np.testing.assert_allclose(g1.imag, g0.imag * np.sqrt(1.01), rtol=1e-14)
+    np.testing.assert_allclose(g1.real, g0.real, rtol=1e-14)
+    np.testing.assert_allclose(z1, 0.98 * z0, rtol=1e-14)
+    corner = Adjustments(eps_eff_factor=1.005, z0_factor=1.0075)
+    both = per_design([None, corner])
+    args = (0.6e-3, [[0.6e-3] * 3] * 2, [[0.1e-3, 0.3e-3, 0.3e-3, 0.1e-3]] * 2, [[5e-3] * 3] * 2)
+    batch = cascade.s11_s21(build("gap", med, "garg-bahl", *args, None, f, both).elements, f, 50.0)
+    for k, adj in enumerate((None, corner)):
+        alone = build("gap", med, "garg-bahl", 0.6e-3, *(a[0] for a in args[1:]), None, f, adj)
+        t = cascade.s11_s21(alone.elements, f, 50.0)
+        np.testing.assert_allclose(batch.s21[k], t.s21, rtol=0, atol=1e-13)
+    assert np.abs(batch.s21[0] - batch.s21[1]).max() > 1e-3  # the corner does move the response

@@ -178,8 +178,8 @@ def test_design_prints_one_grouped_model_range_line(capsys, tmp_path):
     assert main(["design", str(garg_bahl)]) == NOMINAL_ONLY  # met, not at every model corner
     lines = [x for x in capsys.readouterr().out.splitlines() if "stated range" in x]
     assert len(lines) == 1
-    # every gap of the robust move (the inner ones wider than the strips, s/W > 1): one line
-    assert "Garg-Bahl gap s/W outside [0.1, 1] at gap 0, gap 1, gap 2, gap 3" in lines[0]
+    # every gap of the robust move outside the range, on one line
+    assert re.search(r"Garg-Bahl gap s/W outside \[0\.1, 1\] at gap \d(, gap \d)+$", lines[0])
 
 
 def test_diagnosis_quotes_only_widths_the_design_may_have():

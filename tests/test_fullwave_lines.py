@@ -35,6 +35,7 @@ from conftest import DATA, ROOT
 from skrf import Frequency
 from skrf.media import MLine
 
+from refine.circuit.response import MICROSTRIP_LINE
 from refine.physics.microstrip import Microstrip
 from refine.physics.substrate import Substrate
 
@@ -127,7 +128,9 @@ def test_default_set_up_two_port_eps_eff_is_within_half_a_percent_over_the_whole
     the walls)."""
     d = em_lines.deviations(RUNS, name, *DEFAULTS)
     assert d["meshes"] == list(em_lines.EDGE_CELLS)
-    assert np.all(np.abs(d["eps_eff_two_port"][-1]) < 0.005)
+    # the circuit model's stated ± on a microstrip line's ε_eff is this bound
+    assert MICROSTRIP_LINE[0] == 0.005
+    assert np.all(np.abs(d["eps_eff_two_port"][-1]) < MICROSTRIP_LINE[0])
     old = em_lines.deviations(RUNS, name, "thirds", "first-order")
     assert old["eps_eff_two_port"][-1][0] - d["eps_eff_two_port"][-1][0] > 0.008
 
@@ -172,7 +175,9 @@ def test_default_set_up_power_current_z0_meets_two_percent_below_the_top_of_the_
     voltage-current impedance on the same cross-section rises the same way."""
     d = em_lines.deviations(RUNS, name, *DEFAULTS)
     dp, unc = d["z0_power_current"], d["z0_power_current_unc"]
-    assert np.all(np.abs(dp[-1][:-1]) < 0.0075)
+    # the circuit model's stated ± on a microstrip line's Z0 is this bound
+    assert MICROSTRIP_LINE[1] == 0.0075
+    assert np.all(np.abs(dp[-1][:-1]) < MICROSTRIP_LINE[1])
     within = [
         u is not None and abs(x) + u <= em_lines.TOL_Z0 for x, u in zip(dp[-1], unc, strict=True)
     ]

@@ -320,7 +320,8 @@ def test_two_runs_into_one_folder_never_leave_a_mixed_set(tmp_path):
         ]
         errs = [p.communicate(timeout=300)[1] for p in procs]
         codes = [p.returncode for p in procs]
-        assert sorted(codes) == [0, 2], (codes, errs)
+        # one run wrote its set (met, or met on the nominal model only), the other was refused
+        assert codes.count(2) == 1 and set(codes) - {2} <= {0, NOMINAL_ONLY}, (codes, errs)
         loser = errs[codes.index(2)]
         assert "already holds" in loser or "another refine run is writing there" in loser
         summary = json.loads((out / "summary.json").read_text())

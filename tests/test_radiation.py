@@ -144,7 +144,7 @@ def test_model_uncertainty_corners_and_the_verdict_they_give():
 
     from conftest import refined
 
-    from refine.circuit.response import model_uncertainty, uncertainty_verdict
+    from refine.circuit.response import MICROSTRIP_LINE, model_uncertainty, uncertainty_verdict
 
     path = next(p for p in PROBLEMS if p.stem == "microstrip-x-band-alumina-n3")
     r = refined(path)
@@ -153,12 +153,14 @@ def test_model_uncertainty_corners_and_the_verdict_they_give():
     # the calibration's floor: its largest difference from the field solver's gap fixture
     assert unc.series == pytest.approx(0.05) and unc.shunt == pytest.approx(0.05)
     assert unc.radiation == pytest.approx(0.5) and "static-er9.8" in unc.source
-    assert len(unc.corners(len(r.layout.gaps))) == 8
+    # the lines' ε_eff and Z0: the field solver's converged line (tests/test_fullwave_lines.py)
+    assert (unc.eps_eff, unc.z0) == MICROSTRIP_LINE
+    assert len(unc.corners(len(r.layout.gaps))) == 32  # every sign of five terms
     worst, _ = uncertainty_verdict(p, r.layout)
     assert worst.worst_margin < r.worst_margin  # the corners can only be worse than nominal
     assert worst.worst_margin < 0.0  # this 3 % design is met on the nominal model only
     shielded = model_uncertainty(replace(p, enclosure="shielded"), r.layout)
-    assert shielded.radiation == 0.0 and len(shielded.corners(4)) == 4
+    assert shielded.radiation == 0.0 and len(shielded.corners(4)) == 16
     gb = model_uncertainty(replace(p, gap_model="garg-bahl"), r.layout)
     # Garg-Bahl's largest series error against the fixture (README gap-calibration table)
     assert 0.15 < gb.series < 0.25 and gb.source.startswith("garg-bahl")
@@ -187,7 +189,7 @@ def test_report_headline_says_met_on_the_nominal_model_only(tmp_path):
 
 
 @pytest.mark.parametrize("external", ["gap", "tap"])
-def test_gradients_with_shunt_and_radiation_factors(external):
+def test_gradients_with_shunt_radiation_and_line_factors(external):
     # the uncertainty corners' factors enter the refiner's exact gradient too
     from refine.circuit.builder import Adjustments
     from refine.circuit.model import StripFilterModel
@@ -195,7 +197,9 @@ def test_gradients_with_shunt_and_radiation_factors(external):
     med = Microstrip(Substrate(9.8, 0.635e-3, 4e-6, 1e-4, 4.1e7))
     f = np.linspace(9e9, 11e9, 21)
     n = 3
-    adj = Adjustments(c_shunt_factor=1.2, radiation_factor=1.5)
+    adj = Adjustments(
+        c_shunt_factor=1.2, radiation_factor=1.5, eps_eff_factor=1.005, z0_factor=0.9925
+    )
     m = StripFilterModel(med, "garg-bahl", 50.0, external, n, 0.6e-3, f, True, None, adj)
     ng = n + 1 if external == "gap" else n - 1
     p = [*np.linspace(60e-6, 200e-6, ng), 5.1e-3, 5.3e-3, 5.1e-3]

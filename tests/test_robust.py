@@ -7,6 +7,7 @@ uncertainty they are judged at is refine's own (refine.circuit.response.model_un
 
 from __future__ import annotations
 
+import itertools
 import warnings
 from dataclasses import replace
 
@@ -34,8 +35,9 @@ def test_met_means_met_at_every_corner_and_nominal_only_says_so():
     assert r.worst_margin >= 0.0 > r.corner_margin  # both numbers are carried
     again, _ = uncertainty_verdict(r.problem, r.layout)  # the carried corners are the layout's
     assert again.worst_margin == pytest.approx(r.corner_margin, abs=1e-9)
-    tap = refined(problem_path("ms-alumina-tap-10g-n3-8pct"))
-    assert tap.status is Status.MET and tap.corner_margin >= 0.0
+    # the one bundled strip design met at every corner (README robust-status block)
+    wide = refined(problem_path("ms-alumina-12g-n7-butter"))
+    assert wide.status is Status.MET and wide.corner_margin >= 0.0
 
 
 def test_robust_refinement_raises_the_worst_corner_and_keeps_the_nominal_mask():
@@ -76,15 +78,19 @@ def test_corner_models_are_the_stated_uncertainty():
     nominal, every, unc = corner_models(r.problem, r.layout, f, True)
     assert nominal.adjust is None
     adj = every.adjust
-    assert adj is not None and len(adj.c_shunt_factor) == 1 + 8  # nominal, every sign of three
-    columns = (adj.c_series_factors[:, 0], adj.c_shunt_factor, adj.radiation_factor)
+    assert adj is not None and len(adj.c_shunt_factor) == 1 + 32  # nominal, every sign of five
+    columns = (
+        adj.c_series_factors[:, 0],
+        adj.c_shunt_factor,
+        adj.radiation_factor,
+        adj.eps_eff_factor,
+        adj.z0_factor,
+    )
     factors = list(zip(*columns, strict=True))
-    assert factors[0] == (1.0, 1.0, 1.0)
+    assert factors[0] == (1.0,) * 5
     assert set(factors[1:]) == {
-        (1 + a * unc.series, 1 + b * unc.shunt, 1 + c * unc.radiation)
-        for a in (-1, 1)
-        for b in (-1, 1)
-        for c in (-1, 1)
+        tuple(1 + sign * u for sign, u in zip(signs, unc.spread, strict=True))
+        for signs in itertools.product((-1, 1), repeat=5)
     }
 
 
@@ -122,7 +128,7 @@ def test_uncertainty_key_is_checked(tmp_path, capsys):
 
 
 def test_design_exit_code_and_console_say_the_same_as_the_status(capsys):
-    assert main(["design", str(problem_path("ms-alumina-tap-10g-n3-8pct"))]) == 0
+    assert main(["design", str(problem_path("ms-alumina-12g-n7-butter"))]) == 0
     out = capsys.readouterr().out
     assert "status: MET —" in out
     assert "worst margin over the model-uncertainty corners +" in out

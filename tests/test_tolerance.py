@@ -308,7 +308,8 @@ def test_yield_samples_the_models_uncertainty_once_per_chunk_of_boards():
     c = tolerance.CHUNK
     for a in range(0, 450, c):  # constant within a chunk (a systematic error), new per chunk
         assert np.all(s.model[a : a + c] == s.model[a])
-    bounds = np.array([unc.series, unc.shunt, unc.radiation])
+    bounds = np.array(unc.spread)  # gap series, shunt, radiation, line ε_eff, line Z0
+    assert s.model.shape == (450, 5)
     assert np.all(np.abs(s.model - 1.0) <= bounds + 1e-15)
     assert len({tuple(row) for row in s.model}) == -(-450 // c)
     with warnings.catch_warnings():

@@ -81,11 +81,15 @@ class Adjustments:
     loss_factor : multiplies every line's attenuation constant.
     c_shunt_factor : multiplies every gap's shunt capacitances.
     radiation_factor : multiplies every radiation conductance (open microstrip).
+    eps_eff_factor : multiplies every line's effective permittivity (its phase constant by the
+        square root; the attenuation constant is left alone: ``loss_factor`` scales that).
+    z0_factor : multiplies every line's characteristic impedance.
 
-    For a batch of B designs the three factors of the model's uncertainty may differ per
-    design (:func:`per_design`): ``c_series_factors`` ``(B, n_gaps)``, ``c_shunt_factor`` and
-    ``radiation_factor`` ``(B,)``; the uncertainty corners of one design are then one batched
-    evaluation of B copies of it (:mod:`refine.optimise.robust`).
+    For a batch of B designs the five factors of the model's uncertainty may differ per
+    design (:func:`per_design`): ``c_series_factors`` ``(B, n_gaps)``, ``c_shunt_factor``,
+    ``radiation_factor``, ``eps_eff_factor`` and ``z0_factor`` ``(B,)``; the uncertainty
+    corners of one design are then one batched evaluation of B copies of it
+    (:mod:`refine.optimise.robust`).
     """
 
     c_series_factors: tuple[float, ...] | NDArray | None = None
@@ -95,12 +99,30 @@ class Adjustments:
     loss_factor: float = 1.0
     c_shunt_factor: float | NDArray = 1.0
     radiation_factor: float | NDArray = 1.0
+    eps_eff_factor: float | NDArray = 1.0
+    z0_factor: float | NDArray = 1.0
+
+    @property
+    def per_design(self) -> bool:
+        """Whether any factor differs per design of a batch (an array, not a number)."""
+        return bool(
+            np.ndim(self.c_shunt_factor)
+            or np.ndim(self.radiation_factor)
+            or np.ndim(self.eps_eff_factor)
+            or np.ndim(self.z0_factor)
+            or (self.c_series_factors is not None and np.ndim(self.c_series_factors) > 1)
+        )
+
+
+#: the factors of :class:`Adjustments` that may differ per design of a batch (besides the
+#: gaps' series factors)
+PER_DESIGN = ("c_shunt_factor", "radiation_factor", "eps_eff_factor", "z0_factor")
 
 
 def per_design(adjustments: Sequence[Adjustments | None]) -> Adjustments:
     """One :class:`Adjustments` for a batch whose design ``b`` carries ``adjustments[b]``'s
-    series, shunt and radiation factors (None: the nominal model). The others (offsets, loss)
-    must be alike: they are the same for every design of a batch."""
+    series, shunt, radiation and line factors (None: the nominal model). The others (offsets,
+    loss) must be alike: they are the same for every design of a batch."""
     adj = [a or Adjustments() for a in adjustments]
     if not adj:
         raise ValueError("per_design needs at least one design's adjustments")
@@ -124,8 +146,7 @@ def per_design(adjustments: Sequence[Adjustments | None]) -> Adjustments:
         length_offsets=first.length_offsets,
         tap_offsets=first.tap_offsets,
         loss_factor=first.loss_factor,
-        c_shunt_factor=np.array([float(a.c_shunt_factor) for a in adj]),
-        radiation_factor=np.array([float(a.radiation_factor) for a in adj]),
+        **{k: np.array([float(getattr(a, k)) for a in adj]) for k in PER_DESIGN},
     )
 
 
@@ -180,12 +201,24 @@ class Built:
 
 
 def line_properties(
-    medium: StripMedium, width: ArrayLike, f: NDArray, loss_factor: float = 1.0
+    medium: StripMedium, width: ArrayLike, f: NDArray, adjust: Adjustments | None = None
 ) -> tuple[NDArray, NDArray]:
-    """γ(f), z_c(f) of a strip of ``width``, the attenuation scaled by ``loss_factor``."""
+    """γ(f), z_c(f) of a strip of ``width`` with ``adjust``'s line factors (the attenuation
+    scaled by its ``loss_factor``, ε_eff and z_c by its line factors: per-design factors
+    ``(B,)`` act on spectra ``(..., B, nf)``)."""
     gamma, z_c = medium.line_properties(width, f)
-    if loss_factor != 1.0:
-        gamma = loss_factor * gamma.real + 1j * gamma.imag
+    return scale_line(gamma, z_c, adjust)
+
+
+def scale_line(gamma: NDArray, z_c: NDArray, adjust: Adjustments | None) -> tuple[NDArray, NDArray]:
+    """(γ, z_c) with ``adjust``'s loss and line factors applied (see :class:`Adjustments`)."""
+    if adjust is None:
+        return gamma, z_c
+    kl, ke, kz = adjust.loss_factor, column(adjust.eps_eff_factor), column(adjust.z0_factor)
+    if kl != 1.0 or np.any(np.asarray(ke) != 1.0):
+        gamma = kl * gamma.real + 1j * gamma.imag * np.sqrt(ke)
+    if np.any(np.asarray(kz) != 1.0):
+        z_c = z_c * kz
     return gamma, z_c
 
 
@@ -208,7 +241,7 @@ def build(
     and the shapes). ``track`` (one design, or a 1-D batch) also returns the :class:`ElementMap`;
     ``validate`` False skips the argument checks for a caller that made them once;
     ``line_props`` are the resonators' (γ, z_c) when the caller computed them already (with the
-    attenuation scaled by ``adjust.loss_factor``)."""
+    loss and line factors of ``adjust`` applied: :func:`scale_line`)."""
     coupling = Coupling(coupling)
     f = v.frequencies("f", f) if validate else np.asarray(f, float)
     check_gap_model(medium, gap_model)
@@ -242,12 +275,7 @@ def build(
         floor = 0.1 * gaps_a
         s_model = np.maximum(shrunk, floor)
         ds_model = np.where(shrunk > floor, 1.0, 0.1)
-    kl = adj.loss_factor
-    if widths_a.ndim == 1 and (
-        np.ndim(adj.c_shunt_factor)
-        or np.ndim(adj.radiation_factor)
-        or (adj.c_series_factors is not None and np.ndim(adj.c_series_factors) > 1)
-    ):
+    if widths_a.ndim == 1 and adj.per_design:
         raise ValueError("per-design adjustments need a batch of designs: widths (B, n)")
     # one design: scalars (the numbers of the optimiser's inner loop); a batch: (..., 1) columns
     batched = widths_a.ndim > 1
@@ -264,7 +292,7 @@ def build(
     props = (
         list(line_props)
         if line_props is not None
-        else _line_properties_all(medium, widths_a, f, kl)
+        else _line_properties_all(medium, widths_a, f, adj)
     )
     radiates = isinstance(medium, Microstrip) and medium.radiates
     f_arr = np.asarray(f, float)
@@ -344,7 +372,7 @@ def build(
     def feed_props() -> tuple[NDArray, NDArray]:
         if not feed_cache:
             fw = feed_a[..., None] if batched else float(feed_a)
-            feed_cache.append(line_properties(medium, fw, f, kl))
+            feed_cache.append(line_properties(medium, fw, f, adj))
         return feed_cache[0]
 
     def add_line(j: int, length: Values, moves: list[tuple[Dim, int, Values]]) -> None:
@@ -462,7 +490,7 @@ def gap_elements(
     f: NDArray,
     line_in: tuple[NDArray, NDArray] | None = None,
     line_out: tuple[NDArray, NDArray] | None = None,
-    loss_factor: float = 1.0,
+    adjust: Adjustments | None = None,
     c_series_factor: float = 1.0,
 ) -> list[cascade.Element]:
     """Cascade elements of one series gap, reference planes at the two strip ends: its
@@ -475,26 +503,24 @@ def gap_elements(
     pi = cascade.PiNetwork(c_series, caps.c_shunt_in, caps.c_shunt_out)
     if gap_model not in CENTRE_REFERENCED:
         return [pi]
-    g_in, z_in = line_in if line_in is not None else line_properties(medium, w_in, f, loss_factor)
-    g_out, z_out = (
-        line_out if line_out is not None else line_properties(medium, w_out, f, loss_factor)
-    )
+    g_in, z_in = line_in if line_in is not None else line_properties(medium, w_in, f, adjust)
+    g_out, z_out = line_out if line_out is not None else line_properties(medium, w_out, f, adjust)
     half = 0.5 * np.asarray(s)
     return [cascade.Line(g_in, z_in, half), pi, cascade.Line(g_out, z_out, half)]
 
 
 def _line_properties_all(
-    medium: StripMedium, widths: NDArray, f: NDArray, loss_factor: float
+    medium: StripMedium, widths: NDArray, f: NDArray, adjust: Adjustments
 ) -> list[tuple[NDArray, NDArray]]:
     """Line properties of every resonator, ``(..., nf)`` each: for one design from one call of
     the medium's model (for one width when the resonators share it, the common case)."""
     n = widths.shape[-1]
     if widths.ndim > 1:  # a batch (whose substrate may be a batch too): one call per resonator
-        return [line_properties(medium, widths[..., j, None], f, loss_factor) for j in range(n)]
+        return [line_properties(medium, widths[..., j, None], f, adjust) for j in range(n)]
     if np.all(widths == widths[0]):
-        one = line_properties(medium, float(widths[0]), f, loss_factor)
+        one = line_properties(medium, float(widths[0]), f, adjust)
         return [one] * n
-    gamma, z_c = line_properties(medium, widths[:, None], f, loss_factor)
+    gamma, z_c = line_properties(medium, widths[:, None], f, adjust)
     return [(gamma[j], z_c[j]) for j in range(n)]
 
 

@@ -40,6 +40,7 @@ from refine.circuit.builder import (
     ideal_elements,
     line_properties,
     parallel_build,
+    scale_line,
     scale_modes,
 )
 from refine.circuit.layout import Layout, ParallelLayout
@@ -111,10 +112,10 @@ class StripFilterModel:
         """The resonators' (γ, z_c) when widths are not free: they depend on the widths and
         the frequencies only, so they are computed once per model, each distinct width once."""
         if self._fixed_props is None:
-            kl = 1.0 if self.adjust is None else self.adjust.loss_factor
             u, back = np.unique(np.asarray(self.fixed_widths, float), return_inverse=True)
-            gam, zc = line_properties(self.medium, u[:, None], self.f, kl)
-            self._fixed_props = [(gam[j], zc[j]) for j in back]
+            gam, zc = self.medium.line_properties(u[:, None], self.f)
+            # the factors after the pick: per-design factors (B,) make each line (B, nf)
+            self._fixed_props = [scale_line(gam[j], zc[j], self.adjust) for j in back]
         return self._fixed_props
 
     def label(self, dim: tuple[Dim, int]) -> str:
@@ -245,19 +246,19 @@ class StripFilterModel:
         w = np.asarray(widths, float)  # (n,) or (B, n)
         h = _FD * w
         n = self.order
-        kl = 1.0 if self.adjust is None else self.adjust.loss_factor
+        adj = self.adjust
         if w.ndim == 1:  # one design: each distinct width once (resonators often share one)
             u, back = np.unique(w, return_inverse=True)
             hu = _FD * u
             gam, zc = line_properties(
-                self.medium, np.concatenate([u, u + hu, u - hu])[:, None], self.f, kl
+                self.medium, np.concatenate([u, u + hu, u - hu])[:, None], self.f, adj
             )
             m = u.size
             dgam = (gam[m : 2 * m] - gam[2 * m :]) / (2 * hu[:, None])
             dz = (zc[m : 2 * m] - zc[2 * m :]) / (2 * hu[:, None])
             return _WidthSteps(w, h, [(gam[j], zc[j]) for j in back], dgam[back], dz[back])
         all_w = np.moveaxis(np.concatenate([w, w + h, w - h], axis=-1), -1, 0)[..., None]
-        gam, zc = line_properties(self.medium, all_w, self.f, kl)  # (3n, B, nf)
+        gam, zc = line_properties(self.medium, all_w, self.f, adj)  # (3n, B, nf)
         hh = np.moveaxis(h, -1, 0)[..., None]
         return _WidthSteps(
             w,

@@ -6,6 +6,7 @@ Everything here goes through the one builder (:mod:`refine.circuit.builder`).
 
 from __future__ import annotations
 
+import itertools
 import math
 import warnings
 from collections.abc import Sequence
@@ -241,31 +242,79 @@ def lossless_verdict(problem: Problem, layout: Layout) -> MaskResult:
 
 RADIATION_SPREAD = 0.5  # ± on the radiation conductances: unvalidated against a converged solve
 
+#: ± on a microstrip line's ε_eff and Z0: the bounds within which the field solver's converged
+#: 50 ohm line agrees with the closed forms (Hammerstad-Jensen, Kirschning-Jansen ε_eff(f),
+#: Jansen-Kirschning power-current Z0(f)) on three substrates over each band, in the field
+#: check's defaults: the two-port ε_eff within 0.5 %, the power-current Z0 within 0.75 % below
+#: the top of each band (``tests/test_fullwave_lines.py`` pins both from its fixture). The
+#: closed forms' own published accuracy is of the same order (Kirschning & Jansen 1982 state
+#: 0.6 % for ε_eff(f); from memory).
+MICROSTRIP_LINE = (0.005, 0.0075)
+#: ± on a stripline's Z0 with a metal thickness: Wheeler's thickness ratio on Cohn's exact
+#: zero-thickness value, checked within 0.5 % (:mod:`refine.physics.stripline`); its ε_eff is
+#: ε_r exactly (a TEM line) and Cohn's Z0 is exact at zero thickness
+STRIPLINE_THICK_Z0 = 0.005
+
 
 @dataclass(frozen=True)
 class ModelUncertainty:
-    """Relative ± on the gap's series and shunt capacitance and on radiation, with where each
-    comes from."""
+    """Relative ± on the gap's series and shunt capacitance, on radiation and on the lines'
+    ε_eff and Z0, with where each comes from."""
 
     series: float
     shunt: float
     radiation: float
     source: str
+    eps_eff: float = 0.0
+    z0: float = 0.0
+
+    @property
+    def spread(self) -> tuple[float, float, float, float, float]:
+        """The five ± in the order of :meth:`corners`: series, shunt, radiation, ε_eff, Z0."""
+        return (self.series, self.shunt, self.radiation, self.eps_eff, self.z0)
+
+    @property
+    def any(self) -> bool:
+        """Whether any ± is stated (else every corner is the nominal model)."""
+        return any(self.spread)
 
     def corners(self, n_gaps: int) -> list[Adjustments]:
-        """Every combination of the three at its ± (eight corners; four without radiation)."""
+        """Every sign combination of the ± that are not zero (32 corners on open microstrip,
+        fewer where a term is zero: 4 on a zero-thickness stripline)."""
         out = []
-        for a in (-1.0, 1.0):
-            for b in (-1.0, 1.0):
-                for c in (-1.0, 1.0) if self.radiation else (0.0,):
-                    out.append(
-                        Adjustments(
-                            c_series_factors=(1.0 + a * self.series,) * n_gaps,
-                            c_shunt_factor=1.0 + b * self.shunt,
-                            radiation_factor=1.0 + c * self.radiation,
-                        )
-                    )
+        signs = [(-1.0, 1.0) if u else (0.0,) for u in self.spread]
+        for a, b, c, d, e in itertools.product(*signs):
+            out.append(
+                Adjustments(
+                    c_series_factors=(1.0 + a * self.series,) * n_gaps,
+                    c_shunt_factor=1.0 + b * self.shunt,
+                    radiation_factor=1.0 + c * self.radiation,
+                    eps_eff_factor=1.0 + d * self.eps_eff,
+                    z0_factor=1.0 + e * self.z0,
+                )
+            )
         return out
+
+    def words(self) -> str:
+        """The ± in words, for reports and consoles."""
+        parts = [f"gap series ±{100 * self.series:.0f} %", f"shunt ±{100 * self.shunt:.0f} %"]
+        if self.radiation:
+            parts.append(f"radiation ±{100 * self.radiation:.0f} %")
+        if self.eps_eff:
+            parts.append(f"line ε_eff ±{100 * self.eps_eff:.2g} %")
+        if self.z0:
+            parts.append(f"line Z0 ±{100 * self.z0:.2g} %")
+        return ", ".join(parts)
+
+
+def line_uncertainty(medium: StripMedium) -> tuple[float, float]:
+    """± on the lines' (ε_eff, Z0) for this medium (:data:`MICROSTRIP_LINE`,
+    :data:`STRIPLINE_THICK_Z0`)."""
+    if isinstance(medium, Microstrip):
+        return MICROSTRIP_LINE
+    if isinstance(medium, Stripline) and medium.substrate.metal_thickness > 0:
+        return (0.0, STRIPLINE_THICK_Z0)
+    return (0.0, 0.0)
 
 
 def model_uncertainty(problem: Problem, layout: Layout) -> ModelUncertainty:
@@ -275,9 +324,10 @@ def model_uncertainty(problem: Problem, layout: Layout) -> ModelUncertainty:
     fixture yet). A microstrip closed form: its largest series and RMS shunt error against that
     fixture. The stripline closed form: its largest series and shunt error against the bundled
     stripline calibration at the layout's own gaps (shunt capacitance taken to the strip ends).
-    Radiation: ±:data:`RADIATION_SPREAD` on open microstrip."""
+    Radiation: ±:data:`RADIATION_SPREAD` on open microstrip. The lines: :func:`line_uncertainty`."""
     medium = strip_medium_for(problem)
     rad = RADIATION_SPREAD if isinstance(medium, Microstrip) and medium.radiates else 0.0
+    line = line_uncertainty(medium)
     model = problem.gap_model
     h = medium.substrate.height
     widths = (
@@ -298,21 +348,22 @@ def model_uncertainty(problem: Problem, layout: Layout) -> ModelUncertainty:
             max(2 * up, FIXTURE_AGREEMENT),
             rad,
             f"calibration {cal.name}",
+            *line,
         )
     if model in GAP_MODELS["microstrip"]:
         rows = comparison(load_fixture())
         series = max(abs(r["models"][model][0]) for r in rows)
         shunt = math.sqrt(sum(r["models"][model][1] ** 2 for r in rows) / len(rows))
         return ModelUncertainty(
-            series, shunt, rad, f"{model} against the field solver's gap fixture"
+            series, shunt, rad, f"{model} against the field solver's gap fixture", *line
         )
     name = calibrated.for_eps_r(medium.substrate.eps_r, stripline=True)
     if isinstance(medium, Stripline) and name is not None and layout.gaps:
         series, shunt = stripline_closed_form_error(medium, name, means, list(layout.gaps))
         return ModelUncertainty(
-            series, shunt, rad, f"{model} against the stripline calibration {name}"
+            series, shunt, rad, f"{model} against the stripline calibration {name}", *line
         )
-    return ModelUncertainty(0.0, 0.0, rad, f"{model}: no uncertainty data")
+    return ModelUncertainty(0.0, 0.0, rad, f"{model}: no gap uncertainty data", *line)
 
 
 def stripline_closed_form_error(

@@ -1,8 +1,9 @@
 """Robust refinement: maximise the worst mask margin over the circuit model's uncertainty.
 
 The corners are those of :func:`refine.circuit.response.model_uncertainty`: the gaps' series and
-shunt capacitance at ± their stated uncertainty and radiation at ± its spread, every
-combination (eight corners on open microstrip, four shielded). Each corner is the circuit
+shunt capacitance at ± their stated uncertainty, radiation at ± its spread and the lines' ε_eff
+and Z0 at ± theirs, every combination (32 corners on open microstrip, 16 on a shielded one, 8
+on a stripline with metal, 4 on one without). Each corner is the circuit
 model with the builder's :class:`~refine.circuit.builder.Adjustments` (exact gradients); at each
 optimiser step every corner is evaluated in one batched call (B copies of the design, copy k at
 corner k: :func:`~refine.circuit.builder.per_design`) and the results are laid end to end on one
@@ -104,7 +105,7 @@ def robust_refine(
     nominal_model, every, unc = corner_models(problem, layout, f, free_widths)
     start_nominal = _nominal(problem, layout)
     start_corners, _ = uncertainty_verdict(problem, layout)
-    if not (unc.series or unc.shunt or unc.radiation) or start_corners.passed:
+    if not unc.any or start_corners.passed:
         # no stated uncertainty (every corner is the nominal model), or already robust
         return RobustResult(
             layout, start_nominal, start_corners, unc, start_corners.worst_margin, 0

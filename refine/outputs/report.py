@@ -205,10 +205,7 @@ def uncertainty_sentence(computed: Figures) -> str | None:
 
 def corner_sentence(corners: MaskResult, u: ModelUncertainty) -> str:
     """The worst corner margin and the ± it was judged at, in words."""
-    spread = f"gap series ±{100 * u.series:.0f} %, shunt ±{100 * u.shunt:.0f} %" + (
-        f", radiation ±{100 * u.radiation:.0f} %" if u.radiation else ""
-    )
-    return f"{corners.worst_margin:+.2f} dB ({spread}; from {u.source})"
+    return f"{corners.worst_margin:+.2f} dB ({u.words()}; from {u.source})"
 
 
 def through_loss_note(r: RefineResult, lossless: MaskResult | None) -> str | None:
@@ -318,6 +315,8 @@ def summary(
             "series": computed.uncertainty.series,
             "shunt": computed.uncertainty.shunt,
             "radiation": computed.uncertainty.radiation,
+            "line_eps_eff": computed.uncertainty.eps_eff,
+            "line_z0": computed.uncertainty.z0,
             "source": computed.uncertainty.source,
             "worst_margins_db": computed.corners.worst,
             "worst_margin_db": computed.corners.worst_margin,

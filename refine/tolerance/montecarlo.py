@@ -18,8 +18,8 @@ grid is ≥ 0, with a Wilson 95 % confidence interval (Wilson, J. Am. Stat. Asso
 1927).
 
 * Model error: the circuit model's own uncertainty (the ± of
-  :func:`refine.circuit.response.model_uncertainty` on the gaps' series and shunt capacitance and
-  on radiation) is systematic, the same for every board of a design, so it is drawn once per
+  :func:`refine.circuit.response.model_uncertainty` on the gaps' series and shunt capacitance,
+  on radiation and on the lines' ε_eff and Z0) is systematic, the same for every board of a design, so it is drawn once per
   chunk of :data:`CHUNK` boards, uniformly within its ±: the yield then averages over what the
   model does not know as well as over the etch (``model_error=False`` leaves it out).
 * Substrate: eps_r ~ N(eps_r, σ_εr) and height ~ N(h, σ_h) per board, from the problem's
@@ -101,8 +101,9 @@ class Samples:
     taps: NDArray | None
     eps_r: NDArray | None = None  # per-board substrate, or None for the nominal substrate
     height: NDArray | None = None
-    # (n, 3) factors on the gaps' series and shunt capacitance and on radiation, constant over
-    # each chunk of CHUNK samples; None for the nominal model
+    # (n, 5) factors on the gaps' series and shunt capacitance, on radiation and on the lines'
+    # eps_eff and Z0 (ModelUncertainty.spread's order), constant over each chunk of CHUNK
+    # samples; None for the nominal model
     model: NDArray | None = None
 
 
@@ -171,10 +172,10 @@ def sample(
             taps[:, 0] -= outer[:, 0]
             taps[:, -1] -= outer[:, 1]
     factors = None
-    if model is not None and (model.series or model.shunt or model.radiation):
+    if model is not None and model.any:
         chunks = -(-n // CHUNK)
-        spread = np.array([model.series, model.shunt, model.radiation])
-        draws = 1.0 + rng.uniform(-1.0, 1.0, (chunks, 3)) * spread
+        spread = np.array(model.spread)
+        draws = 1.0 + rng.uniform(-1.0, 1.0, (chunks, spread.size)) * spread
         factors = np.repeat(draws, CHUNK, axis=0)[:n]
     floor = 1e-9  # an etch error cannot make a dimension vanish or go negative
     clip = lambda x: np.maximum(x, floor)  # noqa: E731
@@ -249,9 +250,13 @@ def worst_margins(problem: Problem, samples: Samples, f: NDArray) -> NDArray:
 
 def _adjustments(factors: NDArray, n_gaps: int) -> Adjustments:
     """One chunk's model error as the builder's adjustments."""
-    series, shunt, radiation = (float(x) for x in factors)
+    series, shunt, radiation, eps_eff, z0 = (float(x) for x in factors)
     return Adjustments(
-        c_series_factors=(series,) * n_gaps, c_shunt_factor=shunt, radiation_factor=radiation
+        c_series_factors=(series,) * n_gaps,
+        c_shunt_factor=shunt,
+        radiation_factor=radiation,
+        eps_eff_factor=eps_eff,
+        z0_factor=z0,
     )
 
 

@@ -15,7 +15,9 @@ the optimiser paths of two problems the correction does not touch: the ceramic l
 thin stripline, which had stopped matching the record on this machine before the change; then
 the metal's thickness at gaps and open ends, with the unequal-gap tables of the eps_r 3.55, 4.4
 and 6.15 calibrations, which move every microstrip design on metal, and robust refinement's
-nominal margin held in hand, which lets it keep moves it used to throw away).
+nominal margin held in hand, which lets it keep moves it used to throw away; then the lines'
+eps_eff and Z0 as terms of the model's uncertainty, which leave one strip design met at every
+corner and move every robust path).
 """
 
 from __future__ import annotations
