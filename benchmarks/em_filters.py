@@ -496,7 +496,7 @@ def table(runs: list[dict]) -> str:
     circuit model with the field model's zero-thickness strips (like for like: centre, 3 dB
     bandwidth, return loss, loss) and, for return loss and loss, with the problem's metal."""
     rows = [
-        "| filter (status on the circuit model; box) | centre shift | in units of the FBW | 3 dB "
+        "| filter (status on the circuit model when solved; box) | centre shift | in units of the FBW | 3 dB "
         "bandwidth ratio | worst in-band RL, field (circuit with sheets; with the metal) | "
         "midband loss, field (circuit with sheets; with the metal) | meshes, engine time |",
         "|---|---|---|---|---|---|---|",
@@ -604,7 +604,7 @@ def scoreboard(runs: list[dict]) -> str:
         f"| filter (box) | meshes | centre, distance from the circuit model's (bar "
         f"{BAR_CENTRE_FBW:g} of the FBW) | 3 dB bandwidth, distance (bar {100 * BAR_BANDWIDTH:g} %) "
         "| worst mask margin, field solver (dB): with sheets; carried to the problem's metal | "
-        "status on the circuit model |",
+        "status on the circuit model when solved |",
         "|---|---|---|---|---|---|",
     ]
     latest: dict[str, dict[str, MeshVerdict | None]] = {}

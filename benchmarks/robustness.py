@@ -31,7 +31,7 @@ ROOT = Path(__file__).resolve().parent.parent
 def rows() -> tuple[list[str], float]:
     out = [
         "| problem | status | nominal margin (dB) | worst corner, judged only (dB) | "
-        "worst corner, robust refinement (dB) | ± series / shunt / radiation / line ε_eff / line Z0 | evaluations |",
+        "worst corner, robust refinement (dB) | ± series (worst gap) / shunt / radiation / line ε_eff / line Z0 | evaluations |",
         "|---|---|---|---|---|---|---|",
     ]
     t0 = time.perf_counter()

@@ -59,9 +59,10 @@ def test_problem_outcome(path):
         assert not r.fab_violations
         # the refiner always beats the closed form: on the nominal model, or, where robust
         # refinement traded nominal margin above the mask for margin at the model's corners
-        # (the N = 7 Butterworth seed meets the mask with room to spare), at every corner
+        # (the N = 7 Butterworth seed meets the mask with room to spare), at the worst corner:
+        # robust refinement keeps a move only when that improved (refine.optimise.robust)
         assert r.worst_margin > r.seed_worst_margin or (
-            r.robust_evaluations > 0 and r.status is Status.MET
+            r.robust_evaluations > 0 and r.worst_margin >= 0.0
         )
     else:
         assert r.status is Status.INFEASIBLE

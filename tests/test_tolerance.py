@@ -310,6 +310,9 @@ def test_yield_samples_the_models_uncertainty_once_per_chunk_of_boards():
         assert np.all(s.model[a : a + c] == s.model[a])
     bounds = np.array(unc.spread)  # gap series, shunt, radiation, line ε_eff, line Z0
     assert s.model.shape == (450, 5)
+    # each gap's series error is the worst gap's scaled by its own ± over the largest
+    assert s.series_weights is not None and unc.series_gaps is not None
+    assert s.series_weights == pytest.approx(np.array(unc.series_gaps) / unc.series, rel=1e-12)
     assert np.all(np.abs(s.model - 1.0) <= bounds + 1e-15)
     assert len({tuple(row) for row in s.model}) == -(-450 // c)
     with warnings.catch_warnings():

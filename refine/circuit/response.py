@@ -27,11 +27,11 @@ from refine.circuit.builder import (
     per_design,
 )
 from refine.circuit.layout import Layout, ParallelLayout
-from refine.physics import calibrated, discontinuities, radiation
-from refine.physics.constants import C0
+from refine.physics import calibrated, discontinuities, gap_thickness, radiation
+from refine.physics.constants import C0, EPS0
 from refine.physics.gap_fixture import comparison, load_fixture
 from refine.physics.microstrip import Microstrip
-from refine.physics.strip import GAP_MODELS, StripMedium, medium_kind
+from refine.physics.strip import GAP_MODELS, StripMedium, medium_kind, sheet_gap_capacitances
 from refine.physics.stripline import Stripline
 from refine.spec.coupling import Coupling
 from refine.spec.mask import MaskResult
@@ -267,6 +267,13 @@ class ModelUncertainty:
     source: str
     eps_eff: float = 0.0
     z0: float = 0.0
+    #: each gap's own ± on its series capacitance, where the gaps differ (``series`` is then
+    #: the largest); None: ``series`` for every gap
+    series_gaps: tuple[float, ...] | None = None
+
+    def series_of(self, n_gaps: int) -> tuple[float, ...]:
+        """Each gap's ± on its series capacitance."""
+        return self.series_gaps if self.series_gaps is not None else (self.series,) * n_gaps
 
     @property
     def spread(self) -> tuple[float, float, float, float, float]:
@@ -283,10 +290,11 @@ class ModelUncertainty:
         fewer where a term is zero: 4 on a zero-thickness stripline)."""
         out = []
         signs = [(-1.0, 1.0) if u else (0.0,) for u in self.spread]
+        per_gap = self.series_of(n_gaps)
         for a, b, c, d, e in itertools.product(*signs):
             out.append(
                 Adjustments(
-                    c_series_factors=(1.0 + a * self.series,) * n_gaps,
+                    c_series_factors=tuple(1.0 + a * u for u in per_gap),
                     c_shunt_factor=1.0 + b * self.shunt,
                     radiation_factor=1.0 + c * self.radiation,
                     eps_eff_factor=1.0 + d * self.eps_eff,
@@ -297,7 +305,10 @@ class ModelUncertainty:
 
     def words(self) -> str:
         """The ± in words, for reports and consoles."""
-        parts = [f"gap series ±{100 * self.series:.0f} %", f"shunt ±{100 * self.shunt:.0f} %"]
+        series = f"gap series ±{100 * self.series:.0f} %"
+        if self.series_gaps is not None and min(self.series_gaps) < self.series:
+            series = f"gap series ±{100 * min(self.series_gaps):.0f}–{100 * self.series:.0f} %"
+        parts = [series, f"shunt ±{100 * self.shunt:.0f} %"]
         if self.radiation:
             parts.append(f"radiation ±{100 * self.radiation:.0f} %")
         if self.eps_eff:
@@ -337,25 +348,32 @@ def model_uncertainty(problem: Problem, layout: Layout) -> ModelUncertainty:
     )
     # gap k lies between widths k and k + 1; its series capacitance is taken at their mean
     means = [math.sqrt(widths[k] * widths[k + 1]) for k in range(len(layout.gaps))]
+    extra_s, extra_p, extra_what = added_uncertainty(medium, model, widths, layout.gaps)
     if model.startswith(calibrated.PREFIX):
         cal = calibrated.load(model[len(calibrated.PREFIX) :])
         us, up = 0.0, 0.0
         for w, s in zip(means, layout.gaps, strict=True):
             a, b = calibrated.relative_uncertainty(cal, w, s, h)
             us, up = max(us, float(a)), max(up, float(b))
-        return ModelUncertainty(
+        return _with_gaps(
             max(2 * us, FIXTURE_AGREEMENT),
-            max(2 * up, FIXTURE_AGREEMENT),
+            max(2 * up, FIXTURE_AGREEMENT) + extra_p,
             rad,
-            f"calibration {cal.name}",
-            *line,
+            f"calibration {cal.name}{extra_what}",
+            line,
+            extra_s,
         )
     if model in GAP_MODELS["microstrip"]:
         rows = comparison(load_fixture())
         series = max(abs(r["models"][model][0]) for r in rows)
         shunt = math.sqrt(sum(r["models"][model][1] ** 2 for r in rows) / len(rows))
-        return ModelUncertainty(
-            series, shunt, rad, f"{model} against the field solver's gap fixture", *line
+        return _with_gaps(
+            series,
+            shunt + extra_p,
+            rad,
+            f"{model} against the field solver's gap fixture{extra_what}",
+            line,
+            extra_s,
         )
     name = calibrated.for_eps_r(medium.substrate.eps_r, stripline=True)
     if isinstance(medium, Stripline) and name is not None and layout.gaps:
@@ -364,6 +382,75 @@ def model_uncertainty(problem: Problem, layout: Layout) -> ModelUncertainty:
             series, shunt, rad, f"{model} against the stripline calibration {name}", *line
         )
     return ModelUncertainty(0.0, 0.0, rad, f"{model}: no gap uncertainty data", *line)
+
+
+def _with_gaps(
+    series: float,
+    shunt: float,
+    rad: float,
+    source: str,
+    line: tuple[float, float],
+    extra_series: NDArray,
+) -> ModelUncertainty:
+    """A :class:`ModelUncertainty` whose gaps carry ``series`` plus each its own extra."""
+    per_gap = tuple(float(series + x) for x in extra_series)
+    return ModelUncertainty(
+        max(per_gap, default=series),
+        shunt,
+        rad,
+        source,
+        *line,
+        series_gaps=per_gap if per_gap and max(per_gap) > min(per_gap) else None,
+    )
+
+
+def added_uncertainty(
+    medium: StripMedium, model: str, widths: Sequence[float], gaps: Sequence[float]
+) -> tuple[NDArray, float, str]:
+    """What the gap model's corrections add to its uncertainty: relative, on each gap's series
+    capacitance and on the shunt capacitance at the worst gap, and in words: twice the unequal-gap table's own uncertainty where the
+    strips' widths differ (a calibration's rule: twice its own), and on microstrip with metal
+    the thickness increment times its uncertainty
+    (:func:`refine.physics.gap_thickness.increment_uncertainty`). The shunt terms are taken
+    relative to the larger side's shunt capacitance. Gap ``k`` lies between ``widths[k]`` and
+    ``widths[k + 1]``."""
+    if not gaps:
+        return np.zeros(0), 0.0, ""
+    sub = medium.substrate
+    h = sub.height
+    w_in = np.asarray(widths[:-1], float)
+    w_out = np.asarray(widths[1:], float)
+    s = np.asarray(gaps, float)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        caps = sheet_gap_capacitances(medium, model, w_in, w_out, s)
+        c_s = np.real(np.asarray(caps.c_series))
+        # the larger side's shunt capacitance: the narrow side's can be near zero or negative
+        # (an excess over the line), where a relative figure means nothing
+        c_p = np.maximum(np.abs(np.real(caps.c_shunt_in)), np.abs(np.real(caps.c_shunt_out)))
+        series = np.zeros(s.shape)
+        shunt = np.zeros(s.shape)
+        words = []
+        cal = (
+            calibrated.load(model[len(calibrated.PREFIX) :])
+            if model.startswith(calibrated.PREFIX)
+            else None
+        )
+        if cal is not None and cal.unequal is not None and np.any(w_in != w_out):
+            a, b = calibrated.unequal_uncertainty(cal.unequal, w_in, w_out, s, h)
+            series = series + 2 * a
+            shunt = shunt + 2 * b * EPS0 * h / c_p
+            words.append("its unequal-gap table's")
+        t = sub.metal_thickness
+        if isinstance(medium, Microstrip) and t > 0:
+            ds, di, do = gap_thickness.gap_increment(w_in, w_out, s, h, t, sub.eps_r)
+            k = gap_thickness.increment_uncertainty(w_in, w_out, s, t)
+            series = series + k * ds / (c_s + ds)
+            shunt = shunt + k * np.maximum(di, do) / c_p
+            words.append("the metal thickness increment's")
+    if not words:
+        return np.zeros(s.shape), 0.0, ""
+    return series, float(np.max(shunt)), "; " + " and ".join(words) + " added"
 
 
 def stripline_closed_form_error(

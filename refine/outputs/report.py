@@ -313,6 +313,7 @@ def summary(
         if computed.uncertainty is None or computed.corners is None
         else {
             "series": computed.uncertainty.series,
+            "series_per_gap": computed.uncertainty.series_gaps,
             "shunt": computed.uncertainty.shunt,
             "radiation": computed.uncertainty.radiation,
             "line_eps_eff": computed.uncertainty.eps_eff,

@@ -74,7 +74,8 @@ class UnequalTable:
     """The unequal-gap correction on its grid: ``x`` log narrow W/h, ``r`` log width ratio
     (its first node 0, equal widths), ``y`` log s/h; ``series`` log of the series capacitance's
     ratio to the rule's, ``wide`` and ``narrow`` each side's shunt shift over ε0·h; each
-    (nx, nr, ny), zero at r = 0."""
+    (nx, nr, ny), zero at r = 0; ``series_unc`` the series ratio's relative uncertainty and
+    ``shunt_unc`` the larger side's shift uncertainty over ε0·h, zero at r = 0."""
 
     x: NDArray
     r: NDArray
@@ -82,6 +83,8 @@ class UnequalTable:
     series: NDArray
     wide: NDArray
     narrow: NDArray
+    series_unc: NDArray
+    shunt_unc: NDArray
 
 
 def _unequal_table(data: dict) -> UnequalTable | None:
@@ -90,14 +93,19 @@ def _unequal_table(data: dict) -> UnequalTable | None:
         return None
     pts = {(p["w_h"], p["ratio"], p["s_h"]): p for p in t["points"]}
     shape = (len(t["w_narrow_h"]), len(t["ratio"]) + 1, len(t["s_h"]))
-    out = {k: np.zeros(shape) for k in ("series", "wide", "narrow")}
+    out = {k: np.zeros(shape) for k in ("series", "wide", "narrow", "series_unc", "shunt_unc")}
     for i, w in enumerate(t["w_narrow_h"]):
         for j, r in enumerate(t["ratio"], start=1):
             for k, sh in enumerate(t["s_h"]):
                 p = pts[(w, r, sh)]
-                out["series"][i, j, k] = np.log(p["series_ratio"]["value"])
+                ratio = p["series_ratio"]
+                out["series"][i, j, k] = np.log(ratio["value"])
                 out["wide"][i, j, k] = p["shunt_wide_shift"]["value"]
                 out["narrow"][i, j, k] = p["shunt_narrow_shift"]["value"]
+                out["series_unc"][i, j, k] = ratio["uncertainty"] / ratio["value"]
+                out["shunt_unc"][i, j, k] = max(
+                    p["shunt_wide_shift"]["uncertainty"], p["shunt_narrow_shift"]["uncertainty"]
+                )
     return UnequalTable(
         np.log(np.asarray(t["w_narrow_h"], float)),
         np.log(np.concatenate([[1.0], np.asarray(t["ratio"], float)])),
@@ -105,6 +113,8 @@ def _unequal_table(data: dict) -> UnequalTable | None:
         out["series"],
         out["wide"],
         out["narrow"],
+        out["series_unc"],
+        out["shunt_unc"],
     )
 
 
@@ -389,6 +399,31 @@ def unequal_correction(
     wide, thin = at(t.wide), at(t.narrow)
     in_is_wide = u_in >= u_out
     return factor, np.where(in_is_wide, wide, thin), np.where(in_is_wide, thin, wide)
+
+
+def unequal_uncertainty(
+    t: UnequalTable, w_in: ArrayLike, w_out: ArrayLike, s: ArrayLike, h: float
+) -> tuple[NDArray, NDArray]:
+    """The unequal-gap correction's own uncertainty near each gap: (relative, on the series
+    capacitance; over ε0·h, on either side's shunt capacitance), the largest of the
+    surrounding grid points', taken linearly in log width ratio from zero at equal widths to
+    the first tabulated ratio (held at the grid's edge outside it)."""
+    wi, wo = np.asarray(w_in, float) / h, np.asarray(w_out, float) / h
+    narrow = np.minimum(wi, wo)
+    lr = np.clip(np.log(np.maximum(wi, wo) / narrow), t.r[0], t.r[-1])
+    lx = np.clip(np.log(narrow), t.x[0], t.x[-1])
+    ly = np.clip(np.log(np.asarray(s, float) / h), t.y[0], t.y[-1])
+    i = np.clip(np.searchsorted(t.x, lx, side="right") - 1, 0, t.x.size - 2)
+    j = np.clip(np.searchsorted(t.r, lr, side="right") - 1, 0, t.r.size - 2)
+    k = np.clip(np.searchsorted(t.y, ly, side="right") - 1, 0, t.y.size - 2)
+    # between equal widths (no correction, no uncertainty) and the first ratio: in proportion
+    ramp = np.where(j == 0, lr / t.r[1], 1.0)
+
+    def pick(u: NDArray) -> NDArray:  # the eight surrounding points (zero at equal widths)
+        near = [u[i + a, j + b, k + c] for a in (0, 1) for b in (0, 1) for c in (0, 1)]
+        return ramp * np.maximum.reduce(near)
+
+    return pick(t.series_unc), pick(t.shunt_unc)
 
 
 def _gap_batched_substrate(

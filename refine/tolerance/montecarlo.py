@@ -103,8 +103,10 @@ class Samples:
     height: NDArray | None = None
     # (n, 5) factors on the gaps' series and shunt capacitance, on radiation and on the lines'
     # eps_eff and Z0 (ModelUncertainty.spread's order), constant over each chunk of CHUNK
-    # samples; None for the nominal model
+    # samples; None for the nominal model. The series factor is the worst gap's: gap k's is
+    # 1 + (factor - 1) * series_weights[k] (its own ± over the largest)
     model: NDArray | None = None
+    series_weights: NDArray | None = None
 
 
 @dataclass(frozen=True)
@@ -171,12 +173,14 @@ def sample(
         if taps is not None:  # each tap is measured from its resonator's outer open end
             taps[:, 0] -= outer[:, 0]
             taps[:, -1] -= outer[:, 1]
-    factors = None
+    factors = weights = None
     if model is not None and model.any:
         chunks = -(-n // CHUNK)
         spread = np.array(model.spread)
         draws = 1.0 + rng.uniform(-1.0, 1.0, (chunks, spread.size)) * spread
         factors = np.repeat(draws, CHUNK, axis=0)[:n]
+        if model.series:
+            weights = np.array(model.series_of(len(layout.gaps))) / model.series
     floor = 1e-9  # an etch error cannot make a dimension vanish or go negative
     clip = lambda x: np.maximum(x, floor)  # noqa: E731
     return Samples(
@@ -188,6 +192,7 @@ def sample(
         eps_r,
         height,
         factors,
+        weights,
     )
 
 
@@ -240,7 +245,9 @@ def worst_margins(problem: Problem, samples: Samples, f: NDArray) -> NDArray:
                 samples.lengths[sl],
                 None if samples.taps is None else samples.taps[sl],
                 f,
-                None if samples.model is None else _adjustments(samples.model[a], ng),
+                None
+                if samples.model is None
+                else _adjustments(samples.model[a], ng, samples.series_weights),
             ).elements
             t = cascade.s11_s21(els, f, problem.z_ref)
             margins = problem.mask.margins(f, t.s11, t.s21)
@@ -248,11 +255,13 @@ def worst_margins(problem: Problem, samples: Samples, f: NDArray) -> NDArray:
     return out
 
 
-def _adjustments(factors: NDArray, n_gaps: int) -> Adjustments:
-    """One chunk's model error as the builder's adjustments."""
+def _adjustments(factors: NDArray, n_gaps: int, weights: NDArray | None = None) -> Adjustments:
+    """One chunk's model error as the builder's adjustments (``weights``: each gap's series ±
+    over the largest; None: all alike)."""
     series, shunt, radiation, eps_eff, z0 = (float(x) for x in factors)
+    w = np.ones(n_gaps) if weights is None else weights
     return Adjustments(
-        c_series_factors=(series,) * n_gaps,
+        c_series_factors=tuple(float(x) for x in 1.0 + (series - 1.0) * w),
         c_shunt_factor=shunt,
         radiation_factor=radiation,
         eps_eff_factor=eps_eff,
