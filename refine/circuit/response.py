@@ -305,10 +305,10 @@ class ModelUncertainty:
 
     def words(self) -> str:
         """The ± in words, for reports and consoles."""
-        series = f"gap series ±{100 * self.series:.0f} %"
+        series = f"gap series ±{100 * self.series:.2g} %"
         if self.series_gaps is not None and min(self.series_gaps) < self.series:
-            series = f"gap series ±{100 * min(self.series_gaps):.0f}–{100 * self.series:.0f} %"
-        parts = [series, f"shunt ±{100 * self.shunt:.0f} %"]
+            series = f"gap series ±{100 * min(self.series_gaps):.2g}–{100 * self.series:.2g} %"
+        parts = [series, f"shunt ±{100 * self.shunt:.2g} %"]
         if self.radiation:
             parts.append(f"radiation ±{100 * self.radiation:.0f} %")
         if self.eps_eff:
