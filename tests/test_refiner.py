@@ -12,7 +12,14 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from conftest import PROBLEMS, expected_outcome, expected_status, fd_gradient_check, refined
+from conftest import (
+    PROBLEMS,
+    expected_outcome,
+    expected_status,
+    fd_gradient_check,
+    problem_path,
+    refined,
+)
 
 from refine.circuit.model import IdealFilterModel, StripFilterModel
 from refine.circuit.response import verification_grid
@@ -295,3 +302,41 @@ def test_width_range_bounds_the_design_space():
     # Garg & Bahl, "Microstrip discontinuities", Int. J. Electronics 45(1), 1978: stated range
     # 0.5 <= W/h <= 2 (from memory; docs/references.md §6.1)
     assert p.width_range == (0.5, 2.0)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize(
+    "path",
+    [p for p in PROBLEMS if load_problem(p).gap_range is not None],
+    ids=lambda p: p.stem,
+)
+def test_refined_gaps_stay_inside_the_calibrations_range(path):
+    """The refiner keeps every gap inside the gap calibration's s/h range (or at the shop's
+    minimum, where that lies above it), unless the problem says ``[models] gaps =
+    "beyond-range"``."""
+    r = _result(path)
+    lo, hi = r.problem.gap_range
+    h = r.problem.strip_substrate.height
+    floor = max(lo * h, r.problem.fab.min_gap)
+    grid = r.problem.fab.grid or 0.0
+    assert all(floor * (1 - 1e-9) <= s <= hi * h + grid + 1e-12 for s in r.layout.gaps)
+
+
+def test_beyond_range_lets_the_gaps_leave_the_calibration(tmp_path):
+    """The N = 7 Butterworth case: inside the calibration's s/h range (up to 1.6) it is met at
+    every corner; told it may leave the range, the refiner widens its inner gaps beyond it
+    (measured: s/h up to 5.8), where the calibration carries on by a trend."""
+    src = problem_path("ms-alumina-12g-n7-butter").read_text()
+    beyond = tmp_path / "beyond.toml"
+    beyond.write_text(src + '\n[models]\ngaps = "beyond-range"\n')
+    inside = _result(problem_path("ms-alumina-12g-n7-butter"))
+    p = load_problem(beyond)
+    assert p.gap_range is None and inside.problem.gap_range == (pytest.approx(0.01), 1.6)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        out = refine_problem(p)
+    h = p.strip_substrate.height
+    assert max(inside.layout.gaps) <= 1.6 * h + 1e-12
+    assert max(out.layout.gaps) > 2.0 * h
+    # measured: beyond the range -1.11 dB at the worst corner, inside it +0.66 dB
+    assert inside.status is Status.MET and out.status is Status.MET_NOMINAL_ONLY

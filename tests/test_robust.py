@@ -125,6 +125,15 @@ def test_batched_corners_equal_the_corners_one_by_one():
     assert np.abs(batch.s21[0] - batch.s21[-1]).max() > 1e-3  # the corners do differ
 
 
+def test_gaps_key_is_checked(tmp_path, capsys):
+    src = problem_path("microstrip-x-band-alumina-n3").read_text()
+    bad = tmp_path / "bad.toml"
+    bad.write_text(src + '\n[models]\ngaps = "anywhere"\n')
+    assert main(["design", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert "models.gaps" in err and "'in-range', 'beyond-range'" in err and "anywhere" in err
+
+
 def test_uncertainty_key_is_checked(tmp_path, capsys):
     src = problem_path("microstrip-x-band-alumina-n3").read_text()
     bad = tmp_path / "bad.toml"

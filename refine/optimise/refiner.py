@@ -211,7 +211,12 @@ def refine_problem(
         f_opt = np.unique(np.append(f_opt, problem.mask.midband))
     model = factory(f_opt)
     space = layout_space(
-        fab, problem.strip_substrate.height, model, seed_layout, width_range=problem.width_range
+        fab,
+        problem.strip_substrate.height,
+        model,
+        seed_layout,
+        width_range=problem.width_range,
+        gap_range=problem.gap_range,
     )
     width_vars = [
         v for v, dim in zip(space.variables, model.dims, strict=True) if dim[0] is Dim.WIDTH

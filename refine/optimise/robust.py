@@ -111,7 +111,12 @@ def robust_refine(
             layout, start_nominal, start_corners, unc, start_corners.worst_margin, 0
         )
     space = layout_space(
-        fab, problem.strip_substrate.height, nominal_model, layout, width_range=problem.width_range
+        fab,
+        problem.strip_substrate.height,
+        nominal_model,
+        layout,
+        width_range=problem.width_range,
+        gap_range=problem.gap_range,
     )
     copies = 1 + len(unc.corners(len(layout.gaps)))  # the nominal design and each corner
     last: dict[tuple[bytes, bool], Response] = {}

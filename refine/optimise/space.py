@@ -173,21 +173,29 @@ def layout_space(
     seed: Layout,
     symmetric: bool = True,
     width_range: tuple[float, float] | None = None,
+    gap_range: tuple[float, float] | None = None,
 ) -> DesignSpace:
     """The refiner's variables for a strip layout: gaps from the shop's minimum to
-    max(4 s, 2 h, 2 s_min), lengths ±25/30 %, taps inside the end resonators, widths from
-    max(W_feed/2, W_min) to 3 W_feed, and inside ``width_range`` (W/h, the gap model's stated
-    range) when given, though never narrower than the feed allows; mirror-tied when
-    ``symmetric``."""
+    max(4 s, 2 h, 2 s_min), and inside ``gap_range`` (s/h, the gap model's calibrated range)
+    when given, though never below the shop's minimum; lengths ±25/30 %, taps inside the end
+    resonators, widths from max(W_feed/2, W_min) to 3 W_feed, and inside ``width_range`` (W/h,
+    the gap model's stated range) when given, though never narrower than the feed allows;
+    mirror-tied when ``symmetric``."""
     p0 = model.vector(seed)
     variables: list[Variable] = []
     gaps, lengths, taps, widths = model.split(p0)
     ng, n = len(gaps), len(lengths)
     for k, s in enumerate(gaps):
         s = max(s, fab.min_gap)
-        variables.append(
-            Variable(model.names[k], s, fab.min_gap, max(4.0 * s, 2.0 * height, 2.0 * fab.min_gap))
-        )
+        lo_s, hi_s = fab.min_gap, max(4.0 * s, 2.0 * height, 2.0 * fab.min_gap)
+        if gap_range is not None:  # inside the model's range, above the shop's minimum
+            lo_s = max(lo_s, gap_range[0] * height)
+            hi_s = max(min(hi_s, gap_range[1] * height), 1.01 * lo_s)
+            if fab.grid is not None:  # bounds on the grid, so that snapping stays inside them
+                g = fab.grid
+                lo_s = math.ceil(lo_s / g - 1e-9) * g
+                hi_s = max(math.floor(hi_s / g + 1e-9) * g, lo_s + g)
+        variables.append(Variable(model.names[k], min(max(s, lo_s), hi_s), lo_s, hi_s))
     for j, ln in enumerate(lengths):
         variables.append(Variable(model.names[ng + j], ln, 0.75 * ln, 1.3 * ln))
     k = ng + n

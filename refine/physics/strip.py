@@ -60,6 +60,13 @@ def gap_model_wh(model: str) -> tuple[float, float] | None:
     return GAP_MODEL_WH.get(model)
 
 
+def gap_model_sh(model: str) -> tuple[float, float] | None:
+    """The gap widths (s/h) a gap model was calibrated over (None: no range stated in s/h; the
+    closed forms state theirs in s/W and warn instead)."""
+    cal = calibration_of(model)
+    return None if cal is None else cal.s_h_range
+
+
 def check_gap_model(medium: StripMedium, model: str) -> str:
     """``model`` if it is a gap model of ``medium``'s kind; a ValueError naming both otherwise.
     A calibration must be for the medium's kind (and, on microstrip, of its ε_r)."""

@@ -45,6 +45,9 @@ Schema (keys marked * are required)::
                 uncertainty = "robust" (default: after meeting the mask, refine for the worst
                       corner of the model's stated uncertainty) | "judge" (judge the corners
                       only); either way "met" needs the mask met at every corner
+                gaps = "in-range" (default: the refiner keeps every gap inside the gap
+                      calibration's s/h range) | "beyond-range" (it may leave it; the model then
+                      carries on by a trend and warns)
     [mask]                                   *
     passband_return_loss_db, passband_ripple_db, midband_insertion_loss_db   (at least one)
     [[mask.stopband]]  start, stop, rejection_db
@@ -102,6 +105,7 @@ class Problem:
     enclosure: str = "open"  # microstrip: "open" (radiates) or "shielded"
     uncertainty: str = "robust"  # "robust": refine for the worst model corner; "judge": only judge
     topology: str = "end-coupled"  # or "parallel-coupled"
+    gaps: str = "in-range"  # the refiner keeps gaps in the calibration's s/h range; "beyond-range"
 
     @property
     def strip_substrate(self) -> Substrate:
@@ -129,6 +133,14 @@ class Problem:
         if self.resonator_width == "free-beyond-models":
             return None
         return strip.gap_model_wh(self.gap_model)
+
+    @property
+    def gap_range(self) -> tuple[float, float] | None:
+        """The s/h range refinable gaps stay in: the gap calibration's, or None with
+        ``[models] gaps = "beyond-range"`` (or a model that states no s/h range)."""
+        if self.gaps == "beyond-range":
+            return None
+        return strip.gap_model_sh(self.gap_model)
 
     @property
     def band_edges(self) -> tuple[float, float]:
@@ -328,6 +340,7 @@ class _Reader:
 CALIBRATED = "calibrated"  # [models] gap: the circuit reads a calibration data file
 ENCLOSURES = ("open", "shielded")
 UNCERTAINTY_USES = ("robust", "judge")  # [models] uncertainty
+GAP_RANGES = ("in-range", "beyond-range")  # [models] gaps
 TOPOLOGY_KINDS = ("end-coupled", "parallel-coupled")  # [coupling] topology
 
 
@@ -568,10 +581,11 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
     resonator_width = r.choice(res_t, "resonators", "width", RESONATOR_WIDTHS, default="free")
     if kind == "ideal" and "width" in res_t:
         raise r.fail("resonators.width", res_t["width"], "does not apply to medium kind 'ideal'")
-    models = r.table(data, "models", {"gap", "calibration", "uncertainty"}, required=False)
+    models = r.table(data, "models", {"gap", "calibration", "uncertainty", "gaps"}, required=False)
     uncertainty = r.choice(models, "models", "uncertainty", UNCERTAINTY_USES, default="robust")
+    gaps = r.choice(models, "models", "gaps", GAP_RANGES, default="in-range")
     if kind == "ideal":
-        for key in ("gap", "calibration", "uncertainty"):
+        for key in ("gap", "calibration", "uncertainty", "gaps"):
             if key in models:
                 raise r.fail(f"models.{key}", models[key], "does not apply to medium kind 'ideal'")
         gap_model = "ideal"
@@ -653,6 +667,7 @@ def parse_problem(data: dict[str, Any], source: str = "<memory>") -> Problem:
         enclosure,
         uncertainty,
         topology,
+        gaps,
     )
 
 

@@ -17,7 +17,9 @@ the metal's thickness at gaps and open ends, with the unequal-gap tables of the 
 and 6.15 calibrations, which move every microstrip design on metal, and robust refinement's
 nominal margin held in hand, which lets it keep moves it used to throw away; then the lines'
 eps_eff and Z0 as terms of the model's uncertainty, which leave one strip design met at every
-corner and move every robust path).
+corner and move every robust path; then each gap's own uncertainty from the unequal-gap table
+and the metal thickness, and the refiner's gaps held inside the calibration's s/h range, which
+brings the N = 7 Butterworth case back inside the model and met at every corner).
 """
 
 from __future__ import annotations
