@@ -125,26 +125,23 @@ def test_batched_corners_equal_the_corners_one_by_one():
     assert np.abs(batch.s21[0] - batch.s21[-1]).max() > 1e-3  # the corners do differ
 
 
-def test_gaps_key_is_checked(tmp_path, capsys):
+@pytest.mark.parametrize(
+    ("key", "value", "allowed"),
+    [
+        ("uncertainty", "hope", "'robust', 'judge'"),
+        ("gaps", "anywhere", "'in-range', 'beyond-range'"),
+    ],
+)
+def test_models_keys_are_checked(tmp_path, capsys, key, value, allowed):
     src = problem_path("microstrip-x-band-alumina-n3").read_text()
     bad = tmp_path / "bad.toml"
-    bad.write_text(src + '\n[models]\ngaps = "anywhere"\n')
+    bad.write_text(src + f'\n[models]\n{key} = "{value}"\n')
     assert main(["design", str(bad)]) == 2
     err = capsys.readouterr().err
-    assert "models.gaps" in err and "'in-range', 'beyond-range'" in err and "anywhere" in err
-
-
-def test_uncertainty_key_is_checked(tmp_path, capsys):
-    src = problem_path("microstrip-x-band-alumina-n3").read_text()
-    bad = tmp_path / "bad.toml"
-    bad.write_text(src + '\n[models]\nuncertainty = "hope"\n')
-    assert main(["design", str(bad)]) == 2
-    err = capsys.readouterr().err
-    assert "models.uncertainty" in err and "'robust', 'judge'" in err and "hope" in err
+    assert f"models.{key}" in err and allowed in err and value in err
     ideal = tmp_path / "ideal.toml"
-    ideal.write_text(
-        problem_path("ideal-s-band-n5").read_text() + '\n[models]\nuncertainty = "judge"\n'
-    )
+    ok = {"uncertainty": "judge", "gaps": "in-range"}[key]
+    ideal.write_text(problem_path("ideal-s-band-n5").read_text() + f'\n[models]\n{key} = "{ok}"\n')
     assert main(["design", str(ideal)]) == 2
     assert "does not apply to medium kind 'ideal'" in capsys.readouterr().err
 

@@ -34,9 +34,9 @@ from refine.optimise.space import (
     DesignSpace,
     Variable,
     fab_violations,
-    layout_space,
     mirror_ties,
     on_grid,
+    problem_space,
     snap,
 )
 from refine.physics.constants import C0
@@ -210,14 +210,7 @@ def refine_problem(
     if problem.mask.max_insertion_loss_db is not None:
         f_opt = np.unique(np.append(f_opt, problem.mask.midband))
     model = factory(f_opt)
-    space = layout_space(
-        fab,
-        problem.strip_substrate.height,
-        model,
-        seed_layout,
-        width_range=problem.width_range,
-        gap_range=problem.gap_range,
-    )
+    space = problem_space(problem, model, seed_layout)
     width_vars = [
         v for v, dim in zip(space.variables, model.dims, strict=True) if dim[0] is Dim.WIDTH
     ]

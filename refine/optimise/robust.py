@@ -44,7 +44,7 @@ from refine.circuit.response import (
     uncertainty_verdict,
 )
 from refine.optimise.minimax import Stopping, minimax, optimiser_grid
-from refine.optimise.space import fab_violations, layout_space, snap
+from refine.optimise.space import fab_violations, problem_space, snap
 from refine.optimise.stacked import StackedMask
 from refine.spec.mask import MaskResult
 from refine.spec.problem import Problem
@@ -110,14 +110,7 @@ def robust_refine(
         return RobustResult(
             layout, start_nominal, start_corners, unc, start_corners.worst_margin, 0
         )
-    space = layout_space(
-        fab,
-        problem.strip_substrate.height,
-        nominal_model,
-        layout,
-        width_range=problem.width_range,
-        gap_range=problem.gap_range,
-    )
+    space = problem_space(problem, nominal_model, layout)
     copies = 1 + len(unc.corners(len(layout.gaps)))  # the nominal design and each corner
     last: dict[tuple[bytes, bool], Response] = {}
 

@@ -24,6 +24,7 @@ from refine.circuit.builder import Dim
 from refine.circuit.layout import Layout
 from refine.circuit.model import StripFilterModel
 from refine.spec.fab import FabRules
+from refine.spec.problem import Problem
 
 
 @dataclass(frozen=True)
@@ -221,6 +222,19 @@ def layout_space(
         for j, w in enumerate(widths):
             variables.append(Variable(model.names[k + j], min(max(w, lo_w), hi_w), lo_w, hi_w))
     return DesignSpace(variables, layout_ties(model) if symmetric else ())
+
+
+def problem_space(problem: Problem, model: StripFilterModel, seed: Layout) -> DesignSpace:
+    """:func:`layout_space` with a problem's shop rules, substrate height and the gap model's
+    W/h and s/h ranges (as the problem allows them)."""
+    return layout_space(
+        problem.strip_fab,
+        problem.strip_substrate.height,
+        model,
+        seed,
+        width_range=problem.width_range,
+        gap_range=problem.gap_range,
+    )
 
 
 def step_space(
