@@ -7,7 +7,8 @@ For every bundled strip problem: the status refine gives it (met only when the m
 every corner of the model's uncertainty, see refine.circuit.response.model_uncertainty), the
 worst margin on the nominal model, the worst margin over the corners before robust refinement
 (the same problem with ``[models] uncertainty = "judge"``) and after it (the default), the ±
-judged, and the robust refinement's evaluations. Nothing is asserted here; the tests pin the
+judged, the worst corner with each group of terms alone (gaps, radiation, lines: which of them
+costs the margin), and the robust refinement's evaluations. Nothing is asserted here; the tests pin the
 statuses through the golden record.
 """
 
@@ -21,18 +22,34 @@ from pathlib import Path
 
 from readme_block import replace_block
 
-from refine.optimise.refiner import refine_problem
+from refine.circuit.response import ModelUncertainty, uncertainty_verdict
+from refine.optimise.refiner import Status, refine_problem
 from refine.spec.problem import load_problem
 from refine.validity import ModelRangeWarning
 
 ROOT = Path(__file__).resolve().parent.parent
 
 
+def by_term(problem, layout, u: ModelUncertainty) -> str:
+    """The worst corner margin with one group of terms at its ± and the others at zero: the
+    gaps' (series and shunt), radiation's, the lines' (ε_eff and Z0)."""
+    groups = (
+        replace(u, radiation=0.0, eps_eff=0.0, z0=0.0),
+        replace(u, series=0.0, shunt=0.0, series_gaps=None, eps_eff=0.0, z0=0.0),
+        replace(u, series=0.0, shunt=0.0, series_gaps=None, radiation=0.0),
+    )
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        worst = [uncertainty_verdict(problem, layout, g)[0].worst_margin for g in groups]
+    return " / ".join(f"{m:+.2f}" for m in worst)
+
+
 def rows() -> tuple[list[str], float]:
     out = [
         "| problem | status | nominal margin (dB) | worst corner, judged only (dB) | "
-        "worst corner, robust refinement (dB) | ± series (worst gap) / shunt / radiation / line ε_eff / line Z0 | evaluations |",
-        "|---|---|---|---|---|---|---|",
+        "worst corner, robust refinement (dB) | ± series (worst gap) / shunt / radiation / line ε_eff / line Z0 | "
+        "worst corner by term alone: gaps / radiation / lines (dB) | evaluations |",
+        "|---|---|---|---|---|---|---|---|",
     ]
     t0 = time.perf_counter()
     for path in sorted((ROOT / "problems").glob("*.toml")):
@@ -49,9 +66,10 @@ def rows() -> tuple[list[str], float]:
             f"{100 * u.series:.0f} / {100 * u.shunt:.0f} / {100 * u.radiation:.0f} / "
             f"{100 * u.eps_eff:.2g} / {100 * u.z0:.2g} %"
         )
+        alone = "–" if r.status is Status.INFEASIBLE else by_term(p, r.layout, u)
         out.append(
             f"| {path.stem} | {r.status.value} | {r.worst_margin:+.2f} | "
-            f"{judged.corner_margin:+.2f} | {r.corner_margin:+.2f} | {spread} | "
+            f"{judged.corner_margin:+.2f} | {r.corner_margin:+.2f} | {spread} | {alone} | "
             f"{r.robust_evaluations} |"
         )
         print(out[-1], flush=True)

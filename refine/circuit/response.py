@@ -479,10 +479,14 @@ def stripline_closed_form_error(
 FIXTURE_AGREEMENT = 0.05  # the calibrations' largest series difference from the gap fixture
 
 
-def uncertainty_verdict(problem: Problem, layout: Layout) -> tuple[MaskResult, ModelUncertainty]:
+def uncertainty_verdict(
+    problem: Problem, layout: Layout, unc: ModelUncertainty | None = None
+) -> tuple[MaskResult, ModelUncertainty]:
     """The layout's worst mask margin per region over the model-uncertainty corners (every
-    corner in one batched evaluation on the verification grid)."""
-    unc = model_uncertainty(problem, layout)
+    corner in one batched evaluation on the verification grid); ``unc``: other ± than the
+    model's stated ones (None: :func:`model_uncertainty`)."""
+    if unc is None:
+        unc = model_uncertainty(problem, layout)
     corners = unc.corners(len(layout.gaps))
     f = verification_grid(problem)
     with warnings.catch_warnings():
