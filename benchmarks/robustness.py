@@ -22,26 +22,12 @@ from pathlib import Path
 
 from readme_block import replace_block
 
-from refine.circuit.response import ModelUncertainty, uncertainty_verdict
+from refine.circuit.response import TERM_GROUPS, worst_by_term
 from refine.optimise.refiner import Status, refine_problem
 from refine.spec.problem import load_problem
 from refine.validity import ModelRangeWarning
 
 ROOT = Path(__file__).resolve().parent.parent
-
-
-def by_term(problem, layout, u: ModelUncertainty) -> str:
-    """The worst corner margin with one group of terms at its ± and the others at zero: the
-    gaps' (series and shunt), radiation's, the lines' (ε_eff and Z0)."""
-    groups = (
-        replace(u, radiation=0.0, eps_eff=0.0, z0=0.0),
-        replace(u, series=0.0, shunt=0.0, series_gaps=None, eps_eff=0.0, z0=0.0),
-        replace(u, series=0.0, shunt=0.0, series_gaps=None, radiation=0.0),
-    )
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ModelRangeWarning)
-        worst = [uncertainty_verdict(problem, layout, g)[0].worst_margin for g in groups]
-    return " / ".join(f"{m:+.2f}" for m in worst)
 
 
 def rows() -> tuple[list[str], float]:
@@ -66,7 +52,12 @@ def rows() -> tuple[list[str], float]:
             f"{100 * u.series:.0f} / {100 * u.shunt:.0f} / {100 * u.radiation:.0f} / "
             f"{100 * u.eps_eff:.2g} / {100 * u.z0:.2g} %"
         )
-        alone = "–" if r.status is Status.INFEASIBLE else by_term(p, r.layout, u)
+        alone = "–"
+        if r.status is not Status.INFEASIBLE:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", ModelRangeWarning)
+                terms = worst_by_term(p, r.layout, u)
+            alone = " / ".join(f"{terms[k]:+.2f}" if k in terms else "–" for k in TERM_GROUPS)
         out.append(
             f"| {path.stem} | {r.status.value} | {r.worst_margin:+.2f} | "
             f"{judged.corner_margin:+.2f} | {r.corner_margin:+.2f} | {spread} | {alone} | "

@@ -204,3 +204,38 @@ def test_the_gap_models_corrections_carry_their_own_uncertainty_gap_by_gap():
     flat = (0.6 * h,) * 3
     none, shunt, words = added_uncertainty(strip_medium_for(bare), p.gap_model, flat, gaps)
     assert not np.any(none) and shunt == 0.0 and words == ""
+
+
+def test_a_design_met_on_the_nominal_model_only_says_which_terms_cost_its_margin(tmp_path):
+    """Judged with one group of terms (gaps, radiation, lines) at its ± and the rest at zero,
+    each worst margin lies between the full corners' worst and the nominal margin; console,
+    report and summary.json carry them, and a design met at every corner does not need them."""
+    import json
+
+    from refine.circuit.response import worst_by_term
+
+    for stem in ("microstrip-x-band-alumina-n3", "ms-alumina-tap-10g-n3-8pct"):
+        r = refined(problem_path(stem))
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ModelRangeWarning)
+            terms = worst_by_term(r.problem, r.layout, r.uncertainty)
+        assert list(terms) == ["gaps", "radiation", "lines"]
+        assert all(r.corner_margin - 1e-9 <= m <= r.worst_margin + 1e-9 for m in terms.values())
+    shielded = replace(r.problem, enclosure="shielded")
+    from refine.circuit.response import model_uncertainty
+
+    unc = model_uncertainty(shielded, r.layout)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ModelRangeWarning)
+        assert list(worst_by_term(shielded, r.layout, unc)) == ["gaps", "lines"]
+    out = tmp_path / "out"
+    assert (
+        main(["design", str(problem_path("microstrip-x-band-alumina-n3")), "--out", str(out)]) == 5
+    )
+    summary = json.loads((out / "summary.json").read_text())["model_uncertainty"]
+    assert set(summary["worst_margin_by_term_db"]) == {"gaps", "radiation", "lines"}
+    assert "with one group of terms alone: gaps" in (out / "report.md").read_text()
+    loose = tmp_path / "loose"
+    assert main(["design", str(_loose_tap(tmp_path)), "--out", str(loose)]) == 0
+    met = json.loads((loose / "summary.json").read_text())["model_uncertainty"]
+    assert met["worst_margin_by_term_db"] is None

@@ -10,7 +10,7 @@ import itertools
 import math
 import warnings
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -500,6 +500,26 @@ def uncertainty_verdict(
             if name not in worst or m < worst[name]:
                 worst[name], where[name] = m, res.where[name]
     return MaskResult(worst, where), unc
+
+
+#: the groups of uncertainty terms :func:`worst_by_term` judges one at a time
+TERM_GROUPS = ("gaps", "radiation", "lines")
+
+
+def worst_by_term(problem: Problem, layout: Layout, unc: ModelUncertainty) -> dict[str, float]:
+    """The worst corner margin (dB) with one group of ``unc``'s terms at its ± and the rest at
+    zero: "gaps" (series and shunt), "radiation", "lines" (ε_eff and Z0); a group whose terms
+    are all zero is left out. Says which part of the model's uncertainty costs the margin."""
+    groups = {
+        "gaps": replace(unc, radiation=0.0, eps_eff=0.0, z0=0.0),
+        "radiation": replace(unc, series=0.0, shunt=0.0, series_gaps=None, eps_eff=0.0, z0=0.0),
+        "lines": replace(unc, series=0.0, shunt=0.0, series_gaps=None, radiation=0.0),
+    }
+    return {
+        name: uncertainty_verdict(problem, layout, g)[0].worst_margin
+        for name, g in groups.items()
+        if g.any
+    }
 
 
 def corner_batch(

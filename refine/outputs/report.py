@@ -32,6 +32,7 @@ from refine.circuit.response import (
     lossless_verdict,
     strip_medium_for,
     uncertainty_verdict,
+    worst_by_term,
 )
 from refine.optimise import seed as job
 from refine.optimise.refiner import RefineResult, Status
@@ -173,6 +174,7 @@ class Figures(NamedTuple):
     lossless: MaskResult | None = None
     corners: MaskResult | None = None  # worst margins over the model-uncertainty corners
     uncertainty: ModelUncertainty | None = None
+    by_term: dict[str, float] | None = None  # worst corner per group of terms alone (dB)
 
 
 def figures(r: RefineResult, power_w: float, g: tuple[float, ...] = ()) -> Figures:
@@ -185,6 +187,9 @@ def figures(r: RefineResult, power_w: float, g: tuple[float, ...] = ()) -> Figur
         corners, unc = r.corners, r.uncertainty
     else:
         corners, unc = uncertainty_verdict(p, r.layout)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", validity.ModelRangeWarning)
+        terms = worst_by_term(p, r.layout, unc) if corners.worst_margin < 0.0 else None
     return Figures(
         gap_voltages(r, power_w),
         passband_figures(r),
@@ -192,6 +197,7 @@ def figures(r: RefineResult, power_w: float, g: tuple[float, ...] = ()) -> Figur
         lossless_verdict(p, r.layout),
         corners,
         unc,
+        terms,
     )
 
 
@@ -200,7 +206,11 @@ def uncertainty_sentence(computed: Figures) -> str | None:
     c, u = computed.corners, computed.uncertainty
     if c is None or u is None:
         return None
-    return f"worst margin over the model-uncertainty corners {corner_sentence(c, u)}"
+    text = f"worst margin over the model-uncertainty corners {corner_sentence(c, u)}"
+    if computed.by_term:
+        each = ", ".join(f"{k} {m:+.2f} dB" for k, m in computed.by_term.items())
+        text += f"; with one group of terms alone: {each}"
+    return text
 
 
 def corner_sentence(corners: MaskResult, u: ModelUncertainty) -> str:
@@ -322,6 +332,7 @@ def summary(
             "worst_margins_db": computed.corners.worst,
             "worst_margin_db": computed.corners.worst_margin,
             "met_across_uncertainty": computed.corners.worst_margin >= 0.0,
+            "worst_margin_by_term_db": computed.by_term,
         },
         "diagnosis": None
         if r.diagnosis is None
