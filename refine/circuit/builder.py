@@ -103,7 +103,7 @@ class Adjustments:
     z0_factor: float | NDArray = 1.0
 
     @property
-    def per_design(self) -> bool:
+    def varies_per_design(self) -> bool:
         """Whether any factor differs per design of a batch (an array, not a number)."""
         return bool(
             np.ndim(self.c_shunt_factor)
@@ -275,7 +275,7 @@ def build(
         floor = 0.1 * gaps_a
         s_model = np.maximum(shrunk, floor)
         ds_model = np.where(shrunk > floor, 1.0, 0.1)
-    if widths_a.ndim == 1 and adj.per_design:
+    if widths_a.ndim == 1 and adj.varies_per_design:
         raise ValueError("per-design adjustments need a batch of designs: widths (B, n)")
     # one design: scalars (the numbers of the optimiser's inner loop); a batch: (..., 1) columns
     batched = widths_a.ndim > 1

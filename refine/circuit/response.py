@@ -31,7 +31,13 @@ from refine.physics import calibrated, discontinuities, gap_thickness, radiation
 from refine.physics.constants import C0, EPS0
 from refine.physics.gap_fixture import comparison, load_fixture
 from refine.physics.microstrip import Microstrip
-from refine.physics.strip import GAP_MODELS, StripMedium, medium_kind, sheet_gap_capacitances
+from refine.physics.strip import (
+    GAP_MODELS,
+    StripMedium,
+    calibration_of,
+    medium_kind,
+    sheet_gap_capacitances,
+)
 from refine.physics.stripline import Stripline
 from refine.spec.coupling import Coupling
 from refine.spec.mask import MaskResult
@@ -431,11 +437,7 @@ def added_uncertainty(
         series = np.zeros(s.shape)
         shunt = np.zeros(s.shape)
         words = []
-        cal = (
-            calibrated.load(model[len(calibrated.PREFIX) :])
-            if model.startswith(calibrated.PREFIX)
-            else None
-        )
+        cal = calibration_of(model)
         if cal is not None and cal.unequal is not None and np.any(w_in != w_out):
             a, b = calibrated.unequal_uncertainty(cal.unequal, w_in, w_out, s, h)
             series = series + 2 * a
