@@ -8,10 +8,12 @@ layout. The campaign resumes mesh by mesh; these tests read whatever meshes have
 comparisons only sequences of at least two meshes, so each figure has a mesh uncertainty) and
 pin what the data show.
 
-- End-coupled filters with tapped feeds: the field solver's worst in-band return loss is below
-  the circuit model's with the problem's metal by more than its mesh uncertainty on every one
-  checked so far, and nearer the circuit model's with zero-thickness strips, like the field
-  model's own: most of that gap is the metal thickness the field model lacks.
+- End-coupled filters with tapped feeds: where the resonators share one width, the field
+  solver's worst in-band return loss is below the circuit model's with the problem's metal by
+  more than its mesh uncertainty, and nearer the circuit model's with zero-thickness strips,
+  like the field model's own: most of that gap is the metal thickness the field model lacks.
+  Where they differ in width, today's circuit model (the calibration's unequal-gap correction)
+  comes within 1 dB plus the mesh uncertainty of the field solver's match.
 - The parallel-coupled filter: the circuit model's centre and worst in-band return loss lie
   within the field solver's mesh uncertainty, its 3 dB bandwidth within 1 %, while the field solver's
   midband loss exceeds the circuit model's by more than it (radiation from the open ends and the
@@ -93,24 +95,55 @@ def test_both_topologies_are_in_the_campaign():
     assert END_COUPLED and PARALLEL
 
 
-@pytest.mark.parametrize("seq", END_COUPLED)
+def _equal_widths(seq: tuple[str, str, bool]) -> bool:
+    widths = _meshes(seq)[0]["layout"]["widths"]
+    return max(widths) - min(widths) < 1e-9
+
+
+EQUAL = [q for q in END_COUPLED if _equal_widths(q)]
+UNEQUAL = [q for q in END_COUPLED if not _equal_widths(q)]
+
+
+def test_both_kinds_of_tapped_layout_are_in_the_campaign():
+    assert EQUAL and UNEQUAL
+
+
+@pytest.mark.parametrize("seq", EQUAL)
 def test_the_field_solver_finds_the_match_worse_than_the_circuit_model_with_its_metal(seq):
-    """The records' circuit-model figures have the problem's metal thickness, which the field
-    model's zero-thickness sheets lack."""
-    em, unc, model = _em_and_unc(seq, "worst_return_loss_db")
-    assert em + unc < model
+    """Resonators of one width (the 8 % tapped filter): today's circuit model with the problem's
+    metal thickness, which the field model's zero-thickness sheets lack, finds the match better
+    than the field solver beyond its mesh uncertainty (benchmarks/em_filters.py metal_figures)."""
+    em, unc, _ = _em_and_unc(seq, "worst_return_loss_db")
+    metal = _em_filters().metal_figures(_meshes(seq)[-1])["worst_return_loss_db"]
+    assert em + unc < metal
 
 
-@pytest.mark.parametrize("seq", END_COUPLED)
+@pytest.mark.parametrize("seq", EQUAL)
 def test_most_of_that_is_the_metal_thickness_the_field_model_lacks(seq):
-    """On the circuit model the problem's metal alone (10 um on alumina, 17.5 um on the
-    laminate) raises the tapped filters' worst in-band return loss by 3.9-9.7 dB; the field
-    solver's sits nearer the circuit model with sheets, like its own strips, than with the metal
-    (benchmarks/em_filters.py sheet_figures)."""
-    em, _, thick = _em_and_unc(seq, "worst_return_loss_db")
-    sheet = _em_filters().sheet_figures(_meshes(seq)[-1])["worst_return_loss_db"]
+    """There the problem's 10 um of metal raises the circuit model's worst in-band return loss
+    by about 5 dB (measured: 10.3 -> 15.5 dB); the field solver's sits nearer the circuit model
+    with sheets, like its own strips, than with the metal."""
+    em, _, _ = _em_and_unc(seq, "worst_return_loss_db")
+    last = _meshes(seq)[-1]
+    sheet = _em_filters().sheet_figures(last)["worst_return_loss_db"]
+    thick = _em_filters().metal_figures(last)["worst_return_loss_db"]
     assert thick - sheet > 3.5
     assert abs(em - sheet) < abs(em - thick)
+
+
+@pytest.mark.parametrize("seq", UNEQUAL)
+def test_with_unequal_widths_todays_circuit_model_finds_the_field_solvers_match(seq):
+    """Resonators of unequal width (the 10 % tapped alumina and 3 % tapped laminate filters):
+    with the calibration's unequal-gap correction the circuit model with the problem's metal
+    puts the worst in-band return loss within 1 dB plus the field solver's mesh uncertainty of
+    the field solver's (measured on the finest meshes: 8.8 against 10.0 ± 0.7 and 9.5 ± 0.6 dB,
+    3.4 against 2.4 ± 2.4 dB), where the records' own circuit model, with the symmetric-gap
+    rule, said 14.3 and 15.9 dB."""
+    em, unc, stored = _em_and_unc(seq, "worst_return_loss_db")
+    metal = _em_filters().metal_figures(_meshes(seq)[-1])["worst_return_loss_db"]
+    assert abs(em - metal) < unc + 1.0
+    if stored > metal + 3.0:  # a record made before the correction
+        assert em + unc < stored
 
 
 @pytest.mark.parametrize("seq", PARALLEL)
