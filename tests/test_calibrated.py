@@ -359,3 +359,21 @@ def test_the_stripline_closed_form_now_carries_its_error_as_uncertainty():
         warnings.simplefilter("ignore", validity.ModelRangeWarning)
         own = model_uncertainty(cal, lay)
     assert own.series == pytest.approx(0.05) and "calibration" in own.source
+
+
+def test_every_bundled_strip_problem_has_a_bundled_calibration():
+    """The problem set's every microstrip substrate (ε_r) and its stripline ones have a bundled
+    calibration, each with its unequal-gap table on microstrip, so no bundled design rests on
+    a closed-form gap model by default."""
+    from conftest import PROBLEMS
+
+    for path in PROBLEMS:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            p = load_problem(path)
+        if p.medium not in ("microstrip", "stripline") or p.topology != "end-coupled":
+            continue
+        name = calibrated.for_eps_r(p.strip_substrate.eps_r, p.medium == "stripline")
+        assert name is not None, (path.name, p.strip_substrate.eps_r)
+        if p.medium == "microstrip":
+            assert calibrated.load(name).unequal is not None, name

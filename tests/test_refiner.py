@@ -6,6 +6,7 @@ margin than the closed-form seed; every deliberately infeasible problem is repor
 with per-coupling "needs / can give" figures and at least one quantified remedy.
 """
 
+import math
 import re
 import warnings
 from pathlib import Path
@@ -302,6 +303,109 @@ def test_width_range_bounds_the_design_space():
     # Garg & Bahl, "Microstrip discontinuities", Int. J. Electronics 45(1), 1978: stated range
     # 0.5 <= W/h <= 2 (from memory; docs/references.md §6.1)
     assert p.width_range == (0.5, 2.0)
+
+
+def test_closed_form_gap_models_state_their_gap_range():
+    """The closed forms' stated gap ranges reach the refiner: Garg–Bahl's in s/W, KJK's in s/h;
+    a calibration states s/h only; ``gaps = "beyond-range"`` lifts both."""
+    from dataclasses import replace
+
+    p = load_problem(PROBLEMS[0].parent / "microstrip-x-band-alumina-n3.toml")
+    assert p.gap_sw_range is None and p.gap_range is not None  # the bundled calibration
+    gb = replace(p, gap_model="garg-bahl")
+    # Garg & Bahl, "Microstrip discontinuities", Int. J. Electronics 45(1), 1978: stated range
+    # 0.1 <= s/W <= 1 (from memory; docs/references.md §6.1)
+    assert gb.gap_sw_range == (0.1, 1.0) and gb.gap_range is None
+    kjk = replace(p, gap_model="kirschning-jansen-koster")
+    # Kirschning, Jansen & Koster, Electronics Letters 19(3), 1983: stated range s/h >= 0.1
+    # (from memory; docs/references.md §6.2)
+    assert kjk.gap_range == (0.1, math.inf) and kjk.gap_sw_range is None
+    for q in (gb, kjk):
+        lifted = replace(q, gaps="beyond-range")
+        assert lifted.gap_range is None and lifted.gap_sw_range is None
+
+
+def _gb_space(free_widths: bool):
+    """The x-band problem on Garg–Bahl, its seed, model and design space."""
+    from dataclasses import replace
+
+    from refine.circuit.model import strip_model_for
+    from refine.circuit.response import strip_medium_for
+    from refine.optimise.space import problem_space
+
+    p = replace(
+        load_problem(PROBLEMS[0].parent / "microstrip-x-band-alumina-n3.toml"),
+        gap_model="garg-bahl",
+    )
+    lay = job.seed(p).strip_realisation.layout
+    medium = strip_medium_for(p)
+    model = strip_model_for(medium, p.gap_model, p.z_ref, lay, np.array([p.f0]), free_widths)
+    return p, lay, model, problem_space(p, model, lay)
+
+
+def test_fixed_widths_bound_each_gap_by_both_strips_it_faces():
+    """With fixed widths the s/W range is a box on each gap: from the floor times the wider
+    strip it faces (the feed at an end gap) to the ceiling times the narrower, on the grid."""
+    from refine.optimise.space import gap_ratio_constraint, gap_sides
+
+    p, lay, model, space = _gb_space(False)
+    grid = p.fab.grid
+    for k, (a, b) in enumerate(gap_sides(model)):
+        wa = lay.feed_width if a is None else lay.widths[a]
+        wb = lay.feed_width if b is None else lay.widths[b]
+        v = space.variables[k]
+        assert v.lower == pytest.approx(math.ceil(0.1 * max(wa, wb) / grid - 1e-9) * grid)
+        assert v.upper == pytest.approx(math.floor(1.0 * min(wa, wb) / grid + 1e-9) * grid)
+    assert gap_ratio_constraint(space, model, p.gap_sw_range) is None  # the box suffices
+
+
+def test_refinable_widths_hold_the_gap_ratio_by_a_constraint():
+    """With refinable widths each gap's s/W is an inequality with an exact Jacobian, and the
+    box only says what it can (s at least the floor times the feed at an end gap)."""
+    from refine.optimise.space import gap_ratio_constraint
+
+    p, lay, model, space = _gb_space(True)
+    assert space.variables[0].lower >= 0.1 * lay.feed_width * (1 - 1e-9)
+    con = gap_ratio_constraint(space, model, p.gap_sw_range)
+    assert con is not None
+    rng = np.random.default_rng(3)
+    z = space.start() + 0.05 * rng.standard_normal(space.n_free)
+    g, jac = con(z)
+    # two rows (floor, ceiling) per gap and resonator it faces: 2 end gaps x 1 + 2 inner x 2
+    assert g.shape == (12,) and jac.shape == (12, space.n_free)
+    step = 1e-6
+    for k in range(space.n_free):
+        dz = np.zeros(space.n_free)
+        dz[k] = step
+        fd = (con(z + dz)[0] - con(z - dz)[0]) / (2 * step)
+        assert np.allclose(jac[:, k], fd, atol=1e-5)
+    # a gap at exactly the floor on a resonator: that row is 0
+    pp = space.to_physical(space.start())
+    g0, _ = con(space.to_free(pp))
+    s_over_w = pp[0] / pp[-model.order]
+    assert g0[0] == pytest.approx(100 * math.log(0.1 / s_over_w))
+
+
+def test_the_refiner_keeps_garg_bahl_inside_its_s_over_w_range():
+    """Refined on Garg–Bahl with refinable widths, every gap of the x-band problem stays within
+    0.1 <= s/W <= 1 of both strips it faces; the problem (15 um end gaps, s/W 0.024 when
+    allowed beyond the range) then cannot be met inside it, and the refiner says so."""
+    from dataclasses import replace
+
+    from refine.optimise.space import gap_sides
+
+    p, _, model, _ = _gb_space(True)
+    r = refine_problem(p)
+    lay = r.strip_layouts[0]
+    for k, (a, b) in enumerate(gap_sides(model)):
+        for j in (a, b):
+            w = lay.feed_width if j is None else lay.widths[j]
+            assert 0.1 * (1 - 1e-6) <= lay.gaps[k] / w <= 1.0 * (1 + 1e-6)
+    assert r.status is Status.NOT_MET
+    said = [n for n in r.notes if "stated range" in n]
+    assert said and "gap 1 (s/W 0.1" in said[0] and 'gaps = "beyond-range"' in said[0]
+    beyond = refine_problem(replace(p, gaps="beyond-range"))
+    assert min(beyond.strip_layouts[0].gaps) < 0.1 * lay.feed_width
 
 
 @pytest.mark.slow

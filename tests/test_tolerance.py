@@ -20,10 +20,13 @@ ROOT = Path(__file__).parent.parent
 # The README problem under a lid (no radiation) on the Garg-Bahl gap model: the layout below was
 # refined for it so, and these tests are about the yield machinery, which needs a layout that
 # meets its mask with a small margin.
+# LAY's end gaps sit at s/W 0.02, beyond Garg–Bahl's fitted range (0.1-1): centring may move
+# them only where the problem lets the gaps leave the model's range
 ALUMINA = replace(
     load_problem(ROOT / "problems/microstrip-x-band-alumina-n3.toml"),
     enclosure="shielded",
     gap_model="garg-bahl",
+    gaps="beyond-range",
 )
 LAY = Layout(
     "gap",

@@ -33,7 +33,9 @@ from refine.optimise.robust import robust_refine
 from refine.optimise.space import (
     DesignSpace,
     Variable,
+    all_of,
     fab_violations,
+    gap_ratio_constraint,
     mirror_ties,
     on_grid,
     problem_space,
@@ -247,7 +249,10 @@ def refine_problem(
             tuple(fab_violations(fab, seed_layout)),
             tuple(notes + list(real.notes)),
         )
-    extra = _length_constraint(problem, model, space)
+    extra = all_of(
+        _length_constraint(problem, model, space),
+        gap_ratio_constraint(space, model, problem.gap_sw_range),
+    )
     z = z_seed = space.start()
     stopping = _aim(stopping, seed_res)
     rounds = _refine_rounds(
@@ -377,6 +382,8 @@ def refine_problem(
         status = Status.INFEASIBLE
     else:
         status = Status.NOT_MET
+    if not corners.passed:
+        notes += gaps_at_model_range(problem, layout)
     return RefineResult(
         problem,
         status,
@@ -401,6 +408,43 @@ def refine_problem(
         unc,
         robust_evaluations,
     )
+
+
+def gaps_at_model_range(problem: Problem, layout: Layout) -> list[str]:
+    """A note naming the gaps that sit at an end of the gap model's stated range (s/h or s/W,
+    within half a per cent or one grid step) where the shop's minimum gap does not hold them,
+    and what lifts the range: empty when none does."""
+    fab = problem.strip_fab
+    h = problem.strip_substrate.height
+    slack = max(0.005, (fab.grid or 0.0) / min(layout.gaps))
+    sides = [layout.feed_width, *layout.widths, layout.feed_width]
+    if layout.external is Coupling.TAP:
+        sides = list(layout.widths)
+    held: list[str] = []
+    for k, s in enumerate(layout.gaps):
+        if s <= fab.min_gap * (1.0 + slack):
+            continue  # the shop's minimum holds it, not the model's range
+        rng = problem.gap_range
+        if rng is not None and (s / h <= rng[0] * (1 + slack) or s / h >= rng[1] * (1 - slack)):
+            held.append(f"gap {k + 1} (s/h {s / h:.3g}; range {rng[0]:.3g} to {rng[1]:.3g})")
+            continue
+        sw = problem.gap_sw_range
+        ratios = (s / sides[k], s / sides[k + 1])
+        if sw is not None and (
+            min(ratios) <= sw[0] * (1 + slack) or max(ratios) >= sw[1] * (1 - slack)
+        ):
+            held.append(
+                f"gap {k + 1} (s/W {min(ratios):.3g} to {max(ratios):.3g}; range {sw[0]:g} to "
+                f"{sw[1]:g})"
+            )
+    if not held:
+        return []
+    return [
+        f"{', '.join(held)} at the end of the {problem.gap_model} gap model's stated range, "
+        "where the refiner keeps them: the mask may need gaps beyond it. [models] gaps = "
+        '"beyond-range" lets the refiner leave the range (the model then extrapolates and '
+        "warns), or a calibration of this substrate extends it"
+    ]
 
 
 @dataclass

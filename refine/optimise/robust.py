@@ -44,7 +44,13 @@ from refine.circuit.response import (
     uncertainty_verdict,
 )
 from refine.optimise.minimax import Stopping, minimax, optimiser_grid
-from refine.optimise.space import fab_violations, problem_space, snap
+from refine.optimise.space import (
+    all_of,
+    fab_violations,
+    gap_ratio_constraint,
+    problem_space,
+    snap,
+)
 from refine.optimise.stacked import StackedMask
 from refine.spec.mask import MaskResult
 from refine.spec.problem import Problem
@@ -156,7 +162,9 @@ def robust_refine(
             fn,
             z0,
             Stopping(max_evaluations, None, 100.0, 1e-7),
-            extra=nominal_met,
+            extra=all_of(
+                nominal_met, gap_ratio_constraint(space, nominal_model, problem.gap_sw_range)
+            ),
             polish=False,
             aggregate=True,
         )

@@ -13,7 +13,7 @@ lengths of centimetres.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -23,6 +23,7 @@ from refine import _validate as v
 from refine.circuit.builder import Dim
 from refine.circuit.layout import Layout
 from refine.circuit.model import StripFilterModel
+from refine.spec.coupling import Coupling
 from refine.spec.fab import FabRules
 from refine.spec.problem import Problem
 
@@ -167,6 +168,30 @@ def layout_ties(model: StripFilterModel) -> list[list[int]]:
     return sorted(out, key=lambda t: t[0])
 
 
+def gap_sides(model: StripFilterModel) -> list[tuple[int | None, int | None]]:
+    """The two strips each gap of ``model`` faces, input side first: a resonator's index, or
+    None for a feed line (the end gaps of a gap-coupled layout)."""
+    n = model.order
+    if model.external is Coupling.GAP:
+        return [(None if k == 0 else k - 1, None if k == n else k) for k in range(n + 1)]
+    return [(k, k + 1) for k in range(n - 1)]
+
+
+def _width_bounds(
+    fab: FabRules, height: float, seed: Layout, width_range: tuple[float, float] | None
+) -> tuple[float, float]:
+    """The refinable resonator widths' bounds (see :func:`layout_space`)."""
+    lo_w = max(0.5 * seed.feed_width, fab.min_width or 0.0)
+    hi_w = 3.0 * seed.feed_width
+    if width_range is not None:  # inside the model's range, but the feed width stays legal
+        lo_w = max(lo_w, min(width_range[0] * height, seed.feed_width))
+        hi_w = min(hi_w, max(width_range[1] * height, seed.feed_width))
+        if fab.grid is not None:  # bounds on the grid, so that snapping stays inside them
+            g = fab.grid
+            lo_w, hi_w = math.ceil(lo_w / g - 1e-9) * g, math.floor(hi_w / g + 1e-9) * g
+    return lo_w, max(hi_w, 1.01 * lo_w)
+
+
 def layout_space(
     fab: FabRules,
     height: float,
@@ -175,23 +200,45 @@ def layout_space(
     symmetric: bool = True,
     width_range: tuple[float, float] | None = None,
     gap_range: tuple[float, float] | None = None,
+    gap_sw_range: tuple[float, float] | None = None,
 ) -> DesignSpace:
     """The refiner's variables for a strip layout: gaps from the shop's minimum to
-    max(4 s, 2 h, 2 s_min), and inside ``gap_range`` (s/h, the gap model's calibrated range)
-    when given, though never below the shop's minimum; lengths ±25/30 %, taps inside the end
-    resonators, widths from max(W_feed/2, W_min) to 3 W_feed, and inside ``width_range`` (W/h,
-    the gap model's stated range) when given, though never narrower than the feed allows;
-    mirror-tied when ``symmetric``."""
+    max(4 s, 2 h, 2 s_min), and inside ``gap_range`` (s/h, the gap model's range; the upper
+    limit may be inf) and ``gap_sw_range`` (s/W against each strip the gap faces) when given,
+    though never below the shop's minimum; lengths ±25/30 %, taps inside the end resonators,
+    widths from max(W_feed/2, W_min) to 3 W_feed, and inside ``width_range`` (W/h, the gap
+    model's stated range) when given, though never narrower than the feed allows; mirror-tied
+    when ``symmetric``. With refinable widths a gap's s/W bounds hold for every width the box
+    allows on a fixed side and only as far as the box can say on a refinable one (s at least
+    the s/W floor times the narrowest such strip, at most the ceiling times the widest):
+    :func:`gap_ratio_constraint` then holds the ratio itself."""
     p0 = model.vector(seed)
     variables: list[Variable] = []
     gaps, lengths, taps, widths = model.split(p0)
     ng, n = len(gaps), len(lengths)
+    lo_w, hi_w = _width_bounds(fab, height, seed, width_range)
+
+    def side(j: int | None) -> tuple[float, float]:  # a strip's narrowest and widest width
+        if j is None:
+            return seed.feed_width, seed.feed_width
+        if model.free_widths:
+            return lo_w, hi_w
+        return float(widths[j]), float(widths[j])
+
+    sides = gap_sides(model)
     for k, s in enumerate(gaps):
         s = max(s, fab.min_gap)
         lo_s, hi_s = fab.min_gap, max(4.0 * s, 2.0 * height, 2.0 * fab.min_gap)
+        inside = gap_range is not None or gap_sw_range is not None
         if gap_range is not None:  # inside the model's range, above the shop's minimum
             lo_s = max(lo_s, gap_range[0] * height)
-            hi_s = max(min(hi_s, gap_range[1] * height), 1.01 * lo_s)
+            hi_s = min(hi_s, gap_range[1] * height)
+        if gap_sw_range is not None:
+            (a_lo, a_hi), (b_lo, b_hi) = side(sides[k][0]), side(sides[k][1])
+            lo_s = max(lo_s, gap_sw_range[0] * max(a_lo, b_lo))
+            hi_s = min(hi_s, gap_sw_range[1] * min(a_hi, b_hi))
+        if inside:
+            hi_s = max(hi_s, 1.01 * lo_s)
             if fab.grid is not None:  # bounds on the grid, so that snapping stays inside them
                 g = fab.grid
                 lo_s = math.ceil(lo_s / g - 1e-9) * g
@@ -210,23 +257,64 @@ def layout_space(
             )
         k += 2
     if model.free_widths:
-        lo_w = max(0.5 * seed.feed_width, fab.min_width or 0.0)
-        hi_w = 3.0 * seed.feed_width
-        if width_range is not None:  # inside the model's range, but the feed width stays legal
-            lo_w = max(lo_w, min(width_range[0] * height, seed.feed_width))
-            hi_w = min(hi_w, max(width_range[1] * height, seed.feed_width))
-            if fab.grid is not None:  # bounds on the grid, so that snapping stays inside them
-                g = fab.grid
-                lo_w, hi_w = math.ceil(lo_w / g - 1e-9) * g, math.floor(hi_w / g + 1e-9) * g
-        hi_w = max(hi_w, 1.01 * lo_w)
         for j, w in enumerate(widths):
             variables.append(Variable(model.names[k + j], min(max(w, lo_w), hi_w), lo_w, hi_w))
     return DesignSpace(variables, layout_ties(model) if symmetric else ())
 
 
+def gap_ratio_constraint(
+    space: DesignSpace,
+    model: StripFilterModel,
+    gap_sw_range: tuple[float, float] | None,
+) -> Constraint | None:
+    """A gap model's s/W range as inequalities g(z) <= 0 with their Jacobian in z, for a layout
+    whose widths are refinable (with fixed widths :func:`layout_space`'s bounds already hold
+    it; then None, as with no range): for each gap and each refinable strip it faces,
+    100 ln(floor·W/s) and 100 ln(s/(ceiling·W)) (about the excess in %)."""
+    if gap_sw_range is None or not model.free_widths:
+        return None
+    lo, hi = gap_sw_range
+    n_gaps = len(model.split(np.zeros(len(model.names)))[0])
+    w0 = n_gaps + model.order + (2 if model.external is Coupling.TAP else 0)
+    # (gap, width) index pairs; a feed's side is a fixed bound of layout_space
+    pairs = [(k, w0 + j) for k, ab in enumerate(gap_sides(model)) for j in ab if j is not None]
+
+    def extra(z: NDArray) -> tuple[NDArray, NDArray]:
+        p = space.to_physical(z)
+        g = np.empty(2 * len(pairs))
+        dp = np.zeros((len(p), 2 * len(pairs)))
+        for i, (ks, kw) in enumerate(pairs):
+            r = math.log(p[ks] / p[kw])
+            g[2 * i], g[2 * i + 1] = 100.0 * (math.log(lo) - r), 100.0 * (r - math.log(hi))
+            dp[ks, 2 * i], dp[kw, 2 * i] = -100.0 / p[ks], 100.0 / p[kw]
+            dp[ks, 2 * i + 1], dp[kw, 2 * i + 1] = 100.0 / p[ks], -100.0 / p[kw]
+        return g, space.chain(p, dp).T
+
+    return extra
+
+
+Constraint = Callable[[NDArray], tuple[NDArray, NDArray]]
+
+
+def all_of(*constraints: Constraint | None) -> Constraint | None:
+    """Inequality constraints g(z) <= 0 (each with its Jacobian in z) as one, skipping None;
+    None when there are none."""
+    kept = [c for c in constraints if c is not None]
+    if not kept:
+        return None
+    if len(kept) == 1:
+        return kept[0]
+
+    def extra(z: NDArray) -> tuple[NDArray, NDArray]:
+        parts = [c(z) for c in kept]
+        return np.concatenate([g for g, _ in parts]), np.vstack([j for _, j in parts])
+
+    return extra
+
+
 def problem_space(problem: Problem, model: StripFilterModel, seed: Layout) -> DesignSpace:
     """:func:`layout_space` with a problem's shop rules, substrate height and the gap model's
-    W/h and s/h ranges (as the problem allows them)."""
+    W/h, s/h and s/W ranges (as the problem allows them)."""
     return layout_space(
         problem.strip_fab,
         problem.strip_substrate.height,
@@ -234,6 +322,7 @@ def problem_space(problem: Problem, model: StripFilterModel, seed: Layout) -> De
         seed,
         width_range=problem.width_range,
         gap_range=problem.gap_range,
+        gap_sw_range=problem.gap_sw_range,
     )
 
 

@@ -56,6 +56,8 @@ GB_BLEND_FACTOR = 1.1
 GB_SERIES_FLOOR = 1e-3
 GB_GAP_WH = (0.5, 2.0)  # Garg–Bahl gap: the W/h range of its fit
 KJK_GAP_WH = (0.1, 3.0)  # Kirschning–Jansen–Koster gap: its stated W/h range
+GB_GAP_SW = (0.1, 1.0)  # Garg–Bahl gap: the s/W range of its fit
+KJK_GAP_SH = (0.1, math.inf)  # Kirschning–Jansen–Koster gap: its stated s/h range (no upper)
 
 
 class GapCapacitances(NamedTuple):
@@ -111,7 +113,7 @@ def garg_bahl_gap(w: ArrayLike, s: ArrayLike, h: ArrayLike, eps_r: ArrayLike) ->
     h = np.asarray(h, float)
     validity.check("Garg-Bahl gap", "W/h", np.real(w) / h, *GB_GAP_WH)
     validity.check("Garg-Bahl gap", "eps_r", eps_r, 2.5, 15.0)
-    validity.check("Garg-Bahl gap", "s/W", np.real(s / w), 0.1, 1.0)
+    validity.check("Garg-Bahl gap", "s/W", np.real(s / w), *GB_GAP_SW)
     c_odd, c_even = _garg_bahl_raw(w, s, h, eps_r)
     c_series = 0.5 * c_odd - 0.25 * c_even
     x = np.real(s / w)
@@ -197,7 +199,7 @@ def kirschning_jansen_koster_gap(
         *KJK_GAP_WH,
     )
     validity.check("Kirschning-Jansen-Koster gap", "eps_r", eps_r, 6.0, 13.0)
-    validity.check("Kirschning-Jansen-Koster gap", "s/h", np.real(s) / h, 0.1, None)
+    validity.check("Kirschning-Jansen-Koster gap", "s/h", np.real(s) / h, KJK_GAP_SH[0], None)
     wide = np.maximum(w1, w2)
     narrow = np.minimum(w1, w2)
     validity.check("Kirschning-Jansen-Koster gap", "W2/W1", wide / narrow, 1.0, 3.0)

@@ -31,6 +31,16 @@ GAP_MODEL_WH: dict[str, tuple[float, float]] = {
     "kirschning-jansen-koster": discontinuities.KJK_GAP_WH,
 }
 
+# the gap widths each closed-form gap model states its range in: Kirschning–Jansen–Koster in s/h
+# (from 0.1, no upper limit), Garg–Bahl in s/W (0.1 to 1, against each strip the gap faces);
+# a calibration states s/h (calibrated.Calibration.s_h_range). The refiner keeps gaps inside.
+GAP_MODEL_SH: dict[str, tuple[float, float]] = {
+    "kirschning-jansen-koster": discontinuities.KJK_GAP_SH,
+}
+GAP_MODEL_SW: dict[str, tuple[float, float]] = {
+    "garg-bahl": discontinuities.GB_GAP_SW,
+}
+
 # gap models whose reference planes are at the gap centre (the circuit adds a half-gap line on
 # each side to move them to the strip ends)
 CENTRE_REFERENCED = frozenset({"altschuler-oliner"})
@@ -61,10 +71,16 @@ def gap_model_wh(model: str) -> tuple[float, float] | None:
 
 
 def gap_model_sh(model: str) -> tuple[float, float] | None:
-    """The gap widths (s/h) a gap model was calibrated over (None: no range stated in s/h; the
-    closed forms state theirs in s/W and warn instead)."""
+    """The gap widths (s/h) a gap model was calibrated or fitted over (None: no range stated in
+    s/h; the upper limit may be inf)."""
     cal = calibration_of(model)
-    return None if cal is None else cal.s_h_range
+    return GAP_MODEL_SH.get(model) if cal is None else cal.s_h_range
+
+
+def gap_model_sw(model: str) -> tuple[float, float] | None:
+    """The gap widths (s/W, W each strip the gap faces) a gap model was fitted over (None: no
+    range stated in s/W)."""
+    return None if calibration_of(model) is not None else GAP_MODEL_SW.get(model)
 
 
 def check_gap_model(medium: StripMedium, model: str) -> str:

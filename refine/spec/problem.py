@@ -46,8 +46,9 @@ Schema (keys marked * are required)::
                       corner of the model's stated uncertainty) | "judge" (judge the corners
                       only); either way "met" needs the mask met at every corner
                 gaps = "in-range" (default: the refiner keeps every gap inside the gap
-                      calibration's s/h range) | "beyond-range" (it may leave it; the model then
-                      carries on by a trend and warns)
+                      model's range: a calibration's s/h, Kirschning-Jansen-Koster's s/h >=
+                      0.1, Garg-Bahl's s/W 0.1-1 on both sides) | "beyond-range" (it may leave
+                      it; the model then carries on by a trend and warns)
     [mask]                                   *
     passband_return_loss_db, passband_ripple_db, midband_insertion_loss_db   (at least one)
     [[mask.stopband]]  start, stop, rejection_db
@@ -136,11 +137,20 @@ class Problem:
 
     @property
     def gap_range(self) -> tuple[float, float] | None:
-        """The s/h range refinable gaps stay in: the gap calibration's, or None with
-        ``[models] gaps = "beyond-range"`` (or a model that states no s/h range)."""
+        """The s/h range refinable gaps stay in: the gap calibration's or closed-form model's
+        (the upper limit may be inf), or None with ``[models] gaps = "beyond-range"`` (or a
+        model that states no s/h range)."""
         if self.gaps == "beyond-range":
             return None
         return strip.gap_model_sh(self.gap_model)
+
+    @property
+    def gap_sw_range(self) -> tuple[float, float] | None:
+        """The s/W range refinable gaps stay in (W each strip a gap faces): the closed-form gap
+        model's, or None with ``[models] gaps = "beyond-range"`` (or a model that states none)."""
+        if self.gaps == "beyond-range":
+            return None
+        return strip.gap_model_sw(self.gap_model)
 
     @property
     def band_edges(self) -> tuple[float, float]:

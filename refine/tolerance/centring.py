@@ -5,7 +5,7 @@ Design centring as a minimax: maximise the worst margin over the nominal layout 
 ``design_samples`` fixed perturbations of it (drawn once from the fab tolerances, so the
 problem is deterministic and smooth), each sample's mask regions entering as one smooth-maximum
 constraint. It runs on the one optimiser entry (:func:`refine.optimise.minimax.minimax`) in the
-refiner's design space (:func:`refine.optimise.space.layout_space`); the result is snapped to
+refiner's design space (:func:`refine.optimise.space.problem_space`); the result is snapped to
 the shop's grid and kept only if its Monte Carlo yield, on samples independent of the design
 samples, is higher. Centring is for the shop's tolerances: its yields leave the model's own
 uncertainty out (robust refinement, :mod:`refine.optimise.robust`, deals with that).
@@ -23,7 +23,7 @@ from refine.circuit.layout import Layout
 from refine.circuit.model import strip_model_for
 from refine.circuit.response import strip_medium_for
 from refine.optimise.minimax import Stopping, minimax
-from refine.optimise.space import fab_violations, layout_space, snap
+from refine.optimise.space import fab_violations, gap_ratio_constraint, problem_space, snap
 from refine.optimise.stacked import StackedMask
 from refine.spec.problem import Problem
 from refine.tolerance.montecarlo import (
@@ -67,9 +67,7 @@ def centre_for_yield(
     if free_widths is None:
         free_widths = problem.free_widths
     model = strip_model_for(medium, problem.gap_model, problem.z_ref, layout, f, free_widths)
-    space = layout_space(
-        fab, problem.strip_substrate.height, model, layout, width_range=problem.width_range
-    )
+    space = problem_space(problem, model, layout)
     p0 = model.vector(layout)
     smp = sample(layout, tol, design_samples, seed, problem.substrate)  # its geometry is used below
     offsets = np.zeros((design_samples + 1, len(model.dims)))  # row 0: the nominal layout itself
@@ -106,6 +104,7 @@ def centre_for_yield(
         fn,
         z0,
         Stopping(max_evaluations, None, 100.0, 1e-7),
+        extra=gap_ratio_constraint(space, model, problem.gap_sw_range),
         polish=False,
         aggregate=True,
     )
