@@ -168,6 +168,9 @@ def layout_ties(model: StripFilterModel) -> list[list[int]]:
     return sorted(out, key=lambda t: t[0])
 
 
+Constraint = Callable[[NDArray], tuple[NDArray, NDArray]]
+
+
 def gap_sides(model: StripFilterModel) -> list[tuple[int | None, int | None]]:
     """The two strips each gap of ``model`` faces, input side first: a resonator's index, or
     None for a feed line (the end gaps of a gap-coupled layout)."""
@@ -210,7 +213,8 @@ def layout_space(
     model's stated range) when given, though never narrower than the feed allows; mirror-tied
     when ``symmetric``. With refinable widths a gap's s/W bounds hold for every width the box
     allows on a fixed side and only as far as the box can say on a refinable one (s at least
-    the s/W floor times the narrowest such strip, at most the ceiling times the widest):
+    the floor times the larger of the two strips' narrowest widths, at most the ceiling times
+    the smaller of their widest):
     :func:`gap_ratio_constraint` then holds the ratio itself."""
     p0 = model.vector(seed)
     variables: list[Variable] = []
@@ -291,9 +295,6 @@ def gap_ratio_constraint(
         return g, space.chain(p, dp).T
 
     return extra
-
-
-Constraint = Callable[[NDArray], tuple[NDArray, NDArray]]
 
 
 def all_of(*constraints: Constraint | None) -> Constraint | None:
