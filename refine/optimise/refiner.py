@@ -426,7 +426,7 @@ def gaps_at_model_range(problem: Problem, layout: Layout) -> list[str]:
             continue  # the shop's minimum holds it, not the model's range
         rng = problem.gap_range
         if rng is not None and (s / h <= rng[0] * (1 + slack) or s / h >= rng[1] * (1 - slack)):
-            upper = "up" if math.isinf(rng[1]) else f"to {rng[1]:.3g}"
+            upper = "and up" if math.isinf(rng[1]) else f"to {rng[1]:.3g}"
             held.append(f"gap {k + 1} (s/h {s / h:.3g}; range {rng[0]:.3g} {upper})")
             continue
         sw = problem.gap_sw_range
