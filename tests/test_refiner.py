@@ -403,7 +403,7 @@ def test_the_refiner_keeps_garg_bahl_inside_its_s_over_w_range():
             assert 0.1 * (1 - 1e-6) <= lay.gaps[k] / w <= 1.0 * (1 + 1e-6)
     assert r.status is Status.NOT_MET
     said = [n for n in r.notes if "stated range" in n]
-    assert said and "gap 1 (s/W 0.1" in said[0] and 'gaps = "beyond-range"' in said[0]
+    assert said and "gap 0 (s/W 0.1" in said[0] and 'gaps = "beyond-range"' in said[0]
     beyond = refine_problem(replace(p, gaps="beyond-range"))
     assert min(beyond.strip_layouts[0].gaps) < 0.1 * lay.feed_width
 

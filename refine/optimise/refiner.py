@@ -427,7 +427,7 @@ def gaps_at_model_range(problem: Problem, layout: Layout) -> list[str]:
         rng = problem.gap_range
         if rng is not None and (s / h <= rng[0] * (1 + slack) or s / h >= rng[1] * (1 - slack)):
             upper = "and up" if math.isinf(rng[1]) else f"to {rng[1]:.3g}"
-            held.append(f"gap {k + 1} (s/h {s / h:.3g}; range {rng[0]:.3g} {upper})")
+            held.append(f"gap {k} (s/h {s / h:.3g}; range {rng[0]:.3g} {upper})")
             continue
         sw = problem.gap_sw_range
         ratios = (s / sides[k], s / sides[k + 1])
@@ -435,7 +435,7 @@ def gaps_at_model_range(problem: Problem, layout: Layout) -> list[str]:
             min(ratios) <= sw[0] * (1 + slack) or max(ratios) >= sw[1] * (1 - slack)
         ):
             held.append(
-                f"gap {k + 1} (s/W {min(ratios):.3g} to {max(ratios):.3g}; range {sw[0]:g} to "
+                f"gap {k} (s/W {min(ratios):.3g} to {max(ratios):.3g}; range {sw[0]:g} to "
                 f"{sw[1]:g})"
             )
     if not held:
