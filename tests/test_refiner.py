@@ -350,7 +350,7 @@ def test_fixed_widths_bound_each_gap_by_both_strips_it_faces():
 
     p, lay, model, space = _gb_space(False)
     grid = p.fab.grid
-    for k, (a, b) in enumerate(gap_sides(model)):
+    for k, (a, b) in enumerate(gap_sides(model.external, model.order)):
         wa = lay.feed_width if a is None else lay.widths[a]
         wb = lay.feed_width if b is None else lay.widths[b]
         v = space.variables[k]
@@ -397,7 +397,7 @@ def test_the_refiner_keeps_garg_bahl_inside_its_s_over_w_range():
     p, _, model, _ = _gb_space(True)
     r = refine_problem(p)
     lay = r.strip_layouts[0]
-    for k, (a, b) in enumerate(gap_sides(model)):
+    for k, (a, b) in enumerate(gap_sides(model.external, model.order)):
         for j in (a, b):
             w = lay.feed_width if j is None else lay.widths[j]
             assert 0.1 * (1 - 1e-6) <= lay.gaps[k] / w <= 1.0 * (1 + 1e-6)

@@ -36,6 +36,7 @@ from refine.optimise.space import (
     all_of,
     fab_violations,
     gap_ratio_constraint,
+    gap_sides,
     mirror_ties,
     on_grid,
     problem_space,
@@ -417,9 +418,11 @@ def gaps_at_model_range(problem: Problem, layout: Layout) -> list[str]:
     fab = problem.strip_fab
     h = problem.strip_substrate.height
     slack = max(0.005, (fab.grid or 0.0) / min(layout.gaps))
-    sides = [layout.feed_width, *layout.widths, layout.feed_width]
-    if layout.external is Coupling.TAP:
-        sides = list(layout.widths)
+
+    def width(j: int | None) -> float:
+        return layout.feed_width if j is None else layout.widths[j]
+
+    sides = gap_sides(layout.external, layout.order)
     held: list[str] = []
     for k, s in enumerate(layout.gaps):
         if s <= fab.min_gap * (1.0 + slack):
@@ -430,7 +433,7 @@ def gaps_at_model_range(problem: Problem, layout: Layout) -> list[str]:
             held.append(f"gap {k} (s/h {s / h:.3g}; range {rng[0]:.3g} {upper})")
             continue
         sw = problem.gap_sw_range
-        ratios = (s / sides[k], s / sides[k + 1])
+        ratios = (s / width(sides[k][0]), s / width(sides[k][1]))
         if sw is not None and (
             min(ratios) <= sw[0] * (1 + slack) or max(ratios) >= sw[1] * (1 - slack)
         ):

@@ -171,11 +171,11 @@ def layout_ties(model: StripFilterModel) -> list[list[int]]:
 Constraint = Callable[[NDArray], tuple[NDArray, NDArray]]
 
 
-def gap_sides(model: StripFilterModel) -> list[tuple[int | None, int | None]]:
-    """The two strips each gap of ``model`` faces, input side first: a resonator's index, or
-    None for a feed line (the end gaps of a gap-coupled layout)."""
-    n = model.order
-    if model.external is Coupling.GAP:
+def gap_sides(external: Coupling, n: int) -> list[tuple[int | None, int | None]]:
+    """The two strips each gap of an ``n``-resonator layout with ``external`` coupling faces,
+    input side first: a resonator's index, or None for a feed line (the end gaps of a
+    gap-coupled layout)."""
+    if external is Coupling.GAP:
         return [(None if k == 0 else k - 1, None if k == n else k) for k in range(n + 1)]
     return [(k, k + 1) for k in range(n - 1)]
 
@@ -229,7 +229,7 @@ def layout_space(
             return lo_w, hi_w
         return float(widths[j]), float(widths[j])
 
-    sides = gap_sides(model)
+    sides = gap_sides(model.external, model.order)
     for k, s in enumerate(gaps):
         s = max(s, fab.min_gap)
         lo_s, hi_s = fab.min_gap, max(4.0 * s, 2.0 * height, 2.0 * fab.min_gap)
@@ -281,7 +281,12 @@ def gap_ratio_constraint(
     n_gaps = len(model.split(np.zeros(len(model.names)))[0])
     w0 = n_gaps + model.order + (2 if model.external is Coupling.TAP else 0)
     # (gap, width) index pairs; a feed's side is a fixed bound of layout_space
-    pairs = [(k, w0 + j) for k, ab in enumerate(gap_sides(model)) for j in ab if j is not None]
+    pairs = [
+        (k, w0 + j)
+        for k, ab in enumerate(gap_sides(model.external, model.order))
+        for j in ab
+        if j is not None
+    ]
 
     def extra(z: NDArray) -> tuple[NDArray, NDArray]:
         p = space.to_physical(z)
